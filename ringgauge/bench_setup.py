@@ -1,0 +1,120 @@
+"""The bench set-up an analysis runs with: light source, pixel scale, gap medium, and form options."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+from .errors import InputError
+from .sources import LightSource, get_source
+
+
+@dataclass(frozen=True)
+class BenchSetup:
+    """Everything about the bench that the image itself cannot tell.
+
+    Attributes
+    ----------
+    source : LightSource
+        Lamp or laser; its effective wavelength and standard uncertainty are used.
+    pixel_size_um : float
+        Object-space pixel size along x (image columns), micrometres per pixel.
+    pixel_size_u_um : float
+        Its standard uncertainty (k = 1). 0 means "not given" and is flagged in the result.
+    pixel_size_y_um, pixel_size_y_u_um : float or None
+        Pixel size along y (rows) when the camera's scale is anisotropic; None = same as x.
+    medium_index, medium_index_u : float
+        Refractive index of the gap medium (1.0 for air) and its standard uncertainty.
+    fringe_kind : {"dark", "bright"}
+        Which rings are counted as orders: dark rings satisfy r^2 = m lambda R / n, bright ones
+        r^2 = (m - 1/2) lambda R / n (reflection). Stored with the result.
+    bench : str or None
+        Name of the bench profile the pixel scale came from, and its calibration date.
+    """
+
+    source: LightSource
+    pixel_size_um: float
+    pixel_size_u_um: float = 0.0
+    pixel_size_y_um: float | None = None
+    pixel_size_y_u_um: float | None = None
+    medium_index: float = 1.0
+    medium_index_u: float = 0.0
+    fringe_kind: str = "dark"
+    bench: str | None = None
+    bench_calibrated: str | None = None
+    # surface form against a test plate (issue: surface form); None = not requested
+    test_diameter_mm: float | None = None
+    tolerance: str | None = None
+    test_plate: dict | None = None
+    press_test: str | None = None
+    decision_rule: str = "simple"
+    extras: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        check_positive("pixel size", self.pixel_size_um, "µm")
+        if self.pixel_size_y_um is not None:
+            check_positive("pixel size along y", self.pixel_size_y_um, "µm")
+        if self.pixel_size_u_um < 0 or (self.pixel_size_y_u_um or 0) < 0:
+            raise InputError("pixel size uncertainty cannot be negative")
+        if self.pixel_size_u_um > 0.2 * self.pixel_size_um:
+            raise InputError(
+                f"pixel size uncertainty {self.pixel_size_u_um} µm is over 20 % of the pixel size; recalibrate"
+            )
+        check_positive("medium index", self.medium_index, "")
+        if not 1.0 <= self.medium_index <= 2.5:
+            raise InputError(f"gap medium index {self.medium_index} is outside 1.0-2.5 (air is 1.0, water 1.333)")
+        if self.medium_index_u < 0:
+            raise InputError("medium index uncertainty cannot be negative")
+        if self.fringe_kind not in ("dark", "bright"):
+            raise InputError("fringe kind must be 'dark' or 'bright'")
+        if self.test_diameter_mm is not None:
+            check_positive("test diameter", self.test_diameter_mm, "mm")
+
+    @property
+    def wavelength_nm(self) -> float:
+        return self.source.wavelength_nm
+
+    @property
+    def pixel_size_xy_um(self) -> tuple[float, float]:
+        return (self.pixel_size_um, self.pixel_size_y_um or self.pixel_size_um)
+
+    @property
+    def pixel_size_xy_u_um(self) -> tuple[float, float]:
+        uy = self.pixel_size_y_u_um if self.pixel_size_y_um is not None else self.pixel_size_u_um
+        return (self.pixel_size_u_um, uy if uy is not None else self.pixel_size_u_um)
+
+    def with_(self, **changes) -> "BenchSetup":
+        return replace(self, **changes)
+
+    def to_dict(self) -> dict:
+        return {
+            "source": self.source.to_dict(),
+            "wavelength_nm": self.wavelength_nm,
+            "wavelength_u_nm": self.source.wavelength_u_nm,
+            "pixel_size_um": list(self.pixel_size_xy_um),
+            "pixel_size_u_um": list(self.pixel_size_xy_u_um),
+            "medium_index": self.medium_index,
+            "medium_index_u": self.medium_index_u,
+            "fringe_kind": self.fringe_kind,
+            "bench": self.bench,
+            "bench_calibrated": self.bench_calibrated,
+            "test_diameter_mm": self.test_diameter_mm,
+            "tolerance": self.tolerance,
+            "test_plate": self.test_plate,
+            "press_test": self.press_test,
+            "decision_rule": self.decision_rule,
+        }
+
+
+def check_positive(what: str, value, unit: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be a number, got {value!r}") from None
+    if not math.isfinite(v) or v <= 0:
+        raise InputError(f"{what} must be a positive number{(' of ' + unit) if unit else ''}, got {value}")
+    return v
+
+
+def default_setup(pixel_size_um: float, source: str = "sodium-d", **kw) -> BenchSetup:
+    return BenchSetup(source=get_source(source), pixel_size_um=pixel_size_um, **kw)
