@@ -1,0 +1,766 @@
+"""The inspection store: append-only inspection records and issued documents, in SQLite or PostgreSQL.
+
+One code path serves both databases; :class:`_Dialect` holds the few statements that differ (identity
+columns, the triggers that refuse UPDATE and DELETE, parameter markers, locking). Every write is one
+transaction: a crash or a kill between two records loses nothing that was committed and leaves nothing half
+written.
+
+Records are never edited or deleted. A correction is a new record that names the record it supersedes and
+why; the old one stays, and listings show only the current end of each chain unless asked for history.
+The schema carries its version; :data:`MIGRATIONS` brings an older store up to date when it is opened.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import sqlite3
+import uuid
+from contextlib import contextmanager
+from dataclasses import asdict, dataclass, field, fields, replace
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any, Iterator
+
+from .. import __version__
+from ..errors import InputError, StoreError
+
+DEFAULT_STORE_NAME = "records.sqlite"
+
+#: record metadata a user types in (all optional text except temperature)
+META_FIELDS = ("part", "drawing", "surface", "lot", "serial", "operator", "customer", "order_ref")
+
+
+def utc_now() -> str:
+    """Current UTC time as ISO 8601 with microseconds and a ``Z`` (sorts as text)."""
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def canonical_json(obj: Any) -> str:
+    """JSON with sorted keys and no spaces: the same object always gives the same bytes."""
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
+
+def sha256_text(text: str) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+@dataclass(frozen=True)
+class RecordMeta:
+    """What the operator tells about the part: none of it is measured."""
+
+    part: str | None = None
+    drawing: str | None = None
+    surface: str | None = None
+    lot: str | None = None
+    serial: str | None = None
+    operator: str | None = None
+    customer: str | None = None
+    order_ref: str | None = None
+    temperature_c: float | None = None
+    notes: str | None = None
+
+    def __post_init__(self):
+        for name in META_FIELDS + ("notes",):
+            v = getattr(self, name)
+            if v is not None and not isinstance(v, str):
+                raise InputError(f"{name} must be text, got {v!r}")
+            if v is not None and len(v) > 200 and name != "notes":
+                raise InputError(f"{name} is longer than 200 characters")
+        if self.temperature_c is not None:
+            t = float(self.temperature_c)
+            if not -40.0 <= t <= 80.0:
+                raise InputError(f"temperature {t} °C is outside -40 to 80 °C; give it in degrees Celsius")
+            object.__setattr__(self, "temperature_c", t)
+
+    def with_(self, **changes) -> "RecordMeta":
+        return replace(self, **{k: v for k, v in changes.items() if v is not None})
+
+
+@dataclass(frozen=True)
+class InspectionRecord:
+    """One stored inspection: who, what, when, with which bench, and the full result."""
+
+    id: int
+    uid: str
+    created_utc: str
+    status: str  # "ok" or "failed"
+    meta: RecordMeta
+    software_version: str
+    image_name: str | None
+    image_path: str | None
+    image_sha256: str | None
+    setup: dict | None
+    result: dict | None
+    verdict: str | None
+    radius_mm: float | None
+    radius_U_mm: float | None  # noqa: N815
+    power_fringes: float | None
+    power_U_fringes: float | None  # noqa: N815
+    failure_reason: str | None
+    supersedes: int | None
+    supersede_reason: str | None
+    content_sha256: str
+    superseded_by: int | None = None
+
+    @property
+    def current(self) -> bool:
+        return self.superseded_by is None
+
+    def content(self) -> dict:
+        """The fields the record checksum covers (everything but the database id and the chain link back)."""
+        return _content(self.uid, self.created_utc, self.status, self.meta, self.software_version,
+                        self.image_name, self.image_path, self.image_sha256, self.setup, self.result,
+                        self.failure_reason, self.supersedes, self.supersede_reason)
+
+    def intact(self) -> bool:
+        """True when the stored fields still give the checksum written with them."""
+        return sha256_text(canonical_json(self.content())) == self.content_sha256
+
+    def to_dict(self, *, with_result: bool = True) -> dict:
+        d = {
+            "id": self.id,
+            "uid": self.uid,
+            "created_utc": self.created_utc,
+            "status": self.status,
+            **asdict(self.meta),
+            "software_version": self.software_version,
+            "image_name": self.image_name,
+            "image_path": self.image_path,
+            "image_sha256": self.image_sha256,
+            "verdict": self.verdict,
+            "radius_mm": self.radius_mm,
+            "radius_U_mm": self.radius_U_mm,
+            "power_fringes": self.power_fringes,
+            "power_U_fringes": self.power_U_fringes,
+            "failure_reason": self.failure_reason,
+            "supersedes": self.supersedes,
+            "supersede_reason": self.supersede_reason,
+            "superseded_by": self.superseded_by,
+            "content_sha256": self.content_sha256,
+            "setup": self.setup,
+        }
+        if with_result:
+            d["result"] = self.result
+        return d
+
+
+@dataclass(frozen=True)
+class IssuedDocument:
+    """A certificate or lot report as issued: its number and the exact content it prints."""
+
+    id: int
+    number: str
+    kind: str  # "certificate" or "lot report"
+    record_id: int | None
+    lot: str | None
+    issued_utc: str
+    content: dict
+    content_sha256: str
+
+
+@dataclass(frozen=True)
+class RecordFilter:
+    """Which records to list; every field is optional and they combine with AND."""
+
+    lot: str | None = None
+    part: str | None = None
+    operator: str | None = None
+    verdict: str | None = None
+    status: str | None = None
+    serial: str | None = None
+    since: str | None = None  # ISO date or date-time, UTC, inclusive
+    until: str | None = None  # ISO date or date-time, UTC, inclusive (a bare date means the whole day)
+    image_sha256: str | None = None
+    include_superseded: bool = False
+    limit: int | None = None
+
+
+def _content(uid, created, status, meta, version, image_name, image_path, sha, setup, result, failure,
+             supersedes, reason) -> dict:
+    return {
+        "uid": uid,
+        "created_utc": created,
+        "status": status,
+        "meta": asdict(meta),
+        "software_version": version,
+        "image_name": image_name,
+        "image_path": image_path,
+        "image_sha256": sha,
+        "setup": setup,
+        "result": result,
+        "failure_reason": failure,
+        "supersedes": supersedes,
+        "supersede_reason": reason,
+    }
+
+
+# ----------------------------------------------------------------------------------------------- dialects
+
+
+class _Dialect:
+    name = "?"
+    identity = ""
+
+    def sql(self, text: str) -> str:
+        return text
+
+    def append_only(self, table: str) -> list[str]:
+        raise NotImplementedError
+
+    def lock_key(self, cur, key: str) -> None:
+        """Serialise writers that check-then-insert on the same key (a lot)."""
+
+
+class _SQLite(_Dialect):
+    name = "sqlite"
+    identity = "INTEGER PRIMARY KEY AUTOINCREMENT"
+
+    def append_only(self, table: str) -> list[str]:
+        return [
+            f"CREATE TRIGGER {table}_no_update BEFORE UPDATE ON {table} "
+            f"BEGIN SELECT RAISE(ABORT, 'append-only: {table} rows cannot be changed'); END",
+            f"CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table} "
+            f"BEGIN SELECT RAISE(ABORT, 'append-only: {table} rows cannot be deleted'); END",
+        ]
+
+
+class _Postgres(_Dialect):
+    name = "postgresql"
+    identity = "BIGINT GENERATED ALWAYS AS IDENTITY PRIMARY KEY"
+
+    def sql(self, text: str) -> str:
+        return text.replace("?", "%s")
+
+    def append_only(self, table: str) -> list[str]:
+        return [
+            "CREATE OR REPLACE FUNCTION ringgauge_refuse_change() RETURNS trigger LANGUAGE plpgsql AS $$ "
+            "BEGIN RAISE EXCEPTION 'append-only: % rows cannot be changed or deleted', TG_TABLE_NAME; END $$",
+            f"CREATE TRIGGER {table}_append_only BEFORE UPDATE OR DELETE ON {table} "
+            "FOR EACH ROW EXECUTE FUNCTION ringgauge_refuse_change()",
+            f"CREATE TRIGGER {table}_no_truncate BEFORE TRUNCATE ON {table} "
+            "FOR EACH STATEMENT EXECUTE FUNCTION ringgauge_refuse_change()",
+        ]
+
+    def lock_key(self, cur, key: str) -> None:
+        cur.execute("SELECT pg_advisory_xact_lock(hashtext(%s))", (key,))
+
+
+# --------------------------------------------------------------------------------------------- migrations
+
+
+def _m1(d: _Dialect) -> list[str]:
+    return [
+        f"""CREATE TABLE inspection (
+            id {d.identity},
+            uid TEXT NOT NULL UNIQUE,
+            created_utc TEXT NOT NULL,
+            status TEXT NOT NULL CHECK (status IN ('ok', 'failed')),
+            part TEXT, drawing TEXT, surface TEXT, lot TEXT, serial TEXT, operator TEXT,
+            customer TEXT, order_ref TEXT, temperature_c DOUBLE PRECISION, notes TEXT,
+            software_version TEXT NOT NULL,
+            image_name TEXT, image_path TEXT, image_sha256 TEXT,
+            source_key TEXT, wavelength_nm DOUBLE PRECISION, pixel_size_um DOUBLE PRECISION,
+            pixel_size_u_um DOUBLE PRECISION, pixel_calibration TEXT, medium_index DOUBLE PRECISION,
+            test_plate TEXT, tolerance TEXT,
+            setup_json TEXT, result_json TEXT,
+            verdict TEXT,
+            radius_mm DOUBLE PRECISION, radius_U_mm DOUBLE PRECISION,
+            power_fringes DOUBLE PRECISION, power_U_fringes DOUBLE PRECISION,
+            failure_reason TEXT,
+            supersedes BIGINT UNIQUE REFERENCES inspection(id),
+            supersede_reason TEXT,
+            content_sha256 TEXT NOT NULL,
+            CHECK ((supersedes IS NULL) = (supersede_reason IS NULL)),
+            CHECK ((status = 'failed') = (failure_reason IS NOT NULL))
+        )""",
+        "CREATE INDEX inspection_lot ON inspection (lot, image_sha256)",
+        "CREATE INDEX inspection_part ON inspection (part)",
+        "CREATE INDEX inspection_created ON inspection (created_utc)",
+        *d.append_only("inspection"),
+    ]
+
+
+def _m2(d: _Dialect) -> list[str]:
+    return [
+        f"""CREATE TABLE issued_document (
+            id {d.identity},
+            number TEXT NOT NULL UNIQUE,
+            kind TEXT NOT NULL CHECK (kind IN ('certificate', 'lot report')),
+            record_id BIGINT REFERENCES inspection(id),
+            lot TEXT,
+            issued_utc TEXT NOT NULL,
+            content_json TEXT NOT NULL,
+            content_sha256 TEXT NOT NULL
+        )""",
+        "CREATE INDEX issued_document_record ON issued_document (record_id)",
+        *d.append_only("issued_document"),
+    ]
+
+
+#: (version, what it does, statements for a dialect); append new ones, never edit old ones
+MIGRATIONS = (
+    (1, "inspection records (append-only, supersede chains)", _m1),
+    (2, "issued certificates and lot reports (append-only)", _m2),
+)
+SCHEMA_VERSION = MIGRATIONS[-1][0]
+
+
+# ----------------------------------------------------------------------------------------------- the store
+
+
+def default_store_path() -> Path:
+    from ..settings import path
+
+    return path(DEFAULT_STORE_NAME)
+
+
+def is_server_url(target: str | os.PathLike | None) -> bool:
+    return isinstance(target, str) and target.split(":", 1)[0].lower() in ("postgresql", "postgres")
+
+
+def describe_target(target: str | os.PathLike | None) -> str:
+    """The store's location for messages, with any password hidden."""
+    if target is None:
+        return str(default_store_path())
+    if is_server_url(target):
+        import re
+
+        return re.sub(r"://([^:/@]+):[^@]*@", r"://\1:***@", str(target))
+    return str(target)
+
+
+def open_store(target: str | os.PathLike | None = None, *, migrate_to: int | None = None) -> "Store":
+    """Open (and create or upgrade) the store at ``target``.
+
+    ``None`` is the default SQLite file in the user's ringgauge folder; a ``postgresql://`` URL is a shared
+    server; anything else is a SQLite file path. ``migrate_to`` stops the upgrade at a schema version (tests).
+    """
+    if is_server_url(target):
+        try:
+            import psycopg
+        except ImportError:  # pragma: no cover - psycopg is a declared dependency
+            raise StoreError("PostgreSQL support needs the 'psycopg' package; reinstall ringgauge") from None
+        try:
+            conn = psycopg.connect(str(target), autocommit=True, connect_timeout=10)
+        except psycopg.Error as exc:
+            first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+            raise StoreError(f"cannot reach the records server {describe_target(target)}: {first}") from None
+        store = Store(conn, _Postgres(), describe_target(target))
+    else:
+        p = Path(target) if target is not None else default_store_path()
+        if p.is_dir():
+            raise StoreError(f"{p} is a folder; give the records store as a file, e.g. {p / DEFAULT_STORE_NAME}")
+        if not p.parent.exists():
+            raise StoreError(f"cannot create the records store {p}: folder {p.parent} does not exist")
+        try:
+            conn = sqlite3.connect(str(p), timeout=30.0, isolation_level=None)
+            conn.execute("PRAGMA journal_mode=WAL")
+            conn.execute("PRAGMA synchronous=FULL")
+            conn.execute("PRAGMA foreign_keys=ON")
+        except sqlite3.DatabaseError as exc:
+            raise StoreError(f"{p} is not a ringgauge records store ({exc})") from None
+        store = Store(conn, _SQLite(), str(p))
+    try:
+        store._migrate(migrate_to)
+    except BaseException:
+        store.close()
+        raise
+    return store
+
+
+class Store:
+    """An open inspection store. Use :func:`open_store`; close it (or use ``with``) when done."""
+
+    def __init__(self, conn, dialect: _Dialect, where: str):
+        self._conn = conn
+        self._d = dialect
+        self.where = where
+
+    # -- plumbing
+    @property
+    def dialect(self) -> str:
+        return self._d.name
+
+    def close(self) -> None:
+        try:
+            self._conn.close()
+        except Exception:  # noqa: BLE001 - closing twice or after a server loss is harmless
+            pass
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def _errors(self):
+        if self._d.name == "sqlite":
+            return (sqlite3.Error,)
+        import psycopg
+
+        return (psycopg.Error,)
+
+    @contextmanager
+    def _tx(self) -> Iterator[Any]:
+        """One transaction: everything inside commits together or not at all."""
+        try:
+            if self._d.name == "sqlite":
+                cur = self._conn.cursor()
+                cur.execute("BEGIN IMMEDIATE")
+                try:
+                    yield cur
+                except BaseException:
+                    self._conn.rollback()
+                    raise
+                self._conn.commit()
+            else:
+                with self._conn.transaction():
+                    with self._conn.cursor() as cur:
+                        yield cur
+        except self._errors() as exc:
+            msg = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+            raise StoreError(f"records store {self.where}: {msg}") from None
+
+    def _q(self, cur, sql: str, params=()):
+        cur.execute(self._d.sql(sql), tuple(params))
+        return cur
+
+    def _read(self, sql: str, params=()) -> list[tuple]:
+        try:
+            cur = self._conn.cursor()
+            try:
+                cur.execute(self._d.sql(sql), tuple(params))
+                return list(cur.fetchall())
+            finally:
+                cur.close()
+        except self._errors() as exc:
+            msg = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+            raise StoreError(f"records store {self.where}: {msg}") from None
+
+    # -- schema
+    def schema_version(self) -> int:
+        rows = self._read("SELECT MAX(version) FROM schema_migration")
+        return int(rows[0][0] or 0)
+
+    def _migrate(self, upto: int | None) -> None:
+        target = SCHEMA_VERSION if upto is None else upto
+        with self._tx() as cur:
+            self._d.lock_key(cur, "ringgauge schema")
+            self._q(cur, "CREATE TABLE IF NOT EXISTS schema_migration (version INTEGER PRIMARY KEY, "
+                         "description TEXT NOT NULL, applied_utc TEXT NOT NULL)")
+            have = self._q(cur, "SELECT MAX(version) FROM schema_migration").fetchone()[0] or 0
+        if have > SCHEMA_VERSION:
+            raise StoreError(
+                f"records store {self.where} has schema version {have}, newer than this ringgauge "
+                f"({__version__}, schema {SCHEMA_VERSION}); upgrade ringgauge"
+            )
+        for version, what, make in MIGRATIONS:
+            if version > target:
+                break
+            with self._tx() as cur:
+                self._d.lock_key(cur, "ringgauge schema")
+                done = self._q(cur, "SELECT 1 FROM schema_migration WHERE version = ?", (version,)).fetchone()
+                if done:
+                    continue
+                for stmt in make(self._d):
+                    cur.execute(stmt)
+                self._q(cur, "INSERT INTO schema_migration (version, description, applied_utc) VALUES (?, ?, ?)",
+                        (version, what, utc_now()))
+
+    # -- writing
+    def add(
+        self,
+        meta: RecordMeta,
+        result: dict | None,
+        *,
+        image_path: str | None = None,
+        image_sha256: str | None = None,
+        failure: str | None = None,
+        setup: dict | None = None,
+        once_per_lot: bool = False,
+    ) -> InspectionRecord:
+        """Append one record: a result (``failure`` None) or a failed analysis with its reason.
+
+        ``once_per_lot``: refuse (return the existing current record instead) when the lot already holds a
+        current record of the same image checksum — the batch runner's guard against doubles.
+        """
+        return self._insert(meta, result, image_path=image_path, image_sha256=image_sha256, failure=failure,
+                            setup=setup, once_per_lot=once_per_lot)
+
+    def supersede(
+        self,
+        record_id: int,
+        reason: str,
+        *,
+        meta_changes: dict | None = None,
+        result: dict | None = None,
+        failure: str | None = None,
+        image_path: str | None = None,
+        image_sha256: str | None = None,
+    ) -> InspectionRecord:
+        """Append a correction of ``record_id``: a copy with the given changes, linked back, with a reason.
+
+        Only the current end of a chain can be superseded; the store refuses a second correction of the same
+        record (it names the record that already replaced it).
+        """
+        reason = (reason or "").strip()
+        if not reason:
+            raise InputError("a correction needs a reason (--reason \"...\")")
+        old = self.get(record_id)
+        if old.superseded_by is not None:
+            raise StoreError(
+                f"record {record_id} was already superseded by record {old.superseded_by}; correct that one"
+            )
+        unknown = set(meta_changes or {}) - {f.name for f in fields(RecordMeta)}
+        if unknown:
+            raise InputError(f"cannot change {', '.join(sorted(unknown))} in a correction")
+        meta = replace(old.meta, **(meta_changes or {}))
+        if result is None and failure is None:
+            result, failure = old.result, old.failure_reason
+        return self._insert(
+            meta, result, image_path=image_path or old.image_path,
+            image_sha256=image_sha256 or (result or {}).get("image", {}).get("sha256") or old.image_sha256,
+            failure=failure, setup=None if result else old.setup, supersedes=old.id, reason=reason,
+        )
+
+    def _insert(self, meta, result, *, image_path, image_sha256, failure, setup, once_per_lot=False,
+                supersedes=None, reason=None) -> InspectionRecord:
+        if result is None and not failure:
+            raise InputError("a record needs either a result or the reason the analysis failed")
+        if result is not None and failure:
+            raise InputError("a record has either a result or a failure reason, not both")
+        if result is not None:
+            try:
+                result = json.loads(canonical_json(result))  # plain JSON types only; NaN refused
+            except (TypeError, ValueError) as exc:
+                raise InputError(f"the result cannot be stored as JSON ({exc})") from None
+            img = result.get("image") or {}
+            image_sha256 = image_sha256 or img.get("sha256")
+            image_path = image_path or img.get("path")
+            setup = result.get("setup") or setup
+        if image_sha256 is not None and (len(image_sha256) != 64 or any(c not in "0123456789abcdef" for c in image_sha256)):
+            raise InputError(f"image checksum must be 64 hex digits (SHA-256), got {image_sha256!r}")
+        status = "failed" if failure else "ok"
+        uid = str(uuid.uuid4())
+        created = utc_now()
+        image_name = os.path.basename(image_path) if image_path else None
+        content = _content(uid, created, status, meta, __version__, image_name, image_path, image_sha256,
+                           setup, result, failure, supersedes, reason)
+        checksum = sha256_text(canonical_json(content))
+        cols = _columns(result, setup)
+        row = {
+            "uid": uid, "created_utc": created, "status": status, **asdict(meta),
+            "software_version": __version__, "image_name": image_name, "image_path": image_path,
+            "image_sha256": image_sha256, **cols,
+            "setup_json": None if setup is None else canonical_json(setup),
+            "result_json": None if result is None else canonical_json(result),
+            "failure_reason": failure, "supersedes": supersedes, "supersede_reason": reason,
+            "content_sha256": checksum,
+        }
+        names = list(row)
+        sql = (f"INSERT INTO inspection ({', '.join(names)}) VALUES ({', '.join('?' for _ in names)}) "
+               "RETURNING id")
+        existing = None
+        with self._tx() as cur:
+            if once_per_lot and meta.lot is not None and image_sha256 is not None:
+                self._d.lock_key(cur, f"lot {meta.lot}")
+                hit = self._q(cur, f"SELECT id FROM inspection i WHERE lot = ? AND image_sha256 = ? AND {_CURRENT} "
+                                   "ORDER BY id DESC LIMIT 1", (meta.lot, image_sha256)).fetchone()
+                if hit:
+                    existing = int(hit[0])
+            if existing is None:
+                new_id = int(self._q(cur, sql, [row[n] for n in names]).fetchone()[0])
+        if existing is not None:
+            return self.get(existing)
+        return self.get(new_id)
+
+    # -- reading
+    def get(self, record_id: int) -> InspectionRecord:
+        try:
+            rid = int(record_id)
+        except (TypeError, ValueError):
+            raise InputError(f"record id must be a whole number, got {record_id!r}") from None
+        rows = self._read(f"SELECT {_SELECT} FROM inspection i WHERE i.id = ?", (rid,))
+        if not rows:
+            raise StoreError(f"no record {rid} in {self.where}; list them with 'ringgauge records list'")
+        return _record(rows[0])
+
+    def history(self, record_id: int) -> list[InspectionRecord]:
+        """The whole correction chain that ``record_id`` belongs to, oldest first."""
+        rec = self.get(record_id)
+        chain = [rec]
+        while chain[0].supersedes is not None:
+            chain.insert(0, self.get(chain[0].supersedes))
+        while chain[-1].superseded_by is not None:
+            chain.append(self.get(chain[-1].superseded_by))
+        return chain
+
+    def find(self, flt: RecordFilter = RecordFilter()) -> list[InspectionRecord]:
+        where, params = [], []
+        for col in ("lot", "part", "operator", "verdict", "status", "serial", "image_sha256"):
+            v = getattr(flt, col)
+            if v is not None:
+                where.append(f"i.{col} = ?")
+                params.append(v)
+        if flt.since:
+            where.append("i.created_utc >= ?")
+            params.append(_iso_bound(flt.since, end=False))
+        if flt.until:
+            where.append("i.created_utc <= ?")
+            params.append(_iso_bound(flt.until, end=True))
+        if not flt.include_superseded:
+            where.append(_CURRENT)
+        sql = f"SELECT {_SELECT} FROM inspection i"
+        if where:
+            sql += " WHERE " + " AND ".join(where)
+        sql += " ORDER BY i.id"
+        if flt.limit:
+            sql += f" LIMIT {int(flt.limit)}"
+        return [_record(r) for r in self._read(sql, params)]
+
+    def done_in_lot(self, lot: str) -> dict[str, InspectionRecord]:
+        """Current records of a lot by image checksum (what a resumed batch must not repeat)."""
+        out: dict[str, InspectionRecord] = {}
+        for r in self.find(RecordFilter(lot=lot)):
+            if r.image_sha256:
+                out[r.image_sha256] = r
+        return out
+
+    def lots(self) -> list[tuple[str, int]]:
+        rows = self._read(f"SELECT lot, COUNT(*) FROM inspection i WHERE lot IS NOT NULL AND {_CURRENT} "
+                          "GROUP BY lot ORDER BY lot")
+        return [(r[0], int(r[1])) for r in rows]
+
+    # -- issued documents
+    def issue(self, kind: str, content: dict, *, record_id: int | None = None, lot: str | None = None,
+              prefix: str = "RG") -> IssuedDocument:
+        """Give a document its unique number and keep exactly what it prints (append-only)."""
+        if kind not in ("certificate", "lot report"):
+            raise ValueError(f"unknown document kind {kind!r}")
+        issued = utc_now()
+        with self._tx() as cur:
+            # Numbers count up under a lock (SQLite: the write transaction; PostgreSQL: an advisory lock), so
+            # every bench sharing a server gets its own; the UNIQUE constraint is the last guard.
+            self._d.lock_key(cur, "issued_document")
+            n = int(self._q(cur, "SELECT COUNT(*) FROM issued_document").fetchone()[0]) + 1
+            number = _document_number(prefix, kind, issued, n)
+            body = {**content, "number": number, "issued_utc": issued}
+            text = canonical_json(body)
+            self._q(
+                cur, "INSERT INTO issued_document (number, kind, record_id, lot, issued_utc, content_json, "
+                     "content_sha256) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                (number, kind, record_id, lot, issued, text, sha256_text(text)),
+            )
+        return self.document(number)
+
+    def document(self, number: str) -> IssuedDocument:
+        rows = self._read("SELECT id, number, kind, record_id, lot, issued_utc, content_json, content_sha256 "
+                          "FROM issued_document WHERE number = ?", (number,))
+        if not rows:
+            raise StoreError(f"no certificate or lot report numbered {number} in {self.where}")
+        r = rows[0]
+        return IssuedDocument(int(r[0]), r[1], r[2], r[3], r[4], r[5], json.loads(r[6]), r[7])
+
+    def documents(self, *, record_id: int | None = None, lot: str | None = None) -> list[IssuedDocument]:
+        where, params = [], []
+        if record_id is not None:
+            where.append("record_id = ?")
+            params.append(int(record_id))
+        if lot is not None:
+            where.append("lot = ?")
+            params.append(lot)
+        sql = "SELECT number FROM issued_document"
+        if where:
+            sql += " WHERE " + " AND ".join(where)
+        return [self.document(r[0]) for r in self._read(sql + " ORDER BY id", params)]
+
+
+def _document_number(prefix: str, kind: str, issued_utc: str, n: int) -> str:
+    tag = "C" if kind == "certificate" else "L"
+    return f"{prefix}-{tag}{issued_utc[:4]}-{n:06d}"
+
+
+_CURRENT = "NOT EXISTS (SELECT 1 FROM inspection s WHERE s.supersedes = i.id)"
+
+_SELECT_COLS = ("id", "uid", "created_utc", "status", *META_FIELDS, "temperature_c", "notes", "software_version",
+                "image_name", "image_path", "image_sha256", "setup_json", "result_json", "verdict", "radius_mm",
+                "radius_U_mm", "power_fringes", "power_U_fringes", "failure_reason", "supersedes",
+                "supersede_reason", "content_sha256")
+_SELECT = ", ".join(f"i.{c}" for c in _SELECT_COLS) + \
+    ", (SELECT s.id FROM inspection s WHERE s.supersedes = i.id) AS superseded_by"
+
+
+def _record(row) -> InspectionRecord:
+    d = dict(zip(_SELECT_COLS + ("superseded_by",), row))
+    meta = RecordMeta(**{k: d[k] for k in META_FIELDS}, temperature_c=d["temperature_c"], notes=d["notes"])
+    return InspectionRecord(
+        id=int(d["id"]), uid=d["uid"], created_utc=d["created_utc"], status=d["status"], meta=meta,
+        software_version=d["software_version"], image_name=d["image_name"], image_path=d["image_path"],
+        image_sha256=d["image_sha256"],
+        setup=None if d["setup_json"] is None else json.loads(d["setup_json"]),
+        result=None if d["result_json"] is None else json.loads(d["result_json"]),
+        verdict=d["verdict"], radius_mm=d["radius_mm"], radius_U_mm=d["radius_U_mm"],
+        power_fringes=d["power_fringes"], power_U_fringes=d["power_U_fringes"],
+        failure_reason=d["failure_reason"],
+        supersedes=None if d["supersedes"] is None else int(d["supersedes"]),
+        supersede_reason=d["supersede_reason"], content_sha256=d["content_sha256"],
+        superseded_by=None if d["superseded_by"] is None else int(d["superseded_by"]),
+    )
+
+
+def _num(x) -> float | None:
+    try:
+        return None if x is None else float(x)
+    except (TypeError, ValueError):
+        return None
+
+
+def _columns(result: dict | None, setup: dict | None) -> dict:
+    """Searchable copies of a few result fields (the JSON stays the record's full truth)."""
+    s = setup or {}
+    src = s.get("source") or {}
+    pix = s.get("pixel_size_um")
+    pixu = s.get("pixel_size_u_um")
+    plate = s.get("test_plate")
+    calib = None
+    if s.get("bench"):
+        calib = s["bench"] + (f" (calibrated {s['bench_calibrated']})" if s.get("bench_calibrated") else "")
+    out = {
+        "source_key": src.get("key"),
+        "wavelength_nm": _num(s.get("wavelength_nm")),
+        "pixel_size_um": _num(pix[0] if isinstance(pix, list) else pix),
+        "pixel_size_u_um": _num(pixu[0] if isinstance(pixu, list) else pixu),
+        "pixel_calibration": calib,
+        "medium_index": _num(s.get("medium_index")),
+        "test_plate": None if plate is None else canonical_json(plate),
+        "tolerance": s.get("tolerance"),
+        "verdict": None, "radius_mm": None, "radius_U_mm": None, "power_fringes": None, "power_U_fringes": None,
+    }
+    if result:
+        v = result.get("verdict")
+        out["verdict"] = (v or {}).get("overall") if isinstance(v, dict) else v
+        out["radius_mm"] = _num(result.get("radius_mm"))
+        out["radius_U_mm"] = _num(result.get("radius_U_mm"))
+        form = result.get("form") or {}
+        out["power_fringes"] = _num(form.get("power_fringes"))
+        pu = _num(form.get("power_u_fringes"))
+        k = _num(result.get("k")) or 2.0
+        out["power_U_fringes"] = _num(form.get("power_U_fringes")) or (None if pu is None else k * pu)
+    return out
+
+
+def _iso_bound(text: str, *, end: bool) -> str:
+    """A user's date or date-time (UTC) as a bound on ``created_utc``."""
+    t = text.strip()
+    try:
+        if len(t) == 10:
+            datetime.strptime(t, "%Y-%m-%d")
+            return t + ("T23:59:59.999999Z" if end else "T00:00:00.000000Z")
+        dt = datetime.fromisoformat(t.replace("Z", "+00:00"))
+    except ValueError:
+        raise InputError(f"date {text!r} is not YYYY-MM-DD or an ISO date-time") from None
+    if dt.tzinfo is not None:
+        dt = dt.astimezone(timezone.utc).replace(tzinfo=None)
+    return dt.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
