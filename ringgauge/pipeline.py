@@ -1,0 +1,280 @@
+"""analyse(frames, setup) -> AnalysisResult: the one pipeline behind the CLI, the window and batch runs.
+
+Pure computation: no Qt, no database, no printing. Long steps report through ``progress(fraction, message)``.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable, Sequence
+
+import numpy as np
+from threadpoolctl import threadpool_limits
+
+from .bench_setup import BenchSetup
+from .errors import AnalysisError, InputError
+from .fit.fullfield import fit_full_field
+from .fit.orders import fit_orders, locate_extrema
+from .imaging import Frame, load_frame
+from .result import AnalysisResult, ImageInfo
+from .rings.centre import gradient_centre
+from .rings.profile import dominant_period, s_profile
+from .uncertainty import BudgetRow, make_budget
+
+Progress = Callable[[float, str], None]
+
+#: finest fringe period (pixels) still used: below it fringes are under-sampled and blur wipes them out
+MIN_PERIOD_PX = 3.0
+#: fewest rings for a radius
+MIN_RINGS = 4
+
+
+def _noop(fraction: float, message: str) -> None:  # pragma: no cover - trivial
+    pass
+
+
+def image_info(frame: Frame) -> ImageInfo:
+    h, w = frame.shape
+    return ImageInfo(frame.path, frame.sha256, w, h, frame.bit_depth, frame.channel, frame.saturated_fraction)
+
+
+def wants_form(setup: BenchSetup, n_frames: int) -> bool:
+    """Surface form against a test plate is evaluated when any form option is given or several frames are."""
+    return bool(
+        n_frames > 1
+        or setup.test_diameter_mm is not None
+        or setup.tolerance
+        or setup.test_plate
+        or setup.extras.get("mode") == "form"
+    ) and setup.extras.get("mode") != "radius"
+
+
+def analyse(frames: Frame | Sequence[Frame], setup: BenchSetup, *, progress: Progress | None = None) -> AnalysisResult:
+    """Analyse one frame (or a frame set) taken with ``setup``.
+
+    A single frame without form options is read as Newton's rings of a lens on an optical flat and gives the
+    radius of curvature with its uncertainty budget. With form options (test diameter, tolerance, test plate) or
+    several frames, the surface form against a test plate is evaluated as well.
+
+    Raises
+    ------
+    AnalysisError
+        When no trustworthy measurement can be made; the message says why and what to try.
+    """
+    # Small dense solves run fastest single-threaded; several BLAS threads fighting other processes (batch
+    # workers, the window) slow them a hundredfold on a 2-core machine.
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _analyse(frames, setup, progress or _noop)
+
+
+def _analyse(frames, setup: BenchSetup, progress: Progress) -> AnalysisResult:
+    if isinstance(frames, Frame):
+        frames = [frames]
+    frames = list(frames)
+    if not frames:
+        raise InputError("no image given")
+    t0 = time.perf_counter()
+    if wants_form(setup, len(frames)):
+        from .form.evaluate import evaluate_form  # form evaluation is its own sub-package
+
+        form = evaluate_form(frames, setup, progress=progress)
+        fd = form.to_dict()
+        return AnalysisResult(
+            image=image_info(frames[0]), setup=setup, centre_px=None, centre_u_px=None, radius_mm=None,
+            radius_u_mm=None, k=2.0, budget=None, fit=None, form=form, verdict=fd.get("verdict"),
+            warnings=tuple(fd.get("warnings", ())), elapsed_s=time.perf_counter() - t0,
+            frames=tuple(image_info(f) for f in frames),
+        )
+    res = analyse_rings(frames[0], setup, progress=progress)
+    return AnalysisResult(**{**res.__dict__, "elapsed_s": time.perf_counter() - t0})
+
+
+def analyse_files(paths: Sequence[str], setup: BenchSetup, *, progress: Progress | None = None) -> AnalysisResult:
+    """Load the image files and analyse them as one measurement."""
+    return analyse([load_frame(p) for p in paths], setup, progress=progress)
+
+
+def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None = None, rng=0) -> AnalysisResult:
+    """Radius of curvature from Newton's rings of a lens resting on an optical flat."""
+    progress = progress or _noop
+    warnings: list[str] = list(frame.notes)
+    data = frame.data
+    h, w = data.shape
+    px_um, py_um = setup.pixel_size_xy_um
+    aspect = py_um / px_um
+    px_mm = px_um * 1e-3
+    lam_mm = setup.wavelength_nm * 1e-6
+    n = setup.medium_index
+    lam_px_over_n = lam_mm / px_mm / n
+
+    valid = data < (1.0 - 0.5 / ((1 << frame.bit_depth) - 1))
+    if frame.saturated_fraction > 0.001:
+        warnings.append(
+            f"{100 * frame.saturated_fraction:.1f} % of pixels are saturated (left out); reduce exposure or lamp power"
+        )
+
+    progress(0.05, "finding the ring centre")
+    c0 = gradient_centre(data, aspect=aspect)
+    corners = [(x, y) for x in (0, w - 1) for y in (0, h - 1)]
+    rfar = max(math.hypot(x - c0.x, aspect * (y - c0.y)) for x, y in corners)
+    rnear = 0.0
+    if not (0 <= c0.x <= w - 1 and 0 <= c0.y <= h - 1):
+        rnear = math.hypot(min(max(c0.x, 0), w - 1) - c0.x, aspect * (min(max(c0.y, 0), h - 1) - c0.y))
+
+    progress(0.15, "measuring the fringe period")
+    prof0 = s_profile(data, (c0.x, c0.y), aspect=aspect, s_max=rfar**2, ds=max(rfar / 2.0, 1.0), mask=valid)
+    period_s, snr = dominant_period(prof0, min_period=None)
+    if not math.isfinite(period_s) or snr < 12.0:
+        raise AnalysisError(
+            "no ring system found (no regular fringe spacing around any centre); check that the image shows "
+            "Newton's rings in focus, with the lamp on"
+        )
+    # under-sampling limit: local period in r is P_s / (2 r)
+    r_lim = min(rfar, period_s / (2.0 * MIN_PERIOD_PX))
+    n_fringes = (r_lim**2 - rnear**2) / period_s
+    if n_fringes < MIN_RINGS - 0.5:
+        raise AnalysisError(
+            f"only about {max(n_fringes, 0):.1f} rings are resolved; need at least {MIN_RINGS}: use a longer radius "
+            "of curvature test set-up, a finer pixel scale, or the test-plate form mode"
+        )
+    if r_lim < rfar * 0.98:
+        warnings.append(
+            f"fringes beyond r = {r_lim * px_mm:.3f} mm are under-sampled (period under {MIN_PERIOD_PX:g} px) "
+            "and were excluded"
+        )
+
+    progress(0.3, "fitting the ring model to all pixels")
+    try:
+        ff = fit_full_field(
+            data, (c0.x, c0.y), period_s, aspect=aspect, lam_px_over_n=lam_px_over_n, r_max=r_lim, valid=valid,
+            rng=rng,
+        )
+    except (ValueError, np.linalg.LinAlgError) as exc:
+        raise AnalysisError(f"the ring model could not be fitted ({exc}); check focus and exposure") from None
+    if not math.isfinite(ff.q) or ff.q <= 0:
+        raise AnalysisError("the ring model fit did not converge; check that the image shows Newton's rings")
+    contrast = ff.modulation / max(ff.background, 1e-9)
+    if ff.modulation < 3 * ff.sigma / math.sqrt(max(ff.npix, 1)) * 10 or contrast < 0.02:
+        raise AnalysisError(
+            "no ring system found: the fitted rings have no real contrast; check the lamp, focus and exposure"
+        )
+    if contrast < 0.15:
+        warnings.append(f"low fringe contrast ({contrast:.2f}); clean the surfaces and check the lamp and focus")
+    period_s = ff.period_s
+    r_lim = min(rfar, period_s / (2.0 * MIN_PERIOD_PX))
+    centre = (ff.x0, ff.y0)
+    cu = np.sqrt(np.clip(np.diag(ff.cov)[:2], 0, None))
+    if not (-0.5 <= ff.x0 <= w - 0.5 and -0.5 <= ff.y0 <= h - 0.5):
+        warnings.append(
+            f"the ring centre ({ff.x0:.1f}, {ff.y0:.1f}) px lies outside the frame; the result rests on arcs only"
+        )
+
+    progress(0.7, "locating rings and fitting r² against order")
+    ds = period_s / 24.0
+    prof = s_profile(data, centre, aspect=aspect, s_max=r_lim**2, ds=ds, mask=valid)
+    s_min = max(rnear**2, 0.0)
+    extrema = locate_extrema(prof, period_s, ff.phase0, s_min=s_min, s_max=r_lim**2)
+    R_ff = 2 * math.pi / (lam_px_over_n * ff.q) * px_mm
+    fit = fit_orders(
+        extrema, kind=setup.fringe_kind, px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
+    )
+    used = [r for r in fit.rings if r.used]
+    if not fit.success or len(used) < MIN_RINGS - 1:
+        raise AnalysisError(
+            f"too few {setup.fringe_kind} rings could be located ({len(used)}); check focus and contrast"
+        )
+    if len(used) < 6:
+        warnings.append(f"only {len(used)} rings used: the radius rests on few fringes")
+    R = n * fit.slope_mm2 / lam_mm
+
+    progress(0.9, "uncertainty budget")
+    budget = radius_budget(R, fit, setup, R_ff)
+    if setup.pixel_size_u_um == 0:
+        warnings.append(
+            "pixel size given without uncertainty: the budget treats it as exact, yet it enters R squared; give "
+            "--pixel-size-u or use a calibrated bench profile"
+        )
+    prof_dict = _profile_for_display(prof, px_mm)
+    fullfield = {
+        "method": "joint least-squares fit of the ring model to all pixels (variable projection)",
+        "radius_mm": R_ff,
+        "centre_px": [ff.x0, ff.y0],
+        "centre_u_px": [float(cu[0]), float(cu[1])],
+        "period_px2_per_fringe": period_s,
+        "fringe_contrast": contrast,
+        "modulation": ff.modulation,
+        "background": ff.background,
+        "residual_rms": ff.sigma,
+        "pixels_used": ff.npix,
+        "r_max_px": ff.r_max,
+        "r_max_mm": ff.r_max * px_mm,
+        "coarse_centre_px": [c0.x, c0.y],
+        **prof_dict,
+        "extrema_r_px": [float(math.sqrt(e.s)) for e in extrema],
+        "extrema_kind": [e.kind for e in extrema],
+    }
+    progress(1.0, "done")
+    return AnalysisResult(
+        image=image_info(frame), setup=setup, centre_px=(float(centre[0]), float(centre[1])),
+        centre_u_px=(float(cu[0]), float(cu[1])), radius_mm=float(R), radius_u_mm=float(budget.u_c),
+        k=float(budget.k), budget=budget, fit=fit, fullfield=fullfield, warnings=tuple(warnings),
+    )
+
+
+def _profile_for_display(prof, px_mm: float, max_points: int = 1500) -> dict:
+    good = prof.count > 0
+    s = prof.s[good]
+    i = prof.mean[good]
+    step = max(1, len(s) // max_points)
+    return {
+        "profile_r_px": [float(v) for v in np.sqrt(s[::step])],
+        "profile_i": [float(v) for v in i[::step]],
+    }
+
+
+def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float):
+    """GUM budget for R = n * slope / lambda, slope of r^2 (mm^2) against fringe order."""
+    lam = setup.wavelength_nm
+    n = setup.medium_index
+    (px, py), (ux, uy) = setup.pixel_size_xy_um, setup.pixel_size_xy_u_um
+    rows = [
+        BudgetRow(
+            "slope of r² vs order (least squares)", fit.slope_mm2, "mm²/fringe", fit.slope_u_mm2, "normal (Type A)",
+            1.0, n / (lam * 1e-6), "1/mm", abs(n / (lam * 1e-6)) * fit.slope_u_mm2, dof=max(1, fit.ndata - 2),
+            note=f"{fit.ndata} rings, reduced chi-square {fit.redchi:.2f}",
+        ),
+    ]
+    if setup.pixel_size_y_um is None:
+        rows.append(
+            BudgetRow(
+                "pixel scale (enters squared)", px, "µm/px", ux, "normal (calibration)", 1.0, 2 * R / px, "mm/(µm/px)",
+                2 * R / px * ux, note="from the bench calibration" if setup.bench else "as entered",
+            )
+        )
+    else:
+        rows += [
+            BudgetRow("pixel scale x", px, "µm/px", ux, "normal (calibration)", 1.0, R / px, "mm/(µm/px)", R / px * ux),
+            BudgetRow("pixel scale y", py, "µm/px", uy, "normal (calibration)", 1.0, R / py, "mm/(µm/px)", R / py * uy),
+        ]
+    rows.append(
+        BudgetRow(
+            "wavelength", lam, "nm", setup.source.wavelength_u_nm, "normal (source table)", 1.0, -R / lam,
+            "mm/nm", R / lam * setup.source.wavelength_u_nm, note=setup.source.reference or setup.source.name,
+        )
+    )
+    rows.append(
+        BudgetRow(
+            "gap medium index", n, "", setup.medium_index_u, "normal (as entered)", 1.0, R / n, "mm",
+            R / n * setup.medium_index_u,
+        )
+    )
+    half = abs(R - R_ff)
+    rows.append(
+        BudgetRow(
+            "method agreement (ring fit vs full-field fit)", R_ff, "mm", half / math.sqrt(3.0), "rectangular",
+            math.sqrt(3.0), 1.0, "", half / math.sqrt(3.0),
+            note="half-width = difference between the two estimates of R from the same image",
+        )
+    )
+    return make_budget("radius of curvature R", "mm", R, rows)
