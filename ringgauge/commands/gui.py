@@ -1,0 +1,46 @@
+"""``ringgauge gui [PATH ...]``: open the bench window, optionally with images, a watched camera folder, a lot
+folder or the training page."""
+
+from __future__ import annotations
+
+import os
+
+from ..errors import InputError
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "gui",
+        help="open the bench window",
+        description="Open the bench window. PATH may be one image, several frames of one measurement, or a "
+                    "folder of frames. Settings persist between runs (under RINGGAUGE_HOME when set).",
+    )
+    p.add_argument("paths", nargs="*", metavar="PATH", help="image file(s) or a folder of frames to open")
+    p.add_argument("--watch", metavar="FOLDER", help="analyse each new image the bench camera saves in FOLDER")
+    p.add_argument("--lot", metavar="FOLDER", help="open the lot review page on the images in FOLDER and analyse them")
+    p.add_argument("--training", action="store_true", help="start on the training page")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    for p in args.paths:
+        if not os.path.exists(p):
+            raise InputError(f"{p}: no such file or folder")
+    for opt in ("watch", "lot"):
+        folder = getattr(args, opt)
+        if folder and not os.path.isdir(folder):
+            raise InputError(f"--{opt} {folder}: no such folder")
+    if (os.name == "posix" and not os.environ.get("DISPLAY") and not os.environ.get("WAYLAND_DISPLAY")
+            and not os.environ.get("QT_QPA_PLATFORM") and not _is_macos()):
+        raise InputError("no display to open the window on; run it on a desktop, or under xvfb-run")
+    try:
+        from ..gui.app import run as run_window
+    except ImportError as exc:
+        raise InputError(f"the window cannot start: PySide6 is not installed or broken ({exc})") from None
+    return run_window(args.paths, watch=args.watch, lot=args.lot, training=args.training)
+
+
+def _is_macos() -> bool:
+    import sys
+
+    return sys.platform == "darwin"

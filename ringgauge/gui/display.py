@@ -1,0 +1,439 @@
+"""What the window draws, worked out in plain Python from a result's ``to_dict()`` (no Qt, no computing of
+measurements: only the geometry, text and arrays the widgets paint).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ..uncertainty import format_value, round_uncertainty
+
+
+# -- the photograph -------------------------------------------------------------------------------------------
+def image_to_u8(data: np.ndarray, *, stretch: bool = True) -> np.ndarray:
+    """Intensity in [0, 1] (or any range) to 8-bit grey for display; ``stretch`` maps the 0.5-99.5 %
+    percentiles to black and white so dim fringes are visible."""
+    a = np.asarray(data, dtype=np.float32)
+    if a.ndim != 2 or a.size == 0:
+        raise ValueError("expected a non-empty 2-D image")
+    if stretch:
+        sub = a[:: max(1, a.shape[0] // 512), :: max(1, a.shape[1] // 512)]
+        lo, hi = np.percentile(sub, [0.5, 99.5])
+    else:
+        lo, hi = 0.0, 1.0
+    if not hi > lo:
+        lo, hi = float(a.min()), float(a.max()) + 1e-6
+    out = np.clip((a - lo) * (255.0 / (hi - lo)), 0, 255)
+    return np.ascontiguousarray(out.astype(np.uint8))
+
+
+def signed_to_rgb(values: np.ndarray, *, limit: float | None = None) -> np.ndarray:
+    """A signed array (e.g. fit minus image) as an RGB image: blue below zero, white at zero, orange above.
+
+    Blue/orange is a diverging pair that stays distinct for the common colour-vision deficiencies
+    (Okabe & Ito, "Color Universal Design", 2008). NaN is drawn mid grey.
+    """
+    v = np.asarray(values, dtype=np.float64)
+    finite = np.isfinite(v)
+    if limit is None:
+        limit = float(np.percentile(np.abs(v[finite]), 99)) if finite.any() else 1.0
+    limit = limit if limit > 0 else 1.0
+    t = np.clip(np.where(finite, v, 0.0) / limit, -1, 1)[..., None]
+    white = np.array([255, 255, 255], dtype=np.float64)
+    blue = np.array([0, 114, 178], dtype=np.float64)
+    orange = np.array([230, 159, 0], dtype=np.float64)
+    rgb = np.where(t < 0, white + (-t) * (blue - white), white + t * (orange - white))
+    rgb[~finite] = (128, 128, 128)
+    return np.ascontiguousarray(rgb.astype(np.uint8))
+
+
+# -- overlay geometry ----------------------------------------------------------------------------------------
+@dataclass
+class RingShape:
+    rx: float
+    ry: float
+    kind: str
+    order: float
+    used: bool
+
+
+@dataclass
+class Overlay:
+    """Shapes drawn over the photograph, in image pixels (x = column, y = row)."""
+
+    centre: tuple[float, float] | None = None
+    centre_by_hand: bool = False
+    rings: list[RingShape] = field(default_factory=list)
+    aperture: tuple[float, float, float, float] | None = None  # cx, cy, rx, ry
+    aperture_by_hand: bool = False
+    masks: list[tuple[float, float, float]] = field(default_factory=list)  # circles: x, y, r
+    mask_image: np.ndarray | None = None  # bool (H, W), when the result carries a pixel mask
+    meridians: list[tuple[float, str]] = field(default_factory=list)  # angle in degrees from +x, label
+
+
+def _num(v) -> float | None:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def _aspect(d: dict) -> float:
+    """Pixel size along y over pixel size along x (1 for square pixels)."""
+    try:
+        px, py = d["setup"]["pixel_size_um"]
+        return float(py) / float(px)
+    except (KeyError, TypeError, ValueError, ZeroDivisionError):
+        return 1.0
+
+
+def _find(d: Any, *keys: str):
+    """First value found under any of ``keys`` in a nested dict (depth-first)."""
+    if isinstance(d, dict):
+        for k in keys:
+            if k in d and d[k] is not None:
+                return d[k]
+        for v in d.values():
+            got = _find(v, *keys)
+            if got is not None:
+                return got
+    return None
+
+
+def overlay_from(d: dict | None, overrides: dict | None = None) -> Overlay:
+    """Overlay shapes from a result dict (``AnalysisResult.to_dict()``) and the manual overrides."""
+    ov = Overlay()
+    overrides = overrides or {}
+    if d:
+        aspect = _aspect(d)
+        c = d.get("centre_px")
+        if c and _num(c[0]) is not None and _num(c[1]) is not None:
+            ov.centre = (float(c[0]), float(c[1]))
+        for r in (d.get("fringes") or {}).get("rings", []) or []:
+            rp = _num(r.get("radius_px"))
+            if rp is None:
+                continue
+            ov.rings.append(RingShape(rp, rp / aspect, str(r.get("kind", "dark")), _num(r.get("order")) or 0.0,
+                                      bool(r.get("used", True))))
+        ap = _find(d.get("form"), "aperture") or _find(d.get("fullfield"), "aperture")
+        if isinstance(ap, dict):
+            cc = ap.get("centre_px")
+            dia = _num(ap.get("diameter_px"))
+            rad = _num(ap.get("radius_px")) or (dia / 2 if dia else None)
+            if cc and rad:
+                ov.aperture = (float(cc[0]), float(cc[1]), rad, rad / aspect)
+        masks = _find(d.get("form"), "masked_regions", "masks")
+        if isinstance(masks, list):
+            for m in masks:
+                if isinstance(m, dict):
+                    x, y = _num(m.get("x_px", m.get("x"))), _num(m.get("y_px", m.get("y")))
+                    r = _num(m.get("radius_px", m.get("r_px")))
+                    if None not in (x, y, r):
+                        ov.masks.append((x, y, r))
+        axis = _num(_find(d.get("form"), "astigmatism_axis_deg", "astig_axis_deg", "axis_deg"))
+        if axis is not None:
+            ov.meridians = [(axis, "meridian 1"), (axis + 90.0, "meridian 2")]
+    if overrides.get("centre_px") is not None:
+        ov.centre = tuple(float(v) for v in overrides["centre_px"])  # type: ignore[assignment]
+        ov.centre_by_hand = True
+    if overrides.get("aperture_px") is not None:
+        x, y, r = (float(v) for v in overrides["aperture_px"])
+        aspect = _aspect(d) if d else 1.0
+        ov.aperture = (x, y, r, r / aspect)
+        ov.aperture_by_hand = True
+    return ov
+
+
+# -- the results table ----------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class ValueRow:
+    label: str
+    value: str
+    uncertainty: str
+    unit: str
+    group: str = ""
+
+
+def _fmt(v: float | None, digits: int = 6) -> str:
+    if v is None:
+        return "—"
+    return f"{v:.{digits}g}"
+
+
+def _fmt_pair(value: float | None, U: float | None) -> tuple[str, str]:  # noqa: N803
+    """Value and expanded uncertainty rounded together (U to two significant digits)."""
+    if value is None:
+        return "—", "—"
+    if U is None or not math.isfinite(U) or U <= 0:
+        return f"{value:.6g}", "not available"
+    text = format_value(value, U, "").strip()
+    val, _, unc = text.partition(" ± ")
+    return val, "± " + unc.strip()
+
+
+_SKIP = {"k", "U", "u", "unit", "value"}
+
+
+def _quantity_rows(d: dict, group: str, prefix: str = "") -> list[ValueRow]:
+    """Rows for every ``{"value", "unit", ...}`` entry in a nested dict (form results, fringes)."""
+    rows = []
+    for key, v in d.items():
+        if not isinstance(v, dict):
+            continue
+        if "value" in v and "unit" in v:
+            val = _num(v.get("value"))
+            U = _num(v.get("U"))
+            if U is None and _num(v.get("u")) is not None:
+                U = _num(v.get("u")) * (_num(v.get("k")) or 2.0)
+            a, b = _fmt_pair(val, U)
+            label = (prefix + key).replace("_", " ")
+            rows.append(ValueRow(label[:1].upper() + label[1:], a, b, str(v.get("unit", "")), group))
+        elif key not in ("setup", "budget", "aperture", "rings"):
+            rows.extend(_quantity_rows(v, group, prefix=f"{key} "))
+    return rows
+
+
+def value_rows(d: dict | None) -> list[ValueRow]:
+    """Every value the result carries, with unit and expanded uncertainty (k as stated in the result)."""
+    if not d:
+        return []
+    rows: list[ValueRow] = []
+    k = _num(d.get("k")) or 2.0
+    R, U = _num(d.get("radius_mm")), _num(d.get("radius_U_mm"))
+    if R is not None:
+        a, b = _fmt_pair(R, U)
+        rows.append(ValueRow("Radius of curvature R", a, b, "mm", "Radius"))
+        if U is not None and R:
+            rel = 100 * U / abs(R)
+            rows.append(ValueRow("Relative expanded uncertainty", f"{rel:.2g}" if rel >= 0.01 else f"{1e4 * rel:.2g}",
+                                 "—", "%" if rel >= 0.01 else "ppm", "Radius"))
+        rows.append(ValueRow("Coverage factor k", f"{k:g}", "—", "", "Radius"))
+        budget = d.get("budget") or {}
+        dof = _num(budget.get("dof_eff"))
+        dof_text = "∞" if dof is None else ("> 1000" if dof > 1000 else f"{dof:.0f}")
+        rows.append(ValueRow("Effective degrees of freedom", dof_text, "—", "", "Radius"))
+    c, cu = d.get("centre_px"), d.get("centre_u_px")
+    if c:
+        for i, axis in enumerate("xy"):
+            v = _num(c[i])
+            u = _num(cu[i]) if cu else None
+            a, b = _fmt_pair(v, None if u is None else k * u)
+            rows.append(ValueRow(f"Ring centre {axis}", a, b, "px", "Rings"))
+    fr = d.get("fringes") or {}
+    if fr:
+        s, su = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("slope_u_mm2_per_fringe"))
+        a, b = _fmt_pair(s, None if su is None else k * su)
+        rows.append(ValueRow("Slope of r² per fringe", a, b, "mm²", "Rings"))
+        off = _num(fr.get("contact_offset_fringes"))
+        if off is not None:
+            rows.append(ValueRow("Contact offset", f"{off:.3f}", "—", "fringes", "Rings"))
+        rows.append(ValueRow("Rings used", str(fr.get("rings_used", "—")), "—", "", "Rings"))
+        rmin, rmax = _num(fr.get("r_min_mm")), _num(fr.get("r_max_mm"))
+        if rmin is not None and rmax is not None:
+            rows.append(ValueRow("Ring radii used", f"{rmin:.3f} – {rmax:.3f}", "—", "mm", "Rings"))
+        redchi = _num(fr.get("redchi"))
+        if redchi is not None:
+            rows.append(ValueRow("Reduced chi-square", f"{redchi:.3g}", "—", "", "Rings"))
+    form = d.get("form")
+    if isinstance(form, dict):
+        rows.extend(_quantity_rows(form, "Surface form"))
+    setup = d.get("setup") or {}
+    if setup:
+        lam, lamu = _num(setup.get("wavelength_nm")), _num(setup.get("wavelength_u_nm"))
+        a, b = _fmt_pair(lam, None if lamu is None else k * lamu)
+        rows.append(ValueRow("Wavelength λ", a, b, "nm", "Set-up"))
+        px = setup.get("pixel_size_um") or []
+        pu = setup.get("pixel_size_u_um") or []
+        for i, axis in enumerate("xy"[: len(px)]):
+            a, b = _fmt_pair(_num(px[i]), None if i >= len(pu) or _num(pu[i]) is None else k * _num(pu[i]))
+            rows.append(ValueRow(f"Pixel size {axis}", a, b, "µm", "Set-up"))
+        n, nu = _num(setup.get("medium_index")), _num(setup.get("medium_index_u"))
+        a, b = _fmt_pair(n, None if not nu else k * nu)
+        rows.append(ValueRow("Gap medium index n", a, b if nu else "exact (air)", "", "Set-up"))
+    el = _num(d.get("elapsed_s"))
+    if el is not None:
+        rows.append(ValueRow("Analysis time", f"{el:.2f}", "—", "s", "Run"))
+    return rows
+
+
+def budget_rows(d: dict | None) -> list[list[str]]:
+    """The uncertainty budget as table rows: quantity, estimate, u, distribution, c_i, contribution, share."""
+    b = (d or {}).get("budget") or {}
+    out = []
+    unit = b.get("unit", "")
+    for r in b.get("rows", []) or []:
+        out.append([
+            str(r.get("quantity", "")),
+            f"{_fmt(_num(r.get('estimate')))} {r.get('estimate_unit', '')}".strip(),
+            _fmt(_num(r.get("u")), 3),
+            str(r.get("distribution", "")),
+            f"{_fmt(_num(r.get('sensitivity')), 3)} {r.get('sensitivity_unit', '')}".strip(),
+            f"{_fmt(_num(r.get('contribution')), 3)} {unit}".strip(),
+            f"{100 * (_num(r.get('share')) or 0):.1f} %",
+        ])
+    return out
+
+
+# -- the verdict --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class VerdictView:
+    word: str  # PASS, FAIL, CONDITIONAL PASS, CONDITIONAL FAIL, NOT EVALUATED
+    symbol: str
+    tone: str  # "pass", "fail", "conditional", "none" — the widget maps tones to colours
+    explanation: str
+    decision_rule: str
+    terms: tuple[str, ...] = ()
+
+
+_VERDICTS = {
+    "pass": ("PASS", "✔", "pass", "every specified term is within its tolerance"),
+    "fail": ("FAIL", "✖", "fail", "at least one term is outside its tolerance"),
+    "conditional pass": ("CONDITIONAL PASS", "◐", "conditional",
+                         "within tolerance, but the uncertainty reaches past a limit"),
+    "conditional fail": ("CONDITIONAL FAIL", "◑", "conditional",
+                         "outside tolerance by less than the uncertainty"),
+    "not evaluated": ("NOT EVALUATED", "–", "none", "no tolerance was evaluated"),
+}
+
+
+def verdict_view(d: dict | None) -> VerdictView:
+    v = (d or {}).get("verdict")
+    if not isinstance(v, dict):
+        if d and d.get("radius_mm") is not None:
+            return VerdictView("MEASURED", "•", "none", "radius measured; no tolerance given, so no pass/fail", "")
+        return VerdictView("NO RESULT", "–", "none", "open an image and analyse it", "")
+    overall = str(v.get("overall", "not evaluated")).lower()
+    word, sym, tone, expl = _VERDICTS.get(overall, (overall.upper(), "?", "none", ""))
+    terms = []
+    for t in v.get("terms", []) or []:
+        if isinstance(t, dict):
+            name = t.get("term") or t.get("name") or "term"
+            status = t.get("status") or t.get("verdict") or ""
+            val, lim, unit = _num(t.get("value")), _num(t.get("limit")), t.get("unit", "")
+            txt = f"{name}: {status}".strip(": ")
+            if val is not None and lim is not None:
+                txt += f" ({val:.3g} {unit} against {lim:.3g} {unit})"
+            terms.append(txt)
+        else:
+            terms.append(str(t))
+    return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms))
+
+
+# -- plots ----------------------------------------------------------------------------------------------------
+def ring_plot_data(d: dict | None) -> dict | None:
+    """r² against fringe order with the fitted line and the residuals (mm², µm² for residuals)."""
+    fr = (d or {}).get("fringes") or {}
+    rings = fr.get("rings") or []
+    if not rings:
+        return None
+    order = np.array([_num(r.get("order")) or 0.0 for r in rings])
+    r2 = np.array([_num(r.get("r2_mm2")) or 0.0 for r in rings])
+    u = np.array([_num(r.get("u_r2_mm2")) or 0.0 for r in rings])
+    res = np.array([_num(r.get("residual_mm2")) or 0.0 for r in rings])
+    used = np.array([bool(r.get("used", True)) for r in rings])
+    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
+    return {"order": order, "r2_mm2": r2, "u_r2_mm2": u, "residual_um2": res * 1e6, "used": used,
+            "slope_mm2": slope, "intercept_mm2": icpt}
+
+
+def profile_plot_data(d: dict | None) -> dict | None:
+    ff = (d or {}).get("fullfield") or {}
+    i = ff.get("profile_i")
+    if not i:
+        return None
+    if ff.get("profile_r_px"):
+        x = np.asarray(ff["profile_r_px"], dtype=float)
+        xlabel = "radius r / px"
+    elif ff.get("profile_s_px2"):
+        x = np.sqrt(np.clip(np.asarray(ff["profile_s_px2"], dtype=float), 0, None))
+        xlabel = "radius r / px"
+    else:
+        return None
+    extrema = np.asarray(ff.get("extrema_r_px") or [], dtype=float)
+    iv = np.asarray(i, dtype=float)
+    n = min(len(x), len(iv))
+    return {"r_px": x[:n], "intensity": iv[:n], "extrema_r_px": extrema, "xlabel": xlabel}
+
+
+def ring_gap_map(d: dict | None, shape: tuple[int, int], *, step: int = 4) -> dict | None:
+    """The fitted gap (nm) over the field from the ring fit: gap = (r² - c) / slope fringes of λ/(2n).
+
+    Returned on a grid subsampled by ``step`` (x, y extents in pixels). Used when the result carries no form
+    map of its own (a lens on an optical flat).
+    """
+    if not d:
+        return None
+    fr = d.get("fringes") or {}
+    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
+    c = d.get("centre_px")
+    setup = d.get("setup") or {}
+    lam, n = _num(setup.get("wavelength_nm")), _num(setup.get("medium_index")) or 1.0
+    px = setup.get("pixel_size_um") or []
+    if None in (slope, icpt, lam) or not c or len(px) < 2 or not slope:
+        return None
+    H, W = shape
+    ys = np.arange(0, H, step, dtype=float)
+    xs = np.arange(0, W, step, dtype=float)
+    dx = (xs - float(c[0])) * float(px[0]) * 1e-3
+    dy = (ys - float(c[1])) * float(px[1]) * 1e-3
+    r2 = dx[None, :] ** 2 + dy[:, None] ** 2
+    fringes = (r2 - icpt) / slope
+    gap_nm = fringes * lam / (2 * n)
+    rmax = _num(fr.get("r_max_mm"))
+    if rmax is not None:
+        gap_nm = np.where(r2 <= rmax * rmax, gap_nm, np.nan)
+    return {"gap_nm": gap_nm, "extent_px": (0.0, float(W), float(H), 0.0), "title": "Fitted gap from the ring fit"}
+
+
+def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
+    """The surface-form map: the form result's own map when it has one, else the ring fit's gap."""
+    if form_obj is not None:
+        for attr in ("gap_map_nm", "height_map_nm", "map_nm"):
+            m = getattr(form_obj, attr, None)
+            if m is not None:
+                arr = np.asarray(m, dtype=float)
+                if arr.ndim == 2:
+                    ext = getattr(form_obj, "map_extent_px", None)
+                    extent = tuple(ext) if ext is not None else (0.0, float(arr.shape[1]), float(arr.shape[0]), 0.0)
+                    return {"gap_nm": arr, "extent_px": extent, "title": "Surface form: fitted gap"}
+    if shape is None:
+        return None
+    return ring_gap_map(d, shape)
+
+
+def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24) -> np.ndarray | None:
+    """Fit minus image for a ring result: within each annulus the image is regressed on
+    [1, cos 2πm, sin 2πm] with m the fitted fringe order at each pixel; NaN outside the fitted rings."""
+    if not d:
+        return None
+    fr = d.get("fringes") or {}
+    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
+    c = d.get("centre_px")
+    px = (d.get("setup") or {}).get("pixel_size_um") or []
+    rmax = _num(fr.get("r_max_mm"))
+    if None in (slope, icpt, rmax) or not c or len(px) < 2 or not slope:
+        return None
+    img = np.asarray(data, dtype=np.float64)
+    H, W = img.shape
+    yy, xx = np.mgrid[0:H, 0:W]
+    r2 = ((xx - float(c[0])) * float(px[0]) * 1e-3) ** 2 + ((yy - float(c[1])) * float(px[1]) * 1e-3) ** 2
+    m = (r2 - icpt) / slope
+    out = np.full(img.shape, np.nan)
+    edges = np.linspace(0.0, rmax * rmax, annuli + 1)
+    for lo, hi in zip(edges[:-1], edges[1:]):
+        sel = (r2 >= lo) & (r2 < hi)
+        if sel.sum() < 12:
+            continue
+        X = np.stack([np.ones(sel.sum()), np.cos(2 * np.pi * m[sel]), np.sin(2 * np.pi * m[sel])], axis=1)
+        coef, *_ = np.linalg.lstsq(X, img[sel], rcond=None)
+        out[sel] = X @ coef - img[sel]
+    return out
+
+
+def rounded_u(u: float | None) -> str:
+    return "—" if u is None else f"{round_uncertainty(u):.2g}"

@@ -1,0 +1,296 @@
+"""The photograph with the fitted overlay: zoom, pan, switchable layers, and picking a centre or an aperture
+by hand."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from PySide6.QtCore import QPointF, QRectF, Qt, Signal
+from PySide6.QtGui import QBrush, QColor, QImage, QPainter, QPen, QPixmap
+from PySide6.QtWidgets import (
+    QGraphicsEllipseItem,
+    QGraphicsItemGroup,
+    QGraphicsLineItem,
+    QGraphicsPixmapItem,
+    QGraphicsRectItem,
+    QGraphicsScene,
+    QGraphicsSimpleTextItem,
+    QGraphicsView,
+)
+
+from .display import Overlay
+
+# Okabe & Ito (2008) colour-blind-safe palette
+ORANGE = QColor(230, 159, 0)
+SKY = QColor(86, 180, 233)
+GREEN = QColor(0, 158, 115)
+YELLOW = QColor(240, 228, 66)
+BLUE = QColor(0, 114, 178)
+VERMILION = QColor(213, 94, 0)
+PURPLE = QColor(204, 121, 167)
+
+#: overlay layers, in drawing order: key -> label shown in the layer menu
+LAYERS = {
+    "rings": "Fitted rings",
+    "aperture": "Evaluated aperture",
+    "masks": "Masked regions",
+    "meridians": "Principal meridians",
+    "centre": "Centre",
+}
+
+
+def array_to_qimage(a: np.ndarray) -> QImage:
+    """uint8 (H, W) grey or (H, W, 3) RGB to a QImage that owns its bytes."""
+    a = np.ascontiguousarray(a)
+    h, w = a.shape[:2]
+    if a.ndim == 2:
+        img = QImage(a.data, w, h, a.strides[0], QImage.Format.Format_Grayscale8)
+    else:
+        img = QImage(a.data, w, h, a.strides[0], QImage.Format.Format_RGB888)
+    return img.copy()
+
+
+def _pen(colour: QColor, width: float = 2.0, style=Qt.PenStyle.SolidLine) -> QPen:
+    p = QPen(colour, width, style)
+    p.setCosmetic(True)  # width in screen pixels at any zoom
+    return p
+
+
+class ImageView(QGraphicsView):
+    """Shows one image; ``mode`` is ``"look"`` (drag pans), ``"centre"`` (click sets the centre) or
+    ``"aperture"`` (press at the centre, drag to the edge)."""
+
+    centrePicked = Signal(float, float)
+    aperturePicked = Signal(float, float, float)
+    zoomChanged = Signal(float)
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.setScene(QGraphicsScene(self))
+        self.setRenderHints(QPainter.RenderHint.Antialiasing | QPainter.RenderHint.SmoothPixmapTransform)
+        self.setBackgroundBrush(QBrush(QColor(40, 42, 46)))
+        self.setTransformationAnchor(QGraphicsView.ViewportAnchor.AnchorUnderMouse)
+        self.setResizeAnchor(QGraphicsView.ViewportAnchor.AnchorViewCenter)
+        self.setDragMode(QGraphicsView.DragMode.ScrollHandDrag)
+        self.setAccessibleName("Interferogram view")
+        self._pixmap = QGraphicsPixmapItem()
+        self._pixmap.setTransformationMode(Qt.TransformationMode.SmoothTransformation)
+        self.scene().addItem(self._pixmap)
+        # overlay layers live inside a clip box the size of the image, so rings cut by the frame stay in it
+        self._clip = QGraphicsRectItem()
+        self._clip.setPen(QPen(Qt.PenStyle.NoPen))
+        self._clip.setFlag(QGraphicsRectItem.GraphicsItemFlag.ItemClipsChildrenToShape)
+        self._clip.setZValue(10)
+        self.scene().addItem(self._clip)
+        self._groups: dict[str, QGraphicsItemGroup] = {}
+        self.visible = {k: True for k in LAYERS}
+        self.overlay = Overlay()
+        self.mode = "look"
+        self._press: QPointF | None = None
+        self._rubber: QGraphicsEllipseItem | None = None
+        self._fit_pending = True
+        self._placeholder = QGraphicsSimpleTextItem("Open an interferogram: File > Open (Ctrl+O), or drop a file here")
+        self._placeholder.setBrush(QBrush(QColor(230, 230, 230)))
+        f = self._placeholder.font()
+        f.setPointSizeF(f.pointSizeF() * 1.3)
+        self._placeholder.setFont(f)
+        self.scene().addItem(self._placeholder)
+
+    # image ----------------------------------------------------------------------------------------------
+    def set_image(self, a: np.ndarray | None, *, refit: bool = False) -> None:
+        if a is None:
+            self._pixmap.setPixmap(QPixmap())
+            self._placeholder.setVisible(True)
+            return
+        self._placeholder.setVisible(False)
+        new_size = (a.shape[1], a.shape[0])
+        old = self._pixmap.pixmap()
+        if refit or old.isNull() or (old.width(), old.height()) != new_size:
+            self._fit_pending = True
+        self._pixmap.setPixmap(QPixmap.fromImage(array_to_qimage(a)))
+        self.scene().setSceneRect(QRectF(0, 0, new_size[0], new_size[1]).adjusted(-40, -40, 40, 40))
+        self._clip.setRect(QRectF(-0.5, -0.5, new_size[0], new_size[1]))
+        if self._fit_pending and self.isVisible():
+            self.fit()
+
+    def image_size(self) -> tuple[int, int]:
+        pm = self._pixmap.pixmap()
+        return (pm.width(), pm.height())
+
+    def fit(self) -> None:
+        pm = self._pixmap.pixmap()
+        if pm.isNull():
+            return
+        # pixel centres are at integers: the pixmap's top-left corner sits at (-0.5, -0.5)
+        self.fitInView(QRectF(-0.5, -0.5, pm.width(), pm.height()), Qt.AspectRatioMode.KeepAspectRatio)
+        self._fit_pending = False
+        self.zoomChanged.emit(self.zoom())
+
+    def zoom(self) -> float:
+        return float(self.transform().m11())
+
+    def set_zoom(self, factor: float) -> None:
+        factor = float(min(max(factor, 0.02), 64.0))
+        self.resetTransform()
+        self.scale(factor, factor)
+        self.zoomChanged.emit(factor)
+
+    def zoom_by(self, step: float) -> None:
+        self.set_zoom(self.zoom() * step)
+
+    def showEvent(self, event):  # noqa: N802
+        super().showEvent(event)
+        if self._fit_pending:
+            self.fit()
+
+    def resizeEvent(self, event):  # noqa: N802
+        super().resizeEvent(event)
+        if self._fit_pending:
+            self.fit()
+
+    def wheelEvent(self, event):  # noqa: N802
+        steps = event.angleDelta().y() / 120.0
+        if steps:
+            self.zoom_by(1.25**steps)
+            event.accept()
+
+    # overlay ----------------------------------------------------------------------------------------------
+    def set_layer_visible(self, key: str, on: bool) -> None:
+        self.visible[key] = bool(on)
+        if key in self._groups:
+            self._groups[key].setVisible(bool(on))
+
+    def set_overlay(self, ov: Overlay) -> None:
+        self.overlay = ov
+        for g in self._groups.values():
+            self.scene().removeItem(g)  # takes its children along
+        self._groups = {}
+        for key in LAYERS:
+            g = QGraphicsItemGroup(self._clip)
+            g.setZValue(list(LAYERS).index(key))
+            self._groups[key] = g
+            getattr(self, f"_draw_{key}")(g, ov)
+            g.setVisible(self.visible.get(key, True))
+
+    def layer_item_count(self, key: str) -> int:
+        g = self._groups.get(key)
+        return 0 if g is None else len(g.childItems())
+
+    def _ellipse(self, g, cx, cy, rx, ry, pen, brush=None):
+        it = QGraphicsEllipseItem(cx - rx, cy - ry, 2 * rx, 2 * ry)
+        it.setPen(pen)
+        if brush is not None:
+            it.setBrush(brush)
+        g.addToGroup(it)
+        return it
+
+    def _draw_rings(self, g, ov: Overlay) -> None:
+        if ov.centre is None:
+            return
+        cx, cy = ov.centre
+        for r in ov.rings:
+            colour = QColor(ORANGE if r.kind == "dark" else SKY)
+            colour.setAlpha(220)
+            style = Qt.PenStyle.SolidLine if r.used else Qt.PenStyle.DotLine
+            self._ellipse(g, cx, cy, r.rx, r.ry, _pen(colour, 1.2 if r.used else 1.0, style))
+
+    def _draw_aperture(self, g, ov: Overlay) -> None:
+        if ov.aperture is None:
+            return
+        cx, cy, rx, ry = ov.aperture
+        style = Qt.PenStyle.DashLine if ov.aperture_by_hand else Qt.PenStyle.SolidLine
+        self._ellipse(g, cx, cy, rx, ry, _pen(GREEN, 2.5, style))
+
+    def _draw_masks(self, g, ov: Overlay) -> None:
+        brush = QBrush(QColor(213, 94, 0, 90), Qt.BrushStyle.BDiagPattern)
+        for x, y, r in ov.masks:
+            self._ellipse(g, x, y, r, r, _pen(VERMILION, 1.5), brush)
+
+    def _draw_meridians(self, g, ov: Overlay) -> None:
+        if not ov.meridians:
+            return
+        if ov.aperture is not None:
+            cx, cy, rx, ry = ov.aperture
+            length = max(rx, ry)
+        elif ov.centre is not None:
+            cx, cy = ov.centre
+            w, h = self.image_size()
+            length = 0.45 * min(w, h)
+        else:
+            return
+        for i, (ang, label) in enumerate(ov.meridians):
+            t = math.radians(ang)
+            # image y runs down: an angle counted anticlockwise on screen is -y
+            dx, dy = math.cos(t) * length, -math.sin(t) * length
+            pen = _pen(PURPLE if i == 0 else YELLOW, 2.0, Qt.PenStyle.DashDotLine)
+            line = QGraphicsLineItem(cx - dx, cy - dy, cx + dx, cy + dy)
+            line.setPen(pen)
+            g.addToGroup(line)
+            txt = QGraphicsSimpleTextItem(label)
+            txt.setBrush(QBrush(pen.color()))
+            txt.setFlag(QGraphicsSimpleTextItem.GraphicsItemFlag.ItemIgnoresTransformations)
+            txt.setPos(cx + dx, cy + dy)
+            g.addToGroup(txt)
+
+    def _draw_centre(self, g, ov: Overlay) -> None:
+        if ov.centre is None:
+            return
+        cx, cy = ov.centre
+        colour = YELLOW if ov.centre_by_hand else BLUE
+        w, h = self.image_size()
+        arm = max(6.0, 0.03 * max(w, h, 1))
+        for x0, y0, x1, y1 in ((cx - arm, cy, cx + arm, cy), (cx, cy - arm, cx, cy + arm)):
+            halo = QGraphicsLineItem(x0, y0, x1, y1)
+            halo.setPen(_pen(QColor(0, 0, 0), 5.0))
+            g.addToGroup(halo)
+            line = QGraphicsLineItem(x0, y0, x1, y1)
+            line.setPen(_pen(colour, 2.5))
+            g.addToGroup(line)
+
+    # picking ----------------------------------------------------------------------------------------------
+    def set_mode(self, mode: str) -> None:
+        if mode not in ("look", "centre", "aperture"):
+            raise ValueError(mode)
+        self.mode = mode
+        self.setDragMode(QGraphicsView.DragMode.ScrollHandDrag if mode == "look" else QGraphicsView.DragMode.NoDrag)
+        self.viewport().setCursor(Qt.CursorShape.OpenHandCursor if mode == "look" else Qt.CursorShape.CrossCursor)
+
+    def mousePressEvent(self, event):  # noqa: N802
+        if self.mode != "look" and event.button() == Qt.MouseButton.LeftButton:
+            p = self.mapToScene(event.position().toPoint())
+            if self.mode == "centre":
+                self.centrePicked.emit(p.x(), p.y())
+                event.accept()
+                return
+            self._press = p
+            self._rubber = QGraphicsEllipseItem(p.x(), p.y(), 0, 0)
+            self._rubber.setPen(_pen(GREEN, 2.0, Qt.PenStyle.DashLine))
+            self._rubber.setZValue(50)
+            self.scene().addItem(self._rubber)
+            event.accept()
+            return
+        super().mousePressEvent(event)
+
+    def mouseMoveEvent(self, event):  # noqa: N802
+        if self._press is not None and self._rubber is not None:
+            p = self.mapToScene(event.position().toPoint())
+            r = math.hypot(p.x() - self._press.x(), p.y() - self._press.y())
+            self._rubber.setRect(self._press.x() - r, self._press.y() - r, 2 * r, 2 * r)
+            event.accept()
+            return
+        super().mouseMoveEvent(event)
+
+    def mouseReleaseEvent(self, event):  # noqa: N802
+        if self._press is not None:
+            p = self.mapToScene(event.position().toPoint())
+            r = math.hypot(p.x() - self._press.x(), p.y() - self._press.y())
+            c = self._press
+            self._press = None
+            if self._rubber is not None:
+                self.scene().removeItem(self._rubber)
+                self._rubber = None
+            self.aperturePicked.emit(c.x(), c.y(), r)
+            event.accept()
+            return
+        super().mouseReleaseEvent(event)

@@ -1,0 +1,181 @@
+"""A lot of images for the QA reviewer, as plain Python: one row per file with its status, key values and
+verdict, and CSV export. The window runs each row's analysis off the GUI thread and hands results back."""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+from dataclasses import dataclass
+from typing import Any
+
+from ..errors import InputError, RinggaugeError
+from ..imaging import load_frame
+from .display import verdict_view
+from .model import Signal, image_files
+
+QUEUED, RUNNING, DONE, FAILED = "queued", "analysing", "done", "failed"
+
+
+def _num(v) -> float | None:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def _form_value(d: dict, *names: str) -> tuple[float | None, str]:
+    """A form quantity (value, unit) by any of its likely names, e.g. power / sagitta."""
+    form = d.get("form") or {}
+    if not isinstance(form, dict):
+        return None, ""
+    stack = [form]
+    while stack:
+        cur = stack.pop()
+        for k, v in cur.items():
+            if isinstance(v, dict):
+                if k in names and "value" in v:
+                    return _num(v.get("value")), str(v.get("unit", ""))
+                stack.append(v)
+    return None, ""
+
+
+@dataclass
+class LotRow:
+    path: str
+    status: str = QUEUED
+    message: str = ""
+    result: Any = None
+    summary: dict | None = None
+
+    @property
+    def name(self) -> str:
+        return os.path.basename(self.path)
+
+
+#: the table's columns: key, header (with unit)
+COLUMNS = (
+    ("name", "Image"),
+    ("status", "Status"),
+    ("radius_mm", "R / mm"),
+    ("radius_U_mm", "U(R) / mm"),
+    ("power", "Power / fringes"),
+    ("irregularity", "Irregularity / fringes"),
+    ("verdict", "Verdict"),
+    ("message", "Note"),
+)
+
+
+def summarise(result) -> dict:
+    """The lot table's values from a result (via its ``to_dict()``)."""
+    d = result.to_dict() if hasattr(result, "to_dict") else dict(result)
+    power, _ = _form_value(d, "power", "sagitta", "power_fringes")
+    irr, _ = _form_value(d, "irregularity", "irregularity_fringes")
+    v = verdict_view(d)
+    return {
+        "radius_mm": _num(d.get("radius_mm")),
+        "radius_U_mm": _num(d.get("radius_U_mm")),
+        "k": _num(d.get("k")),
+        "power": power,
+        "irregularity": irr,
+        "verdict": v.word,
+        "decision_rule": v.decision_rule,
+        "sha256": (d.get("image") or {}).get("sha256", ""),
+        "wavelength_nm": _num((d.get("setup") or {}).get("wavelength_nm")),
+        "warnings": "; ".join(d.get("warnings") or []),
+    }
+
+
+class Lot:
+    """The rows of one lot folder. ``changed`` emits ``("rows", None)`` after loading and ``("row", i)``
+    after row ``i`` changed."""
+
+    def __init__(self):
+        self.folder: str | None = None
+        self.rows: list[LotRow] = []
+        self.generation = 0
+        self.changed = Signal()
+
+    def load_folder(self, folder: str | os.PathLike) -> None:
+        files = image_files(folder)
+        if not files:
+            raise InputError(f"{folder}: the folder holds no images (PNG, TIFF, JPEG, BMP)")
+        self.folder = os.fspath(folder)
+        self.rows = [LotRow(p) for p in files]
+        self.generation += 1
+        self.changed.emit("rows", None)
+
+    def cancel(self) -> None:
+        self.generation += 1
+
+    def counts(self) -> dict[str, int]:
+        out = {QUEUED: 0, RUNNING: 0, DONE: 0, FAILED: 0}
+        for r in self.rows:
+            out[r.status] = out.get(r.status, 0) + 1
+        return out
+
+    def mark_running(self, i: int) -> None:
+        self.rows[i].status = RUNNING
+        self.changed.emit("row", i)
+
+    def set_result(self, i: int, result) -> None:
+        row = self.rows[i]
+        row.status, row.result, row.message = DONE, result, ""
+        row.summary = summarise(result)
+        warn = row.summary.get("warnings")
+        if warn:
+            row.message = warn
+        self.changed.emit("row", i)
+
+    def set_failure(self, i: int, message: str) -> None:
+        row = self.rows[i]
+        row.status, row.result, row.summary, row.message = FAILED, None, None, message
+        self.changed.emit("row", i)
+
+    def cell(self, i: int, key: str):
+        """The raw value of a table cell (numbers stay numbers so sorting is numeric)."""
+        row = self.rows[i]
+        if key == "name":
+            return row.name
+        if key == "status":
+            return row.status
+        if key == "message":
+            return row.message
+        return (row.summary or {}).get(key)
+
+    @staticmethod
+    def analyse_one(path: str, setup, analyse, progress=None):
+        """What a worker runs for one row: load the frame and analyse it."""
+        frame = load_frame(path)
+        return analyse([frame], setup, progress=progress)
+
+    def export_csv(self, target: str | os.PathLike) -> int:
+        """Write every row to a CSV file (units in the headers); returns the number of rows written."""
+        if not self.rows:
+            raise InputError("the lot is empty; open a folder of images first")
+        k = next((r.summary["k"] for r in self.rows if r.summary and r.summary.get("k")), 2.0)
+        headers = ["image", "path", "status", "radius_mm", f"radius_U_mm_k{k:g}", "power_fringes",
+                   "irregularity_fringes", "wavelength_nm", "verdict", "decision_rule", "image_sha256",
+                   "note"]
+        try:
+            with open(target, "w", newline="", encoding="utf-8") as fh:
+                w = csv.writer(fh)
+                w.writerow(headers)
+                for r in self.rows:
+                    s = r.summary or {}
+                    w.writerow([r.name, r.path, r.status, _csv(s.get("radius_mm")), _csv(s.get("radius_U_mm")),
+                                _csv(s.get("power")), _csv(s.get("irregularity")), _csv(s.get("wavelength_nm")),
+                                s.get("verdict", ""), s.get("decision_rule", ""), s.get("sha256", ""),
+                                r.message])
+        except OSError as exc:
+            raise InputError(f"{target}: cannot write the CSV file ({exc.strerror or exc})") from None
+        return len(self.rows)
+
+
+def _csv(v) -> str:
+    return "" if v is None else repr(float(v))
+
+
+def failure_text(exc: BaseException) -> str:
+    return str(exc) if isinstance(exc, RinggaugeError) else f"{type(exc).__name__}: {exc}"

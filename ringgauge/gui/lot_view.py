@@ -1,0 +1,360 @@
+"""The lot review page: a folder of images as a sortable, filterable table of status, key values and verdicts;
+select a row to see its analysis; export CSV."""
+
+from __future__ import annotations
+
+import os
+
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, QSortFilterProxyModel, Qt, Signal
+from PySide6.QtGui import QBrush, QColor
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QComboBox,
+    QFileDialog,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QLineEdit,
+    QPushButton,
+    QSplitter,
+    QTableView,
+    QVBoxLayout,
+    QWidget,
+)
+
+from ..errors import RinggaugeError
+from . import integrations
+from .lot import COLUMNS, DONE, FAILED, QUEUED, RUNNING, Lot
+from .model import BenchSession, _Cancelled
+from .results_panel import ResultsPanel
+from .worker import Runner
+
+SORT_ROLE = Qt.ItemDataRole.UserRole + 1
+
+_STATUS_TEXT = {QUEUED: "waiting", RUNNING: "analysing…", DONE: "done", FAILED: "FAILED TO ANALYSE"}
+
+
+class LotTableModel(QAbstractTableModel):
+    def __init__(self, lot: Lot, parent=None):
+        super().__init__(parent)
+        self.lot = lot
+        lot.changed.connect(self._lot_changed)
+
+    def _lot_changed(self, what: str, i) -> None:
+        if what == "rows":
+            self.beginResetModel()
+            self.endResetModel()
+        elif what == "row":
+            self.dataChanged.emit(self.index(i, 0), self.index(i, len(COLUMNS) - 1))
+
+    def rowCount(self, parent=QModelIndex()):  # noqa: N802
+        return 0 if parent.isValid() else len(self.lot.rows)
+
+    def columnCount(self, parent=QModelIndex()):  # noqa: N802
+        return 0 if parent.isValid() else len(COLUMNS)
+
+    def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):  # noqa: N802
+        if role == Qt.ItemDataRole.DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return COLUMNS[section][1]
+        return None
+
+    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+        if not index.isValid():
+            return None
+        key = COLUMNS[index.column()][0]
+        v = self.lot.cell(index.row(), key)
+        if role == Qt.ItemDataRole.DisplayRole:
+            if key == "status":
+                return _STATUS_TEXT.get(v, v)
+            if isinstance(v, float):
+                return f"{v:.4f}" if key.startswith("radius") else f"{v:.2f}"
+            return "" if v is None else str(v)
+        if role == SORT_ROLE:
+            if v is None:
+                return float("inf") if key not in ("name", "status", "verdict", "message") else ""
+            return v
+        if role == Qt.ItemDataRole.TextAlignmentRole and isinstance(v, float):
+            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        if role == Qt.ItemDataRole.ForegroundRole and key in ("verdict", "status"):
+            word = str(v or "")
+            if "FAIL" in word.upper() and "CONDITIONAL" not in word.upper():
+                return QBrush(QColor("#a3211c"))
+            if word == "PASS":
+                return QBrush(QColor("#1d6b3a"))
+        if role == Qt.ItemDataRole.ToolTipRole and key == "message":
+            return str(v or "")
+        return None
+
+
+#: the filter choices: label -> predicate on (status, verdict word)
+FILTERS = {
+    "All rows": lambda st, v: True,
+    "PASS": lambda st, v: v == "PASS",
+    "FAIL": lambda st, v: v == "FAIL",
+    "Conditional": lambda st, v: v.startswith("CONDITIONAL"),
+    "Failed to analyse": lambda st, v: st == FAILED,
+    "Not yet analysed": lambda st, v: st in (QUEUED, RUNNING),
+}
+
+
+class LotFilter(QSortFilterProxyModel):
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.text = ""
+        self.choice = "All rows"
+        self.setSortRole(SORT_ROLE)
+
+    def set_text(self, text: str) -> None:
+        self.text = text.strip().lower()
+        self.invalidateFilter()
+
+    def set_choice(self, choice: str) -> None:
+        self.choice = choice
+        self.invalidateFilter()
+
+    def filterAcceptsRow(self, row, parent):  # noqa: N802
+        lot: Lot = self.sourceModel().lot
+        r = lot.rows[row]
+        verdict = str((r.summary or {}).get("verdict", ""))
+        if not FILTERS[self.choice](r.status, verdict):
+            return False
+        if self.text and self.text not in (r.name + " " + r.message + " " + verdict).lower():
+            return False
+        return True
+
+
+class LotPage(QWidget):
+    """Runs the lot with the bench's current set-up, one image at a time, on its own worker thread."""
+
+    openInBench = Signal(str, object)
+
+    def __init__(self, session: BenchSession, runner: Runner | None = None, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.lot = Lot()
+        self.runner = Runner(self)
+        self.runner.signals.progress.connect(self._progress)
+        self.runner.signals.finished.connect(self._finished)
+        self.runner.signals.failed.connect(self._failed)
+        self.runner.signals.cancelled.connect(lambda token: None)
+        self.running = False
+
+        lay = QVBoxLayout(self)
+        top = QHBoxLayout()
+        self.b_open = QPushButton("Open lot folder…")
+        self.b_run = QPushButton("Analyse lot")
+        self.b_stop = QPushButton("Stop")
+        self.b_export = QPushButton("Export CSV…")
+        self.b_certs = QPushButton("Certificates…")
+        self.b_certs.setEnabled(False)
+        self.b_certs.setToolTip("Certificates are issued from the inspection records"
+                                if integrations.certificates_available() else
+                                "This build cannot issue certificates yet")
+        self.folder_label = QLabel("No lot open")
+        self.folder_label.setObjectName("imageTitle")
+        for w in (self.b_open, self.b_run, self.b_stop, self.b_export, self.b_certs):
+            top.addWidget(w)
+        top.addWidget(self.folder_label, 1)
+        lay.addLayout(top)
+
+        filt = QHBoxLayout()
+        self.filter_text = QLineEdit()
+        self.filter_text.setPlaceholderText("Filter by image name, verdict or note")
+        self.filter_text.setClearButtonEnabled(True)
+        self.filter_choice = QComboBox()
+        self.filter_choice.addItems(list(FILTERS))
+        self.counts = QLabel("")
+        filt.addWidget(QLabel("Show"))
+        filt.addWidget(self.filter_choice)
+        filt.addWidget(self.filter_text, 1)
+        filt.addWidget(self.counts)
+        lay.addLayout(filt)
+
+        self.model = LotTableModel(self.lot, self)
+        self.proxy = LotFilter(self)
+        self.proxy.setSourceModel(self.model)
+        self.table = QTableView()
+        self.table.setModel(self.proxy)
+        self.table.setSortingEnabled(True)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.table.setAlternatingRowColors(True)
+        self.table.verticalHeader().setVisible(False)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        self.table.horizontalHeader().setStretchLastSection(True)
+        self.detail = ResultsPanel()
+        self.b_bench = QPushButton("Show on the bench")
+        self.b_bench.setEnabled(False)
+        right = QWidget()
+        rl = QVBoxLayout(right)
+        rl.setContentsMargins(0, 0, 0, 0)
+        self.detail_title = QLabel("Select a row to see its analysis")
+        self.detail_title.setObjectName("imageTitle")
+        rl.addWidget(self.detail_title)
+        rl.addWidget(self.detail, 1)
+        rl.addWidget(self.b_bench)
+        split = QSplitter(Qt.Orientation.Horizontal)
+        split.addWidget(self.table)
+        split.addWidget(right)
+        split.setStretchFactor(0, 3)
+        split.setStretchFactor(1, 2)
+        lay.addWidget(split, 1)
+        self.message = QLabel("")
+        self.message.setWordWrap(True)
+        lay.addWidget(self.message)
+
+        self.b_open.clicked.connect(self.open_dialog)
+        self.b_run.clicked.connect(self.run_lot)
+        self.b_stop.clicked.connect(self.stop)
+        self.b_export.clicked.connect(self.export_dialog)
+        self.b_bench.clicked.connect(self._to_bench)
+        self.filter_text.textChanged.connect(self.proxy.set_text)
+        self.filter_choice.currentTextChanged.connect(self.proxy.set_choice)
+        self.table.selectionModel().selectionChanged.connect(lambda *_: self._show_selected())
+        self.table.doubleClicked.connect(lambda *_: self._to_bench())
+        self.lot.changed.connect(lambda *_: self._update_counts())
+        self._update_counts()
+
+    # -- loading and running -----------------------------------------------------------------------------------
+    def open_dialog(self) -> None:
+        d = QFileDialog.getExistingDirectory(self, "Folder of the lot's images")
+        if d:
+            self.open_folder(d)
+
+    def open_folder(self, folder: str, *, run: bool = True) -> bool:
+        self.stop()
+        try:
+            self.lot.load_folder(folder)
+        except RinggaugeError as exc:
+            self.message.setText(str(exc))
+            return False
+        self.folder_label.setText(f"{folder} — {len(self.lot.rows)} images")
+        self.message.setText("")
+        self.detail.clear()
+        if run:
+            self.run_lot()
+        return True
+
+    def run_lot(self) -> bool:
+        if not self.lot.rows:
+            self.message.setText("open a lot folder first")
+            return False
+        try:
+            setup = self.session.setup.to_bench_setup()
+        except RinggaugeError as exc:
+            self.message.setText(f"the bench set-up is incomplete: {exc}")
+            return False
+        self.lot.cancel()
+        gen = self.lot.generation
+        analyse = self.session.analyse_fn
+        todo = [i for i, r in enumerate(self.lot.rows) if r.status != DONE]
+        for i in todo:
+            path = self.lot.rows[i].path
+
+            def job(progress, i=i, path=path):
+                if self.lot.generation != gen:
+                    raise _Cancelled()
+                return Lot.analyse_one(path, setup, analyse, progress)
+
+            self.runner.submit((gen, i), job)
+        self.running = bool(todo)
+        self.message.setText(f"Analysing {len(todo)} images with the bench set-up ({setup.source.name}, "
+                             f"pixel {setup.pixel_size_um:g} µm)" if todo else "Every image is analysed")
+        return True
+
+    def stop(self) -> None:
+        self.lot.cancel()
+        self.running = False
+        for r in self.lot.rows:
+            if r.status == RUNNING:
+                r.status = QUEUED
+        self._update_counts()
+
+    def wait(self, msecs: int = 60000) -> bool:
+        return self.runner.wait(msecs)
+
+    def _progress(self, token, fraction: float, message: str) -> None:
+        gen, i = token
+        if gen == self.lot.generation and self.lot.rows[i].status != RUNNING:
+            self.lot.mark_running(i)
+
+    def _finished(self, token, result) -> None:
+        gen, i = token
+        if gen == self.lot.generation:
+            self.lot.set_result(i, result)
+            self._after_row(i)
+
+    def _failed(self, token, message: str) -> None:
+        gen, i = token
+        if gen == self.lot.generation:
+            self.lot.set_failure(i, message)
+            self._after_row(i)
+
+    def _after_row(self, i: int) -> None:
+        c = self.lot.counts()
+        if c[QUEUED] + c[RUNNING] == 0:
+            self.running = False
+            self.message.setText("Lot finished")
+        sel = self._selected_row()
+        if sel == i:
+            self._show_selected()
+
+    def _update_counts(self) -> None:
+        c = self.lot.counts()
+        n = len(self.lot.rows)
+        verdicts: dict[str, int] = {}
+        for r in self.lot.rows:
+            if r.summary:
+                verdicts[r.summary["verdict"]] = verdicts.get(r.summary["verdict"], 0) + 1
+        vt = ", ".join(f"{k} {v}" for k, v in sorted(verdicts.items()))
+        self.counts.setText(f"{c[DONE]} of {n} done, {c[FAILED]} failed" + (f" — {vt}" if vt else ""))
+
+    # -- selection ------------------------------------------------------------------------------------------------
+    def _selected_row(self) -> int | None:
+        idx = self.table.selectionModel().selectedRows()
+        if not idx:
+            return None
+        return self.proxy.mapToSource(idx[0]).row()
+
+    def select_row(self, i: int) -> None:
+        """Select source row ``i`` (it must pass the filter)."""
+        pidx = self.proxy.mapFromSource(self.model.index(i, 0))
+        self.table.selectRow(pidx.row())
+
+    def _show_selected(self) -> None:
+        i = self._selected_row()
+        if i is None:
+            self.b_bench.setEnabled(False)
+            return
+        r = self.lot.rows[i]
+        self.detail_title.setText(r.name)
+        self.b_bench.setEnabled(True)
+        if r.result is not None:
+            self.detail.show_result(r.result.to_dict())
+        elif r.status == FAILED:
+            self.detail.show_error(r.message)
+        else:
+            self.detail.clear()
+            self.detail.banner.show_busy(0.0, "waiting for its turn")
+
+    def _to_bench(self) -> None:
+        i = self._selected_row()
+        if i is not None:
+            r = self.lot.rows[i]
+            self.openInBench.emit(r.path, r.result)
+
+    # -- export ---------------------------------------------------------------------------------------------------
+    def export_dialog(self) -> None:
+        base = os.path.join(self.lot.folder or "", "lot-results.csv")
+        p, _ = QFileDialog.getSaveFileName(self, "Export the lot as CSV", base, "CSV (*.csv)")
+        if p:
+            self.export_csv(p)
+
+    def export_csv(self, p: str) -> bool:
+        try:
+            n = self.lot.export_csv(p)
+        except RinggaugeError as exc:
+            self.message.setText(str(exc))
+            return False
+        self.message.setText(f"Wrote {n} rows to {p}")
+        return True

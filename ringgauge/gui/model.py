@@ -1,0 +1,473 @@
+"""The bench session as plain Python: set-up, frames, manual overrides, the latest result — no Qt.
+
+The window observes a :class:`BenchSession` through its ``changed`` signal and only redraws; the analysis
+itself runs through :meth:`BenchSession.make_job`, a snapshot that a worker thread can run while the operator
+keeps editing. A result that arrives for an outdated snapshot is dropped, so what the window shows always
+belongs to the set-up and frames it shows.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import asdict, dataclass, field, fields, replace
+from typing import Any, Callable, Sequence
+
+from ..bench_setup import BenchSetup
+from ..errors import AnalysisError, InputError, RinggaugeError
+from ..imaging import IMAGE_SUFFIXES, Frame, load_frame
+from ..sources import SOURCES, custom_source, get_source
+
+ProgressFn = Callable[[float, str], None]
+AnalyseFn = Callable[..., Any]
+
+
+class Signal:
+    """A minimal observer list: ``connect(fn)``, ``disconnect(fn)``, ``emit(*args)``."""
+
+    def __init__(self):
+        self._subscribers: list[Callable] = []
+
+    def connect(self, fn: Callable) -> None:
+        if fn not in self._subscribers:
+            self._subscribers.append(fn)
+
+    def disconnect(self, fn: Callable) -> None:
+        if fn in self._subscribers:
+            self._subscribers.remove(fn)
+
+    def emit(self, *args) -> None:
+        for fn in list(self._subscribers):
+            fn(*args)
+
+
+# Gap media offered by the set-up panel: (label, index, standard uncertainty). The wavelengths in
+# ringgauge.sources are standard-air values, so an air gap has index 1 relative to them.
+# Water: n_D = 1.333 at 20 °C — from memory; u covers temperature and dispersion over the visible lines.
+MEDIA: dict[str, tuple[str, float, float]] = {
+    "air": ("Air", 1.0, 0.0),
+    "water": ("Water (20 °C)", 1.333, 0.001),
+}
+
+CUSTOM = "custom"
+
+
+def _as_float(what: str, value, *, allow_none: bool = False) -> float | None:
+    if value is None or (isinstance(value, str) and not value.strip()):
+        if allow_none:
+            return None
+        raise InputError(f"{what} is empty; enter a number")
+    try:
+        v = float(str(value).replace(",", ".")) if isinstance(value, str) else float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be a number, got {value!r}") from None
+    if not math.isfinite(v):
+        raise InputError(f"{what} must be a finite number, got {value!r}")
+    return v
+
+
+@dataclass
+class SetupState:
+    """What the set-up panel edits, as plain values (persisted between runs as a dict)."""
+
+    source: str = "mercury-e"  # a key of ringgauge.sources.SOURCES, or "custom"
+    custom_wavelength_nm: float = 589.0
+    custom_wavelength_u_nm: float = 0.01
+    custom_fwhm_nm: float = 0.0
+    bench_profile: str = ""  # name of a saved bench calibration profile; "" = typed pixel size
+    pixel_size_um: float = 10.0
+    pixel_size_u_um: float = 0.05
+    medium: str = "air"  # a key of MEDIA, or "custom"
+    medium_index: float = 1.0
+    medium_index_u: float = 0.0
+    fringe_kind: str = "dark"
+    test_plate: str = ""  # id in the test-plate register; "" = none (radius against an optical flat)
+    tolerance: str = ""  # ISO 10110-5 form tolerance, e.g. "3/2(0.5)"
+    test_diameter_mm: float | None = None
+    decision_rule: str = "simple"
+    operator: str = ""
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: dict | None) -> "SetupState":
+        """Rebuild from saved values; unknown keys and values of the wrong type fall back to the defaults."""
+        base = cls()
+        if not isinstance(data, dict):
+            return base
+        kw = {}
+        for f in fields(cls):
+            if f.name not in data:
+                continue
+            v, default = data[f.name], getattr(base, f.name)
+            if isinstance(default, str):
+                ok = isinstance(v, str)
+            elif default is None or isinstance(default, float):
+                ok = v is None and f.name == "test_diameter_mm" or isinstance(v, (int, float)) and not isinstance(v, bool)
+                if ok and v is not None:
+                    v = float(v)
+                    ok = math.isfinite(v)
+            else:
+                ok = False
+            if ok:
+                kw[f.name] = v
+        return replace(base, **kw)
+
+    # -- derived values -------------------------------------------------------------------------------
+    def light_source(self):
+        if self.source == CUSTOM:
+            return custom_source(
+                _as_float("wavelength", self.custom_wavelength_nm),
+                _as_float("wavelength uncertainty", self.custom_wavelength_u_nm),
+                _as_float("source bandwidth", self.custom_fwhm_nm) or 0.0,
+            )
+        return get_source(self.source)
+
+    def index(self) -> tuple[float, float]:
+        if self.medium in MEDIA:
+            _, n, u = MEDIA[self.medium]
+            return n, u
+        if self.medium != CUSTOM:
+            raise InputError(f"unknown gap medium '{self.medium}'; choose {', '.join(MEDIA)} or custom")
+        return _as_float("gap medium index", self.medium_index), _as_float("index uncertainty", self.medium_index_u)
+
+    def to_bench_setup(self, *, overrides: "Overrides | None" = None) -> BenchSetup:
+        """Build the engine's :class:`BenchSetup`; raises :class:`InputError` with the panel's wording."""
+        from . import integrations
+
+        kw: dict[str, Any] = {}
+        if self.bench_profile:
+            kw.update(integrations.profile_setup_kwargs(self.bench_profile))
+        else:
+            kw["pixel_size_um"] = _as_float("pixel size", self.pixel_size_um)
+            kw["pixel_size_u_um"] = _as_float("pixel size uncertainty", self.pixel_size_u_um)
+        n, nu = self.index()
+        extras: dict[str, Any] = {}
+        if self.operator.strip():
+            extras["operator"] = self.operator.strip()
+        if overrides is not None:
+            extras.update(overrides.as_extras())
+        plate = integrations.plate_dict(self.test_plate) if self.test_plate else None
+        tol = self.tolerance.strip() or None
+        if tol:
+            integrations.check_tolerance(tol)
+        diameter = _as_float("test diameter", self.test_diameter_mm, allow_none=True)
+        if diameter is not None and diameter <= 0:
+            diameter = None
+        if (plate is not None or tol) and diameter is None:
+            raise InputError("a form evaluation needs the test diameter in mm; enter it in the set-up panel")
+        return BenchSetup(
+            source=self.light_source(),
+            medium_index=n,
+            medium_index_u=nu,
+            fringe_kind=self.fringe_kind,
+            test_diameter_mm=diameter,
+            tolerance=tol,
+            test_plate=plate,
+            decision_rule=self.decision_rule or "simple",
+            extras=extras,
+            **kw,
+        )
+
+
+@dataclass(frozen=True)
+class Overrides:
+    """Manual help for hard images: the ring centre and the evaluated aperture, in pixels (x = column)."""
+
+    centre_px: tuple[float, float] | None = None
+    aperture_px: tuple[float, float, float] | None = None  # centre x, centre y, radius
+
+    @property
+    def empty(self) -> bool:
+        return self.centre_px is None and self.aperture_px is None
+
+    def as_extras(self) -> dict:
+        d: dict[str, Any] = {}
+        if self.centre_px is not None:
+            d["centre_px"] = tuple(float(v) for v in self.centre_px)
+        if self.aperture_px is not None:
+            d["aperture_px"] = tuple(float(v) for v in self.aperture_px)
+        return d
+
+    def describe(self) -> str:
+        parts = []
+        if self.centre_px is not None:
+            parts.append(f"centre set by hand at x = {self.centre_px[0]:.1f} px, y = {self.centre_px[1]:.1f} px")
+        if self.aperture_px is not None:
+            x, y, r = self.aperture_px
+            parts.append(f"aperture set by hand: radius {r:.1f} px about ({x:.1f}, {y:.1f}) px")
+        return "; ".join(parts) or "no manual settings"
+
+
+class _Cancelled(Exception):
+    pass
+
+
+@dataclass
+class Job:
+    """A snapshot of one analysis: run it anywhere, hand the outcome back to the session."""
+
+    generation: int
+    frames: tuple[Frame, ...]
+    setup: BenchSetup
+    overrides: Overrides
+    analyse: AnalyseFn
+    cancelled: bool = False
+
+    def run(self, progress: ProgressFn | None = None):
+        def report(fraction: float, message: str) -> None:
+            if self.cancelled:
+                raise _Cancelled()
+            if progress is not None:
+                progress(float(fraction), str(message))
+
+        return self.analyse(list(self.frames), self.setup, progress=report)
+
+
+def default_analyse() -> AnalyseFn:
+    """The engine's ``analyse``; a clear error when this build has no engine yet."""
+    try:
+        from ..pipeline import analyse  # noqa: PLC0415 - optional until the engine lands
+    except ImportError:
+        def analyse(frames, setup, *, progress=None):  # noqa: ARG001
+            raise AnalysisError("this ringgauge build has no analysis engine (ringgauge.pipeline is missing)")
+    return analyse
+
+
+def image_files(folder: str | os.PathLike) -> list[str]:
+    """Image files directly inside ``folder``, sorted by name."""
+    try:
+        names = sorted(os.listdir(folder))
+    except FileNotFoundError:
+        raise InputError(f"{folder}: no such folder") from None
+    except NotADirectoryError:
+        raise InputError(f"{folder}: is a file, not a folder") from None
+    except PermissionError:
+        raise InputError(f"{folder}: cannot be read (permission denied)") from None
+    return [os.path.join(folder, n) for n in names
+            if n.lower().endswith(IMAGE_SUFFIXES) and os.path.isfile(os.path.join(folder, n))]
+
+
+class BenchSession:
+    """Set-up, frames, overrides and the latest result of one bench, with undo for the manual overrides.
+
+    ``changed`` emits one word saying what changed: ``"setup"``, ``"frames"``, ``"overrides"``,
+    ``"result"``, ``"error"``, ``"busy"``.
+    """
+
+    def __init__(self, analyse: AnalyseFn | None = None, setup: SetupState | None = None):
+        self._analyse = analyse
+        self.setup = setup or SetupState()
+        self.frames: tuple[Frame, ...] = ()
+        self.overrides = Overrides()
+        self.result = None
+        self.error: str | None = None
+        self.busy = False
+        self.progress: tuple[float, str] = (0.0, "")
+        self.generation = 0
+        self._undo: list[Overrides] = []
+        self._redo: list[Overrides] = []
+        self._job: Job | None = None
+        self.changed = Signal()
+
+    # -- inputs ---------------------------------------------------------------------------------------
+    @property
+    def analyse_fn(self) -> AnalyseFn:
+        return self._analyse or default_analyse()
+
+    def _bump(self, what: str) -> None:
+        self.generation += 1
+        if self._job is not None:
+            self._job.cancelled = True
+        self.changed.emit(what)
+
+    def update_setup(self, **changes) -> None:
+        """Change set-up values (names of :class:`SetupState` fields). Unknown names raise ``TypeError``."""
+        new = replace(self.setup, **changes)
+        if new == self.setup:
+            return
+        self.setup = new
+        self._bump("setup")
+
+    def replace_setup(self, state: SetupState) -> None:
+        if state != self.setup:
+            self.setup = state
+            self._bump("setup")
+
+    def open_paths(self, paths: Sequence[str | os.PathLike]) -> None:
+        """Load one image or a set of frames (several files, or a folder of them); keeps the old ones on error."""
+        paths = [os.fspath(p) for p in paths]
+        if not paths:
+            raise InputError("no image given; choose a PNG, TIFF or JPEG file")
+        files: list[str] = []
+        for p in paths:
+            files.extend(image_files(p) if os.path.isdir(p) else [p])
+        if not files:
+            raise InputError(f"{paths[0]}: the folder holds no images (PNG, TIFF, JPEG, BMP)")
+        frames = tuple(load_frame(p) for p in files)
+        shapes = {f.shape for f in frames}
+        if len(shapes) > 1:
+            raise InputError("the frames of one set must all have the same size; these differ: "
+                             + ", ".join(f"{f.name} {f.shape[1]}x{f.shape[0]}" for f in frames))
+        self.set_frames(frames)
+
+    def set_frames(self, frames: Sequence[Frame]) -> None:
+        self.frames = tuple(frames)
+        self.result = None
+        self.error = None
+        self.overrides = Overrides()
+        self._undo.clear()
+        self._redo.clear()
+        self._bump("frames")
+
+    @property
+    def title(self) -> str:
+        if not self.frames:
+            return ""
+        if len(self.frames) == 1:
+            return self.frames[0].name
+        return f"{self.frames[0].name} + {len(self.frames) - 1} more frames"
+
+    # -- manual overrides with undo -----------------------------------------------------------------------
+    def _set_overrides(self, new: Overrides, *, record: bool = True) -> None:
+        if new == self.overrides:
+            return
+        if record:
+            self._undo.append(self.overrides)
+            self._redo.clear()
+        self.overrides = new
+        self._bump("overrides")
+
+    def _check_inside(self, x: float, y: float) -> None:
+        if not self.frames:
+            raise InputError("open an image before setting the centre or aperture")
+        h, w = self.frames[0].shape
+        if not (math.isfinite(x) and math.isfinite(y)):
+            raise InputError("the position must be finite")
+        # a contact point may lie a little outside the frame (rings cut by the edge), not far off
+        if not (-w <= x <= 2 * w and -h <= y <= 2 * h):
+            raise InputError(f"position ({x:.0f}, {y:.0f}) px is far outside the {w}x{h} image")
+
+    def set_centre(self, x: float, y: float) -> None:
+        self._check_inside(x, y)
+        self._set_overrides(replace(self.overrides, centre_px=(float(x), float(y))))
+
+    def set_aperture(self, x: float, y: float, radius_px: float) -> None:
+        self._check_inside(x, y)
+        if not (math.isfinite(radius_px) and radius_px >= 8):
+            raise InputError("the aperture must be at least 8 px in radius")
+        self._set_overrides(replace(self.overrides, aperture_px=(float(x), float(y), float(radius_px))))
+
+    def clear_overrides(self) -> None:
+        self._set_overrides(Overrides())
+
+    @property
+    def can_undo(self) -> bool:
+        return bool(self._undo)
+
+    @property
+    def can_redo(self) -> bool:
+        return bool(self._redo)
+
+    def undo(self) -> None:
+        if self._undo:
+            self._redo.append(self.overrides)
+            self._set_overrides(self._undo.pop(), record=False)
+
+    def redo(self) -> None:
+        if self._redo:
+            self._undo.append(self.overrides)
+            self._set_overrides(self._redo.pop(), record=False)
+
+    # -- analysis ---------------------------------------------------------------------------------------
+    def make_job(self) -> Job:
+        """Snapshot the inputs for one analysis. Raises :class:`InputError` when they are incomplete."""
+        if not self.frames:
+            raise InputError("no image open; open an interferogram first (File > Open, or drop a file)")
+        setup = self.setup.to_bench_setup(overrides=self.overrides)
+        job = Job(self.generation, self.frames, setup, self.overrides, self.analyse_fn)
+        if self._job is not None and self._job.generation != job.generation:
+            self._job.cancelled = True
+        self._job = job
+        self.busy = True
+        self.progress = (0.0, "starting")
+        self.changed.emit("busy")
+        return job
+
+    def is_current(self, job: Job) -> bool:
+        return job.generation == self.generation and not job.cancelled
+
+    def report_progress(self, job: Job, fraction: float, message: str) -> None:
+        if self.is_current(job):
+            self.progress = (fraction, message)
+            self.changed.emit("busy")
+
+    def accept(self, job: Job, result) -> bool:
+        """Take a finished result; returns False (and drops it) when the inputs changed meanwhile."""
+        if not self.is_current(job):
+            return False
+        self._job = None
+        self.busy = False
+        self.result = result
+        self.error = None
+        self.changed.emit("result")
+        return True
+
+    def fail(self, job: Job, message: str) -> bool:
+        if job.generation != self.generation:
+            return False
+        self._job = None
+        self.busy = False
+        self.result = None
+        self.error = message
+        self.changed.emit("error")
+        return True
+
+    def run_now(self):
+        """Run the analysis in this thread (command line, tests); returns the result or raises."""
+        job = self.make_job()
+        try:
+            result = job.run()
+        except RinggaugeError as exc:
+            self.fail(job, str(exc))
+            raise
+        self.accept(job, result)
+        return result
+
+
+class FolderWatch:
+    """New image files in a folder where a camera drops them, reported once each file has stopped growing.
+
+    Call :meth:`poll` regularly (the window does every second): a file is reported when its size was the same
+    at two polls in a row, so a half-written frame is never opened. Files present when watching began are
+    not reported.
+    """
+
+    def __init__(self, folder: str | os.PathLike):
+        self.folder = os.fspath(folder)
+        if not os.path.isdir(self.folder):
+            raise InputError(f"{self.folder}: no such folder to watch")
+        self._seen: set[str] = set(image_files(self.folder))
+        self._pending: dict[str, int] = {}
+
+    def poll(self) -> list[str]:
+        try:
+            now = image_files(self.folder)
+        except InputError:
+            return []  # the folder went away (network share); keep watching quietly
+        ready = []
+        for p in now:
+            if p in self._seen:
+                continue
+            try:
+                size = os.path.getsize(p)
+            except OSError:
+                continue
+            if size > 0 and self._pending.get(p) == size:
+                ready.append(p)
+                self._seen.add(p)
+                self._pending.pop(p, None)
+            else:
+                self._pending[p] = size
+        return ready

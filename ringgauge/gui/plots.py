@@ -1,0 +1,131 @@
+"""Plots of a result with matplotlib's Qt canvas: r² against fringe order with the fitted line and its
+residuals, the radial profile with its extrema, and the surface-form map with a colour scale."""
+
+from __future__ import annotations
+
+import os
+
+os.environ.setdefault("QT_API", "pyside6")
+
+import numpy as np  # noqa: E402
+from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
+from PySide6.QtWidgets import QTabWidget  # noqa: E402
+
+from . import display  # noqa: E402
+
+# Okabe & Ito (2008) colours, as in the image view
+C_DARK = "#E69F00"
+C_BRIGHT = "#0072B2"
+C_LINE = "#222222"
+C_OUT = "#D55E00"
+
+_RC = {"font.size": 10.5, "axes.grid": True, "grid.alpha": 0.3}
+
+
+class PlotCanvas(FigureCanvasQTAgg):
+    def __init__(self, parent=None):
+        self.figure = Figure(figsize=(5, 3.2), dpi=96, layout="constrained")
+        super().__init__(self.figure)
+        self.setParent(parent)
+        self.setMinimumHeight(180)
+        self.has_data = False
+
+    def empty(self, text: str) -> None:
+        self.figure.clear()
+        ax = self.figure.add_subplot(111)
+        ax.set_axis_off()
+        ax.text(0.5, 0.5, text, ha="center", va="center", transform=ax.transAxes, color="#555555", wrap=True)
+        self.has_data = False
+        self.draw_idle()
+
+
+class PlotPanel(QTabWidget):
+    """Three tabs of plots; :meth:`show_result` redraws all from a result dict."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.rings = PlotCanvas(self)
+        self.profile = PlotCanvas(self)
+        self.form = PlotCanvas(self)
+        self.addTab(self.rings, "r² against order")
+        self.addTab(self.profile, "Radial profile")
+        self.addTab(self.form, "Form map")
+        self.clear()
+
+    def clear(self) -> None:
+        for c in (self.rings, self.profile, self.form):
+            c.empty("no result yet")
+
+    def show_result(self, d: dict | None, *, form_obj=None, shape=None) -> None:
+        import matplotlib
+
+        with matplotlib.rc_context(_RC):
+            self._rings(d)
+            self._profile(d)
+            self._form(d, form_obj, shape)
+
+    def _rings(self, d) -> None:
+        data = display.ring_plot_data(d)
+        c = self.rings
+        if data is None:
+            c.empty("no rings in this result")
+            return
+        c.figure.clear()
+        ax, axr = c.figure.subplots(2, 1, sharex=True, height_ratios=[3, 1.3])
+        m, r2, used = data["order"], data["r2_mm2"], data["used"]
+        ax.errorbar(m[used], r2[used], yerr=data["u_r2_mm2"][used], fmt="o", ms=4, color=C_DARK,
+                    label="ring (used)", zorder=3)
+        if (~used).any():
+            ax.plot(m[~used], r2[~used], "x", ms=6, color=C_OUT, label="ring (left out)", zorder=3)
+        if data["slope_mm2"] is not None and data["intercept_mm2"] is not None:
+            xs = np.linspace(min(0.0, m.min()), m.max() + 0.5, 50)
+            ax.plot(xs, data["slope_mm2"] * xs + data["intercept_mm2"], "-", color=C_LINE, lw=1.2,
+                    label=f"fit: {data['slope_mm2']:.5g} mm² per fringe")
+        ax.set_ylabel("r² / mm²")
+        ax.legend(loc="upper left", fontsize=9)
+        axr.axhline(0, color=C_LINE, lw=0.8)
+        axr.plot(m[used], data["residual_um2"][used], "o", ms=4, color=C_DARK)
+        if (~used).any():
+            axr.plot(m[~used], data["residual_um2"][~used], "x", ms=6, color=C_OUT)
+        axr.set_ylabel("residual / µm²")
+        axr.set_xlabel("fringe order m")
+        c.has_data = True
+        c.draw_idle()
+
+    def _profile(self, d) -> None:
+        data = display.profile_plot_data(d)
+        c = self.profile
+        if data is None:
+            c.empty("this result carries no radial profile")
+            return
+        c.figure.clear()
+        ax = c.figure.add_subplot(111)
+        ax.plot(data["r_px"], data["intensity"], "-", color=C_BRIGHT, lw=1.0, label="mean intensity")
+        ex = data["extrema_r_px"]
+        if ex.size:
+            yi = np.interp(ex, data["r_px"], data["intensity"])
+            ax.plot(ex, yi, "v", color=C_DARK, ms=6, label="detected extrema")
+        ax.set_xlabel(data["xlabel"])
+        ax.set_ylabel("intensity (full scale = 1)")
+        ax.legend(loc="upper right", fontsize=9)
+        c.has_data = True
+        c.draw_idle()
+
+    def _form(self, d, form_obj, shape) -> None:
+        data = display.form_map(d, form_obj, shape)
+        c = self.form
+        if data is None or not np.isfinite(data["gap_nm"]).any():
+            c.empty("no form map for this result")
+            return
+        c.figure.clear()
+        ax = c.figure.add_subplot(111)
+        im = ax.imshow(data["gap_nm"], extent=data["extent_px"], cmap="cividis", interpolation="nearest")
+        ax.set_aspect("equal")
+        ax.set_xlabel("x / px")
+        ax.set_ylabel("y / px")
+        ax.set_title(data["title"], fontsize=10)
+        cb = c.figure.colorbar(im, ax=ax, shrink=0.9)
+        cb.set_label("gap / nm")
+        c.has_data = True
+        c.draw_idle()

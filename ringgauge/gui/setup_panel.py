@@ -1,0 +1,245 @@
+"""The bench set-up panel: light source, pixel scale, gap medium, test plate, tolerance, operator.
+
+Bound to a :class:`~ringgauge.gui.model.BenchSession` in both directions: an edit updates the session, a
+change of the session (loaded settings, undo, a test) updates the widgets.
+"""
+
+from __future__ import annotations
+
+from contextlib import contextmanager
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDoubleSpinBox,
+    QFormLayout,
+    QGroupBox,
+    QLabel,
+    QLineEdit,
+    QVBoxLayout,
+    QWidget,
+)
+
+from ..sources import SOURCES
+from . import integrations
+from .model import CUSTOM, MEDIA, BenchSession, SetupState
+
+
+def _spin(lo: float, hi: float, decimals: int, step: float, suffix: str, tip: str) -> QDoubleSpinBox:
+    s = QDoubleSpinBox()
+    s.setRange(lo, hi)
+    s.setDecimals(decimals)
+    s.setSingleStep(step)
+    s.setSuffix(suffix)
+    s.setToolTip(tip)
+    s.setKeyboardTracking(False)  # commit when the operator stops typing, not at every digit
+    s.setAccessibleName(tip)
+    return s
+
+
+class SetupPanel(QWidget):
+    def __init__(self, session: BenchSession, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self._syncing = False
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(6, 6, 6, 6)
+
+        # light --------------------------------------------------------------------------------------------
+        g = QGroupBox("Light")
+        f = QFormLayout(g)
+        self.source = QComboBox()
+        for key, s in SOURCES.items():
+            self.source.addItem(f"{s.name} — {s.wavelength_nm:g} nm", key)
+        self.source.addItem("Custom wavelength…", CUSTOM)
+        self.source.setToolTip("Lamp or laser; its standard air wavelength and uncertainty enter the result")
+        f.addRow("Source", self.source)
+        self.wavelength = _spin(200, 2000, 4, 0.1, " nm", "Custom source wavelength (standard air), nm")
+        self.wavelength_u = _spin(0, 50, 4, 0.001, " nm", "Standard uncertainty of the custom wavelength, nm")
+        f.addRow("Wavelength", self.wavelength)
+        f.addRow("u(λ)", self.wavelength_u)
+        lay.addWidget(g)
+
+        # camera ---------------------------------------------------------------------------------------------
+        g = QGroupBox("Camera scale")
+        f = QFormLayout(g)
+        self.profile = QComboBox()
+        f.addRow("Bench profile", self.profile)
+        self.pixel = _spin(0.01, 10000, 4, 0.01, " µm", "Object-space pixel size, micrometres per pixel")
+        self.pixel_u = _spin(0, 1000, 4, 0.001, " µm", "Standard uncertainty of the pixel size (k = 1)")
+        f.addRow("Pixel size", self.pixel)
+        f.addRow("u(pixel)", self.pixel_u)
+        lay.addWidget(g)
+
+        # gap -----------------------------------------------------------------------------------------------
+        g = QGroupBox("Gap")
+        f = QFormLayout(g)
+        self.medium = QComboBox()
+        for key, (label, n, _u) in MEDIA.items():
+            self.medium.addItem(f"{label} (n = {n:g})", key)
+        self.medium.addItem("Other liquid…", CUSTOM)
+        f.addRow("Medium", self.medium)
+        self.index = _spin(1.0, 2.5, 4, 0.001, "", "Refractive index of the gap medium")
+        self.index_u = _spin(0, 0.1, 4, 0.0005, "", "Standard uncertainty of the index")
+        f.addRow("Index n", self.index)
+        f.addRow("u(n)", self.index_u)
+        self.kind = QComboBox()
+        self.kind.addItem("Dark rings (r² = mλR/n)", "dark")
+        self.kind.addItem("Bright rings (r² = (m − ½)λR/n)", "bright")
+        self.kind.setToolTip("Which rings are counted as fringe orders (in reflection, contact is dark)")
+        f.addRow("Count", self.kind)
+        lay.addWidget(g)
+
+        # form --------------------------------------------------------------------------------------------------
+        g = QGroupBox("Form against a test plate")
+        f = QFormLayout(g)
+        self.plate = QComboBox()
+        f.addRow("Test plate", self.plate)
+        self.tolerance = QLineEdit()
+        self.tolerance.setPlaceholderText("e.g. 3/2(0.5)")
+        self.tolerance.setToolTip("ISO 10110-5 form tolerance A/B(C), in fringes at the stated wavelength")
+        f.addRow("Tolerance", self.tolerance)
+        self.diameter = _spin(0, 1000, 2, 0.5, " mm", "Test diameter over which the form is evaluated, mm")
+        self.diameter.setSpecialValueText("not set")
+        f.addRow("Test diameter", self.diameter)
+        lay.addWidget(g)
+
+        # who ----------------------------------------------------------------------------------------------------
+        g = QGroupBox("Inspection")
+        f = QFormLayout(g)
+        self.operator = QLineEdit()
+        self.operator.setPlaceholderText("initials or name")
+        f.addRow("Operator", self.operator)
+        lay.addWidget(g)
+
+        for combo in (self.source, self.profile, self.medium, self.kind, self.plate):
+            # keep the panel narrow; the open list shows the full names
+            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            combo.setMinimumContentsLength(16)
+        self.note = QLabel("")
+        self.note.setWordWrap(True)
+        self.note.setObjectName("setupNote")
+        lay.addWidget(self.note)
+        lay.addStretch(1)
+
+        self.reload_lists()
+        self.refresh()
+        self.source.currentIndexChanged.connect(self._edited)
+        self.profile.currentIndexChanged.connect(self._edited)
+        self.medium.currentIndexChanged.connect(self._edited)
+        self.kind.currentIndexChanged.connect(self._edited)
+        self.plate.currentIndexChanged.connect(self._edited)
+        for s in (self.wavelength, self.wavelength_u, self.pixel, self.pixel_u, self.index, self.index_u,
+                  self.diameter):
+            s.valueChanged.connect(self._edited)
+        self.tolerance.editingFinished.connect(self._edited)
+        self.operator.editingFinished.connect(self._edited)
+        session.changed.connect(self._on_session)
+
+    # lists that come from other modules -------------------------------------------------------------------------
+    def reload_lists(self) -> None:
+        with self._quiet():
+            self.profile.clear()
+            self.profile.addItem("(none: type the pixel size)", "")
+            names = integrations.profile_names()
+            for n in names:
+                self.profile.addItem(n, n)
+            self.profile.setEnabled(bool(names))
+            self.profile.setToolTip("Saved calibration of a camera on a bench" if names
+                                    else "No bench calibration profiles saved yet")
+            self.plate.clear()
+            self.plate.addItem("(none: lens on an optical flat)", "")
+            ids = integrations.plate_ids()
+            for p in ids:
+                self.plate.addItem(p, p)
+            self.plate.setEnabled(bool(ids))
+            self.plate.setToolTip("Test plate from the register" if ids else "The test-plate register is empty")
+
+    @contextmanager
+    def _quiet(self):
+        old = self._syncing
+        self._syncing = True
+        try:
+            yield
+        finally:
+            self._syncing = old
+
+    # session -> widgets -------------------------------------------------------------------------------------
+    def _on_session(self, what: str) -> None:
+        if what == "setup":
+            self.refresh()
+
+    @staticmethod
+    def _select(combo: QComboBox, data) -> None:
+        i = combo.findData(data)
+        if i < 0 and data:
+            combo.addItem(f"{data} (not found)", data)
+            i = combo.count() - 1
+        combo.setCurrentIndex(max(i, 0))
+
+    def refresh(self) -> None:
+        s = self.session.setup
+        with self._quiet():
+            self._select(self.source, s.source)
+            self.wavelength.setValue(s.custom_wavelength_nm)
+            self.wavelength_u.setValue(s.custom_wavelength_u_nm)
+            custom = s.source == CUSTOM
+            self.wavelength.setEnabled(custom)
+            self.wavelength_u.setEnabled(custom)
+            if not custom:
+                src = SOURCES[s.source] if s.source in SOURCES else None
+                if src is not None:
+                    self.wavelength.setValue(src.wavelength_nm)
+                    self.wavelength_u.setValue(src.wavelength_u_nm)
+            self._select(self.profile, s.bench_profile)
+            self.pixel.setValue(s.pixel_size_um)
+            self.pixel_u.setValue(s.pixel_size_u_um)
+            self.pixel.setEnabled(not s.bench_profile)
+            self.pixel_u.setEnabled(not s.bench_profile)
+            self._select(self.medium, s.medium)
+            cm = s.medium == CUSTOM
+            n, nu = (s.medium_index, s.medium_index_u) if cm else MEDIA.get(s.medium, ("", 1.0, 0.0))[1:]
+            self.index.setValue(n)
+            self.index_u.setValue(nu)
+            self.index.setEnabled(cm)
+            self.index_u.setEnabled(cm)
+            self._select(self.kind, s.fringe_kind)
+            self._select(self.plate, s.test_plate)
+            if self.tolerance.text() != s.tolerance:
+                self.tolerance.setText(s.tolerance)
+            self.diameter.setValue(s.test_diameter_mm or 0.0)
+            if self.operator.text() != s.operator:
+                self.operator.setText(s.operator)
+        self.note.setText(self._note(s))
+
+    def _note(self, s: SetupState) -> str:
+        if s.source in SOURCES and SOURCES[s.source].hazard:
+            return "Caution: " + SOURCES[s.source].hazard
+        return ""
+
+    # widgets -> session -------------------------------------------------------------------------------------
+    def state_from_widgets(self) -> dict:
+        d = {
+            "source": self.source.currentData(),
+            "bench_profile": self.profile.currentData() or "",
+            "pixel_size_um": self.pixel.value(),
+            "pixel_size_u_um": self.pixel_u.value(),
+            "medium": self.medium.currentData(),
+            "fringe_kind": self.kind.currentData(),
+            "test_plate": self.plate.currentData() or "",
+            "tolerance": self.tolerance.text().strip(),
+            "test_diameter_mm": self.diameter.value() or None,
+            "operator": self.operator.text().strip(),
+        }
+        if d["source"] == CUSTOM:
+            d["custom_wavelength_nm"] = self.wavelength.value()
+            d["custom_wavelength_u_nm"] = self.wavelength_u.value()
+        if d["medium"] == CUSTOM:
+            d["medium_index"] = self.index.value()
+            d["medium_index_u"] = self.index_u.value()
+        return d
+
+    def _edited(self, *_args) -> None:
+        if self._syncing:
+            return
+        self.session.update_setup(**self.state_from_widgets())

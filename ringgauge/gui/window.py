@@ -1,0 +1,570 @@
+"""The main window: the bench page (set-up, photograph with overlay, plots, results), the lot review page and
+the training page, with menus, shortcuts, recent files, drag and drop and a watched camera folder."""
+
+from __future__ import annotations
+
+import html
+import json
+import os
+
+from PySide6.QtCore import QSize, Qt, QTimer
+from PySide6.QtGui import QAction, QActionGroup, QKeySequence
+from PySide6.QtWidgets import (
+    QDialog,
+    QDialogButtonBox,
+    QFileDialog,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QScrollArea,
+    QSplitter,
+    QTabWidget,
+    QTextBrowser,
+    QToolBar,
+    QVBoxLayout,
+    QWidget,
+)
+
+from .. import __version__
+from ..errors import RinggaugeError
+from ..imaging import IMAGE_SUFFIXES
+from ..sources import SAFETY_NOTES
+from . import display
+from .image_view import LAYERS, ImageView
+from .lot_view import LotPage
+from .model import BenchSession, FolderWatch, Job
+from .plots import PlotPanel
+from .prefs import Prefs
+from .results_panel import ResultsPanel
+from .setup_panel import SetupPanel
+from .training_view import TrainingPage
+from .worker import Runner
+
+APP_TITLE = "ringgauge bench"
+IMAGE_FILTER = "Interferograms (" + " ".join(f"*{s}" for s in IMAGE_SUFFIXES) + ");;All files (*)"
+
+SHORTCUTS = (
+    ("Ctrl+O", "Open an image"),
+    ("Ctrl+Shift+O", "Open a set of frames"),
+    ("F5", "Analyse again"),
+    ("C", "Pick the ring centre by hand (click on the image)"),
+    ("A", "Pick the aperture by hand (press at its centre, drag to its edge)"),
+    ("Esc", "Back to looking (pan with the mouse)"),
+    ("Ctrl+Z / Ctrl+Shift+Z", "Undo / redo a manual centre or aperture"),
+    ("R", "Residual view (fit minus image) on and off"),
+    ("1 … 5", "Overlay layers on and off: rings, aperture, masks, meridians, centre"),
+    ("F or Ctrl+0", "Fit the image to the window"),
+    ("Ctrl++ / Ctrl+−, mouse wheel", "Zoom in / out"),
+    ("Ctrl+1 / Ctrl+2 / Ctrl+3", "Bench, lot review, training"),
+    ("Ctrl+S", "Save the result as JSON"),
+    ("F1", "Help and bench safety"),
+)
+
+
+class BenchPage(QWidget):
+    """Set-up on the left, the photograph in the middle, verdict, values and plots on the right."""
+
+    def __init__(self, session: BenchSession, parent=None):
+        super().__init__(parent)
+        self.session = session
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        self.setup_panel = SetupPanel(session)
+        scroll = QScrollArea()
+        scroll.setWidget(self.setup_panel)
+        scroll.setWidgetResizable(True)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        scroll.setMinimumWidth(self.setup_panel.sizeHint().width() + 24)
+        self.setup_scroll = scroll
+        self.view = ImageView()
+        self.plots = PlotPanel()
+        self.results = ResultsPanel()
+        self.title = QLabel("No image open")
+        self.title.setObjectName("imageTitle")
+        self.hint = QLabel("")
+        self.hint.setObjectName("modeHint")
+        middle = QWidget()
+        ml = QVBoxLayout(middle)
+        ml.setContentsMargins(0, 0, 0, 0)
+        ml.addWidget(self.title)
+        ml.addWidget(self.view, 1)
+        ml.addWidget(self.hint)
+        right = QSplitter(Qt.Orientation.Vertical)
+        right.addWidget(self.results)
+        right.addWidget(self.plots)
+        right.setSizes([400, 330])
+        self.split = QSplitter(Qt.Orientation.Horizontal)
+        self.split.addWidget(scroll)
+        self.split.addWidget(middle)
+        self.split.addWidget(right)
+        self.split.setStretchFactor(0, 0)
+        self.split.setStretchFactor(1, 3)
+        self.split.setStretchFactor(2, 2)
+        self.split.setSizes([330, 520, 430])
+        lay.addWidget(self.split)
+
+
+class MainWindow(QMainWindow):
+    def __init__(self, session: BenchSession | None = None, *, prefs: Prefs | None = None, autosave: bool = True):
+        super().__init__()
+        self.prefs = prefs or Prefs()
+        self.session = session or BenchSession(setup=self.prefs.load_setup())
+        self.autosave = autosave
+        self.runner = Runner(self)
+        self.runner.signals.progress.connect(self._job_progress)
+        self.runner.signals.finished.connect(self._job_finished)
+        self.runner.signals.failed.connect(self._job_failed)
+        self.runner.signals.cancelled.connect(self._job_cancelled)
+        self.residual_on = False
+        self.auto_analyse = True
+        self.watch: FolderWatch | None = None
+        self._residual_cache = None
+
+        self.setWindowTitle(APP_TITLE)
+        self.setAcceptDrops(True)
+        self.tabs = QTabWidget()
+        self.tabs.setDocumentMode(True)
+        self.bench = BenchPage(self.session)
+        self.lot = LotPage(self.session, self.runner)
+        self.training = TrainingPage(self.prefs)
+        self.tabs.addTab(self.bench, "Bench")
+        self.tabs.addTab(self.lot, "Lot review")
+        self.tabs.addTab(self.training, "Training")
+        self.setCentralWidget(self.tabs)
+        self.lot.openInBench.connect(self._open_lot_row)
+
+        self.progress = QProgressBar()
+        self.progress.setRange(0, 100)
+        self.progress.setMaximumWidth(220)
+        self.progress.setVisible(False)
+        self.status = QLabel("Ready")
+        self.statusBar().addWidget(self.status, 1)
+        self.statusBar().addPermanentWidget(self.progress)
+
+        self._debounce = QTimer(self)
+        self._debounce.setSingleShot(True)
+        self._debounce.setInterval(350)
+        self._debounce.timeout.connect(self.analyse)
+        self._watch_timer = QTimer(self)
+        self._watch_timer.setInterval(1000)
+        self._watch_timer.timeout.connect(self.poll_watch)
+
+        self._build_actions()
+        self.bench.view.centrePicked.connect(self._centre_picked)
+        self.bench.view.aperturePicked.connect(self._aperture_picked)
+        self.session.changed.connect(self._on_session)
+        self.resize(QSize(1280, 800))
+        geo = self.prefs.get("window/geometry")
+        if geo is not None:
+            self.restoreGeometry(geo)
+
+    # -- actions ------------------------------------------------------------------------------------------
+    def _act(self, text: str, slot, shortcut=None, *, checkable=False, tip: str = "", short: str = "") -> QAction:
+        a = QAction(text, self)
+        if short:
+            a.setIconText(short)  # what the tool bar shows
+        if shortcut:
+            if isinstance(shortcut, (list, tuple)):
+                a.setShortcuts([QKeySequence(s) for s in shortcut])
+            else:
+                a.setShortcut(QKeySequence(shortcut))
+        a.setCheckable(checkable)
+        if tip:
+            a.setStatusTip(tip)
+            a.setToolTip(f"{text.replace('&', '').replace('…', '')} ({a.shortcut().toString()})" if shortcut else tip)
+        a.triggered.connect(slot)
+        self.addAction(a)  # shortcuts work whichever widget has the focus
+        return a
+
+    def _build_actions(self) -> None:
+        mb = self.menuBar()
+        m = mb.addMenu("&File")
+        self.a_open = self._act("&Open image…", self.open_dialog, QKeySequence.StandardKey.Open,
+                                tip="Open one interferogram", short="Open")
+        self.a_open_set = self._act("Open &frame set…", self.open_set_dialog, "Ctrl+Shift+O",
+                                    tip="Open several frames of one measurement (e.g. a sign pair)")
+        m.addAction(self.a_open)
+        m.addAction(self.a_open_set)
+        self.recent_menu = m.addMenu("Open &recent")
+        self._fill_recent()
+        m.addSeparator()
+        self.a_watch = self._act("&Watch camera folder…", self.watch_dialog, "Ctrl+Shift+W",
+                                 tip="Analyse each new image the bench camera drops into a folder")
+        self.a_unwatch = self._act("Stop watching", self.stop_watch)
+        self.a_unwatch.setEnabled(False)
+        m.addAction(self.a_watch)
+        m.addAction(self.a_unwatch)
+        m.addSeparator()
+        self.a_save = self._act("&Save result as JSON…", self.save_json, QKeySequence.StandardKey.Save)
+        m.addAction(self.a_save)
+        m.addSeparator()
+        m.addAction(self._act("&Quit", self.close, QKeySequence.StandardKey.Quit))
+
+        m = mb.addMenu("&Edit")
+        self.a_undo = self._act("&Undo manual setting", self.session.undo, QKeySequence.StandardKey.Undo, short="Undo")
+        self.a_redo = self._act("&Redo manual setting", self.session.redo, ["Ctrl+Shift+Z", "Ctrl+Y"])
+        m.addAction(self.a_undo)
+        m.addAction(self.a_redo)
+        m.addSeparator()
+        grp = QActionGroup(self)
+        self.a_look = self._act("&Look and pan", lambda: self.set_mode("look"), "Esc", checkable=True, short="Pan")
+        self.a_pick_centre = self._act("Set &centre by hand", lambda: self.set_mode("centre"), "C",
+                                       checkable=True, tip="Click on the ring centre", short="Centre")
+        self.a_pick_aperture = self._act("Set &aperture by hand", lambda: self.set_mode("aperture"), "A",
+                                         checkable=True, tip="Press at the aperture centre and drag to its edge", short="Aperture")
+        for a in (self.a_look, self.a_pick_centre, self.a_pick_aperture):
+            grp.addAction(a)
+            m.addAction(a)
+        self.a_look.setChecked(True)
+        self.a_clear = self._act("Clear manual settings", self.session.clear_overrides)
+        m.addAction(self.a_clear)
+
+        m = mb.addMenu("&Analysis")
+        self.a_analyse = self._act("&Analyse now", self.analyse, "F5", tip="Run the analysis again", short="Analyse")
+        self.a_auto = self._act("Analyse &automatically on every change", self._toggle_auto, checkable=True)
+        self.a_auto.setChecked(True)
+        m.addAction(self.a_analyse)
+        m.addAction(self.a_auto)
+
+        m = mb.addMenu("&View")
+        self.layer_actions = {}
+        for i, (key, label) in enumerate(LAYERS.items(), start=1):
+            a = self._act(label, lambda on, k=key: self.set_layer(k, on), str(i), checkable=True)
+            a.setChecked(True)
+            self.layer_actions[key] = a
+            m.addAction(a)
+        m.addSeparator()
+        self.a_residual = self._act("&Residual view (fit minus image)", self.toggle_residual, "R", checkable=True, short="Residual")
+        m.addAction(self.a_residual)
+        m.addSeparator()
+        self.a_fit = self._act("&Fit to window", self.bench.view.fit, ["F", "Ctrl+0"], short="Fit")
+        self.a_zoom_in = self._act("Zoom &in", lambda: self.bench.view.zoom_by(1.25), QKeySequence.StandardKey.ZoomIn)
+        self.a_zoom_out = self._act("Zoom &out", lambda: self.bench.view.zoom_by(0.8),
+                                    QKeySequence.StandardKey.ZoomOut)
+        for a in (self.a_fit, self.a_zoom_in, self.a_zoom_out):
+            m.addAction(a)
+        m.addSeparator()
+        for i, name in enumerate(("Bench", "Lot review", "Training")):
+            m.addAction(self._act(name, lambda _=False, i=i: self.tabs.setCurrentIndex(i), f"Ctrl+{i + 1}"))
+
+        m = mb.addMenu("&Help")
+        self.a_help = self._act("Help and bench &safety", self.show_help, "F1", short="Help")
+        m.addAction(self.a_help)
+        m.addAction(self._act("&About", self.show_about))
+
+        tb = QToolBar("Bench")
+        tb.setObjectName("benchToolbar")
+        tb.setMovable(False)
+        tb.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
+        for a in (self.a_open, self.a_analyse, None, self.a_look, self.a_pick_centre, self.a_pick_aperture,
+                  self.a_undo, None, self.a_residual, self.a_fit, None, self.a_help):
+            if a is None:
+                tb.addSeparator()
+            else:
+                tb.addAction(a)
+        self.addToolBar(tb)
+        self._sync_undo()
+
+    # -- opening -------------------------------------------------------------------------------------------
+    def open_dialog(self) -> None:
+        start = self.prefs.get("files/last_folder", "")
+        p, _ = QFileDialog.getOpenFileName(self, "Open interferogram", start, IMAGE_FILTER)
+        if p:
+            self.open_paths([p])
+
+    def open_set_dialog(self) -> None:
+        start = self.prefs.get("files/last_folder", "")
+        ps, _ = QFileDialog.getOpenFileNames(self, "Open the frames of one measurement", start, IMAGE_FILTER)
+        if ps:
+            self.open_paths(ps)
+
+    def open_paths(self, paths) -> bool:
+        """Open files (or a folder of frames); on a bad file show its message and keep what was open."""
+        self.tabs.setCurrentWidget(self.bench)
+        try:
+            self.session.open_paths(paths)
+        except RinggaugeError as exc:
+            self.show_problem(str(exc))
+            return False
+        for p in paths:
+            self.prefs.add_recent(os.fspath(p))
+        self.prefs.set("files/last_folder", os.path.dirname(os.path.abspath(os.fspath(paths[0]))))
+        self._fill_recent()
+        return True
+
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        items = self.prefs.recent()
+        for p in items:
+            a = self.recent_menu.addAction(p)
+            a.triggered.connect(lambda _=False, p=p: self.open_paths([p]))
+        self.recent_menu.setEnabled(bool(items))
+
+    def dragEnterEvent(self, event):  # noqa: N802
+        if event.mimeData().hasUrls() and any(u.isLocalFile() for u in event.mimeData().urls()):
+            event.acceptProposedAction()
+
+    def dropEvent(self, event):  # noqa: N802
+        paths = [u.toLocalFile() for u in event.mimeData().urls() if u.isLocalFile()]
+        if paths:
+            self.open_paths(paths)
+            event.acceptProposedAction()
+
+    # -- watching a camera folder ---------------------------------------------------------------------------------
+    def watch_dialog(self) -> None:
+        d = QFileDialog.getExistingDirectory(self, "Folder where the bench camera saves images",
+                                             self.prefs.get("files/watch_folder", ""))
+        if d:
+            self.start_watch(d)
+
+    def start_watch(self, folder: str) -> bool:
+        try:
+            self.watch = FolderWatch(folder)
+        except RinggaugeError as exc:
+            self.show_problem(str(exc))
+            return False
+        self.prefs.set("files/watch_folder", folder)
+        self._watch_timer.start()
+        self.a_unwatch.setEnabled(True)
+        self.set_status(f"Watching {folder} for new images")
+        return True
+
+    def stop_watch(self) -> None:
+        self._watch_timer.stop()
+        self.watch = None
+        self.a_unwatch.setEnabled(False)
+        self.set_status("Stopped watching")
+
+    def poll_watch(self) -> list[str]:
+        if self.watch is None:
+            return []
+        new = self.watch.poll()
+        if new:
+            self.open_paths([new[-1]])  # the newest frame; the bench looks at one part at a time
+            self.set_status(f"New image from the camera: {os.path.basename(new[-1])}")
+        return new
+
+    # -- analysis -------------------------------------------------------------------------------------------------
+    def _toggle_auto(self, on: bool) -> None:
+        self.auto_analyse = bool(on)
+
+    def analyse(self) -> bool:
+        self._debounce.stop()
+        try:
+            job = self.session.make_job()
+        except RinggaugeError as exc:
+            self.session.error = str(exc)
+            self.bench.results.show_error(str(exc))
+            self.set_status(str(exc))
+            return False
+        self.progress.setValue(0)
+        self.progress.setVisible(True)
+        self.runner.submit(job, job.run)
+        return True
+
+    def _job_progress(self, job: Job, fraction: float, message: str) -> None:
+        self.session.report_progress(job, fraction, message)
+
+    def _job_finished(self, job: Job, result) -> None:
+        self.session.accept(job, result)
+
+    def _job_failed(self, job: Job, message: str) -> None:
+        self.session.fail(job, message)
+
+    def _job_cancelled(self, job: Job) -> None:
+        if job.generation == self.session.generation:
+            self.progress.setVisible(False)
+
+    def _on_session(self, what: str) -> None:
+        s = self.session
+        page = self.bench
+        if what in ("frames", "setup", "overrides"):
+            self._residual_cache = None
+            if what == "frames":
+                self.residual_on = False
+                self.a_residual.setChecked(False)
+                page.title.setText(s.title or "No image open")
+                self._show_photo(refit=True)
+                page.results.clear()
+                page.plots.clear()
+            if what == "setup" and self.autosave:
+                self.prefs.save_setup(s.setup)
+            page.view.set_overlay(display.overlay_from(s.result.to_dict() if s.result else None,
+                                                       s.overrides.as_extras()))
+            self._sync_undo()
+            if what == "overrides":
+                page.hint.setText(s.overrides.describe())
+            if s.frames and self.auto_analyse:
+                self._debounce.start()
+        elif what == "busy":
+            f, msg = s.progress
+            self.progress.setVisible(True)
+            self.progress.setValue(int(round(100 * f)))
+            page.results.show_busy(f, msg)
+            self.set_status(f"Analysing: {msg}")
+        elif what == "result":
+            self.progress.setVisible(False)
+            self.show_result()
+        elif what == "error":
+            self.progress.setVisible(False)
+            page.results.show_error(s.error or "")
+            page.plots.clear()
+            page.view.set_overlay(display.overlay_from(None, s.overrides.as_extras()))
+            self.set_status(f"Analysis failed: {s.error}")
+
+    def show_result(self) -> None:
+        s, page = self.session, self.bench
+        d = s.result.to_dict() if s.result is not None else None
+        self._residual_cache = None
+        page.results.show_result(d)
+        page.view.set_overlay(display.overlay_from(d, s.overrides.as_extras()))
+        page.plots.show_result(d, form_obj=getattr(s.result, "form", None),
+                               shape=s.frames[0].shape if s.frames else None)
+        if self.residual_on:
+            self._show_photo()
+        v = display.verdict_view(d)
+        R = (d or {}).get("radius_mm")
+        extra = f"R = {display.value_rows(d)[0].value} mm" if R is not None else ""
+        self.set_status(f"Analysed {s.title}: {v.word}" + (f", {extra}" if extra else ""))
+
+    def _show_photo(self, *, refit: bool = False) -> None:
+        s, view = self.session, self.bench.view
+        if not s.frames:
+            view.set_image(None)
+            return
+        if self.residual_on:
+            if self._residual_cache is None:
+                d = s.result.to_dict() if s.result is not None else None
+                res = display.residual_image(s.frames[0].data, d)
+                self._residual_cache = None if res is None else display.signed_to_rgb(res)
+            if self._residual_cache is not None:
+                view.set_image(self._residual_cache, refit=refit)
+                self.bench.hint.setText("Residual view: fit minus image (orange: fit brighter, blue: image "
+                                        "brighter, grey: not fitted)")
+                return
+            self.bench.hint.setText("No residual for this result (no ring fit)")
+        view.set_image(display.image_to_u8(s.frames[0].data), refit=refit)
+
+    def toggle_residual(self, on: bool) -> None:
+        self.residual_on = bool(on)
+        if not on:
+            self.bench.hint.setText(self.session.overrides.describe() if not self.session.overrides.empty else "")
+        self._show_photo()
+
+    def set_layer(self, key: str, on: bool) -> None:
+        self.bench.view.set_layer_visible(key, on)
+        self.layer_actions[key].setChecked(bool(on))
+
+    # -- manual overrides -------------------------------------------------------------------------------------------
+    def set_mode(self, mode: str) -> None:
+        self.bench.view.set_mode(mode)
+        {"look": self.a_look, "centre": self.a_pick_centre, "aperture": self.a_pick_aperture}[mode].setChecked(True)
+        self.bench.hint.setText({
+            "look": "Drag to pan, wheel to zoom",
+            "centre": "Click on the ring centre (Esc to stop)",
+            "aperture": "Press at the aperture centre and drag to its edge (Esc to stop)",
+        }[mode])
+
+    def _centre_picked(self, x: float, y: float) -> None:
+        try:
+            self.session.set_centre(x, y)
+        except RinggaugeError as exc:
+            self.show_problem(str(exc))
+        self.set_mode("look")
+
+    def _aperture_picked(self, x: float, y: float, r: float) -> None:
+        try:
+            self.session.set_aperture(x, y, r)
+        except RinggaugeError as exc:
+            self.show_problem(str(exc))
+        self.set_mode("look")
+
+    def _sync_undo(self) -> None:
+        self.a_undo.setEnabled(self.session.can_undo)
+        self.a_redo.setEnabled(self.session.can_redo)
+        self.a_clear.setEnabled(not self.session.overrides.empty)
+
+    # -- lot rows ---------------------------------------------------------------------------------------------------
+    def _open_lot_row(self, path: str, result) -> None:
+        if self.open_paths([path]) and result is not None:
+            # show the lot's own result (made with the set-up it records) instead of analysing again
+            self._debounce.stop()
+            try:
+                job = self.session.make_job()
+            except RinggaugeError:
+                return
+            self.session.accept(job, result)
+            self.progress.setVisible(False)
+
+    # -- saving, messages, help ------------------------------------------------------------------------------------------
+    def save_json(self) -> None:
+        if self.session.result is None:
+            self.show_problem("nothing to save yet: analyse an image first")
+            return
+        base = os.path.splitext(self.session.frames[0].path or "result")[0] + ".json"
+        p, _ = QFileDialog.getSaveFileName(self, "Save result", base, "JSON (*.json)")
+        if p:
+            self.write_json(p)
+
+    def write_json(self, p: str) -> None:
+        try:
+            with open(p, "w", encoding="utf-8") as fh:
+                json.dump(self.session.result.to_dict(), fh, indent=2, ensure_ascii=False)
+        except OSError as exc:
+            self.show_problem(f"{p}: cannot write ({exc.strerror or exc})")
+            return
+        self.set_status(f"Saved {p}")
+
+    def set_status(self, text: str) -> None:
+        self.status.setText(text)
+
+    def show_problem(self, message: str) -> None:
+        """A one-line message in the status bar and the results banner; never a dialog that blocks tests."""
+        self.set_status(message)
+        self.bench.results.banner.show_error(message)
+
+    def help_html(self) -> str:
+        rows = "".join(f"<tr><td><b>{html.escape(k)}</b></td><td>{html.escape(v)}</td></tr>" for k, v in SHORTCUTS)
+        notes = "".join(f"<li>{html.escape(n)}</li>" for n in SAFETY_NOTES)
+        return (
+            "<h2>Bench safety</h2><ul>" + notes + "</ul>"
+            "<h2>Working at the bench</h2><ol>"
+            "<li>Fill in the bench set-up on the left: light source, pixel size with its uncertainty (or a saved "
+            "bench profile), gap medium, and — for form against a test plate — the plate, tolerance and test "
+            "diameter. The set-up is kept for the next session.</li>"
+            "<li>Open an image (Ctrl+O), drop it on the window, or watch the camera folder. The analysis runs "
+            "by itself; the banner on the right says PASS, FAIL or CONDITIONAL in words.</li>"
+            "<li>Check the overlay: fitted rings in orange (dark) or blue (bright), the centre cross, the "
+            "aperture in green. Dotted rings were left out of the fit.</li>"
+            "<li>On a hard image set the centre (C) or the aperture (A) by hand; Ctrl+Z undoes it.</li>"
+            "<li>The plots below the image show r² against fringe order with residuals, the radial profile "
+            "and the fitted gap map.</li></ol>"
+            "<h2>Keys</h2><table cellpadding='3'>" + rows + "</table>"
+        )
+
+    def show_help(self) -> None:
+        dlg = QDialog(self)
+        dlg.setWindowTitle("Help and bench safety")
+        lay = QVBoxLayout(dlg)
+        tb = QTextBrowser(dlg)
+        tb.setHtml(self.help_html())
+        lay.addWidget(tb)
+        bb = QDialogButtonBox(QDialogButtonBox.StandardButton.Close)
+        bb.rejected.connect(dlg.reject)
+        lay.addWidget(bb)
+        dlg.resize(720, 640)
+        self._help = dlg
+        dlg.show()
+
+    def show_about(self) -> None:
+        QMessageBox.about(self, "About", f"<b>ringgauge {__version__}</b><br>Lens metrology with interference "
+                                         "rings: radius of curvature, surface form, uncertainty.")
+
+    def closeEvent(self, event):  # noqa: N802
+        self.prefs.set("window/geometry", self.saveGeometry())
+        if self.autosave:
+            self.prefs.save_setup(self.session.setup)
+        self.session.changed.disconnect(self._on_session)
+        self.runner.wait(5000)
+        super().closeEvent(event)
