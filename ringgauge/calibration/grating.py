@@ -1,0 +1,605 @@
+"""Pixel scale from periodic targets: line scales (stage micrometers), line gratings, crossed grids, dot grids.
+
+Method
+------
+1. Flat-field: divide the image by a wide Gaussian-smoothed copy of itself, so uneven light and vignetting
+   drop out (they are multiplicative).
+2. Find the pattern's fundamental spatial frequency vector(s) f = (f_x, f_y) in cycles per pixel as the
+   strongest peak(s) of the Hann-windowed, zero-padded 2-D FFT, interpolated between bins. A peak whose
+   half or third also carries strong power is a harmonic and is replaced by that fundamental. For a crossed
+   grid or a dot grid the second direction is the strongest peak away from the first direction, and the pair
+   is reduced to the shortest basis of the reciprocal lattice (Lagrange-Gauss reduction).
+3. Refine f by non-linear least squares of a periodic model -- a constant, a plane, and cosines and sines of
+   the fundamental and its harmonics (plus the sum and difference terms of a grid) -- over the pixels where
+   the pattern is present. The model is linear in its amplitudes, so only f is iterated (variable projection,
+   Golub & Pereyra 1973); pixels with outlying residuals (dust, damaged lines) are dropped and the fit repeated.
+4. Covariance of f: Gauss-Newton, scaled by the reduced chi-square and by the residuals' neighbour
+   correlation (an AR(1) effective-sample-size factor), since neighbouring pixels are not independent.
+
+Geometry
+--------
+A line pattern of pitch P (µm) whose normal points along the unit vector n on the part images to the
+frequency f = Aᵀ n / P, where A maps pixel steps to µm. With the metric G = AᵀA:
+
+- one line set, x and y assumed equal: s = P |f|;
+- a square grid (two perpendicular line sets of the same pitch): G = P² (f1 f1ᵀ + f2 f2ᵀ), whatever the
+  grid's rotation;
+- one line scale photographed twice, turned between shots (pixel axes assumed perpendicular, G diagonal):
+  f_ix² / G_xx + f_iy² / G_yy = 1 / P² for i = 1, 2 -- two linear equations in 1/G_xx and 1/G_yy.
+
+References
+----------
+G. H. Golub, V. Pereyra, "The differentiation of pseudo-inverses and nonlinear least squares problems whose
+variables separate", SIAM J. Numer. Anal. 10 (1973) 413-432.
+D. C. Rife, R. R. Boorstyn, "Single-tone parameter estimation from discrete-time observations", IEEE Trans.
+Inf. Theory 20 (1974) 591-598 (FFT peak then refinement of a tone's frequency).
+JCGM 100:2008 (GUM) for the uncertainty.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import fft as sfft
+from scipy import ndimage
+
+from ..errors import CalibrationError, InputError
+from ..imaging import Frame, frame_from_array
+from .result import ScaleCalibration, assemble
+
+#: finest period accepted, pixels (below ~2.5 px the pattern is at the camera's sampling limit)
+MIN_PERIOD_PX = 2.5
+#: fewest periods across the image that give a trustworthy period
+MIN_PERIODS = 6
+#: peak-to-background ratio of the FFT below which no line pattern is declared
+MIN_PEAK_RATIO = 12.0
+#: share of the flat-fielded image's variance the periodic model must explain
+MIN_EXPLAINED = 0.2
+#: points used by the least-squares refinement (a regular sub-grid of the pattern area)
+MAX_FIT_POINTS = 60_000
+
+
+def _as_frame(image) -> Frame:
+    if isinstance(image, Frame):
+        return image
+    return frame_from_array(np.asarray(image))
+
+
+def _image_info(frame: Frame) -> dict:
+    h, w = frame.shape
+    return {"path": frame.path, "sha256": frame.sha256, "width": int(w), "height": int(h)}
+
+
+def _smooth(data: np.ndarray, sigma: float) -> np.ndarray:
+    """Gaussian-like low-pass of width ``sigma`` px: three box filters of width 2 sigma (fast for wide sigma)."""
+    w = max(3, int(round(2 * sigma)) | 1)
+    out = data
+    for _ in range(3):
+        out = ndimage.uniform_filter(out, w, mode="reflect")
+    return out
+
+
+def _flat_field(data: np.ndarray, sigma: float) -> np.ndarray:
+    bg = _smooth(data, sigma)
+    floor = max(1e-3, 0.02 * float(np.percentile(bg, 99)))
+    return data / np.maximum(bg, floor) - 1.0
+
+
+# ----------------------------------------------------------------------------------------------- FFT peaks
+
+
+class _Spectrum:
+    def __init__(self, z: np.ndarray):
+        H, W = z.shape
+        self.shape = (H, W)
+        win = np.outer(np.hanning(H), np.hanning(W))
+        zz = (z - z.mean()) * win
+        self.ny = sfft.next_fast_len(min(2 * H, 4096))
+        self.nx = sfft.next_fast_len(min(2 * W, 4096))
+        F = sfft.rfft2(zz, s=(self.ny, self.nx), workers=1)
+        self.mag = np.abs(F)
+        self.fy = sfft.fftfreq(self.ny)[:, None]
+        self.fx = sfft.rfftfreq(self.nx)[None, :]
+        self.fr = np.hypot(self.fx, self.fy)
+        fmin = max(MIN_PERIODS / min(H, W), 3.0 / min(H, W))
+        self.valid = (self.fr >= fmin) & (self.fr <= 1.0 / MIN_PERIOD_PX)
+
+    def peak(self, extra_mask=None):
+        m = self.valid if extra_mask is None else (self.valid & extra_mask)
+        if not m.any():
+            return None
+        masked = np.where(m, self.mag, 0.0)
+        iy, ix = np.unravel_index(int(np.argmax(masked)), masked.shape)
+        return self._refine(iy, ix)
+
+    def _refine(self, iy: int, ix: int):
+        """Sub-bin peak position by a parabola through the log-magnitudes of the neighbours."""
+        lm = np.log(self.mag + 1e-30)
+
+        def par(a, b, c):
+            den = a - 2 * b + c
+            return 0.0 if den >= 0 else 0.5 * (a - c) / den
+
+        ny, nx = self.mag.shape
+        dy = par(lm[(iy - 1) % ny, ix], lm[iy, ix], lm[(iy + 1) % ny, ix])
+        dx = par(lm[iy, ix - 1], lm[iy, ix], lm[iy, ix + 1]) if 0 < ix < nx - 1 else 0.0
+        fy = float(self.fy[iy, 0]) + dy / self.ny
+        fx = float(self.fx[0, ix]) + dx / self.nx
+        return np.array([fx, fy]), float(self.mag[iy, ix])
+
+    def value_near(self, f, radius_bins: float = 2.0) -> float:
+        """Largest magnitude within ``radius_bins`` of the frequency f (either sign)."""
+        fx, fy = f
+        if fx < 0:
+            fx, fy = -fx, -fy
+        d = np.hypot((self.fx - fx) * self.nx, (self.fy - fy) * self.ny)
+        near = d <= radius_bins
+        return float(self.mag[near].max()) if near.any() else 0.0
+
+    def background(self, f) -> float:
+        """Median magnitude over the annulus 0.5 |f| .. 1.5 |f|: the noise floor near the peak."""
+        r = math.hypot(*f)
+        ring = self.valid & (self.fr > 0.5 * r) & (self.fr < 1.5 * r)
+        return float(np.median(self.mag[ring])) if ring.any() else float(np.median(self.mag[self.valid]))
+
+    def direction_mask(self, f, exclude_deg: float = 20.0):
+        """True away from the line through the origin along f (either sign), by more than ``exclude_deg``."""
+        ang = np.degrees(np.arctan2(self.fy, self.fx))
+        a0 = math.degrees(math.atan2(f[1], f[0]))
+        dd = np.abs(((ang - a0) + 90.0) % 180.0 - 90.0)
+        return dd > exclude_deg
+
+
+def _fundamental(spec: _Spectrum, f, amp):
+    """Replace a harmonic by its fundamental when f/2 or f/3 carries comparable power."""
+    for n in (3, 2):
+        g = f / n
+        if math.hypot(*g) * min(spec.shape) < MIN_PERIODS:
+            continue
+        if spec.value_near(g) >= 0.35 * amp:
+            gc = _canon(g)
+            mask = np.hypot((spec.fx - gc[0]) * spec.nx, (spec.fy - gc[1]) * spec.ny) <= 2.5
+            pk = spec.peak(mask)
+            if pk is not None:
+                return pk
+    return f, amp
+
+
+def _canon(f) -> np.ndarray:
+    f = np.asarray(f, dtype=np.float64)
+    if f[0] < 0 or (f[0] == 0 and f[1] < 0):
+        f = -f
+    return f
+
+
+def _reduce_pair(f1, f2):
+    """Lagrange-Gauss reduction: the shortest basis of the lattice spanned by f1 and f2."""
+    a, b = np.array(f1, float), np.array(f2, float)
+    if a @ a > b @ b:
+        a, b = b, a
+    for _ in range(20):
+        mu = round(float(a @ b) / float(a @ a))
+        if mu == 0:
+            break
+        b = b - mu * a
+        if b @ b < a @ a:
+            a, b = b, a
+        else:
+            break
+    return _canon(a), _canon(b)
+
+
+def find_frequencies(data: np.ndarray, kind: str = "auto"):
+    """Fundamental frequency vector(s) of a periodic target from its FFT, cycles per pixel.
+
+    Returns a list of one (lines) or two (grid) (2,) arrays and a dict of what the spectrum showed. Raises
+    CalibrationError when the image shows no periodic pattern.
+    """
+    spec = _Spectrum(data)
+    pk = spec.peak()
+    if pk is None:
+        raise CalibrationError("the image is too small to hold a line pattern; use the full camera frame")
+    f1, a1 = pk
+    bg1 = spec.background(f1)
+    ratio1 = a1 / max(bg1, 1e-30)
+    if ratio1 < MIN_PEAK_RATIO:
+        raise CalibrationError(
+            f"no line pattern found (strongest spatial frequency only {ratio1:.1f}x the background); "
+            "check that the scale is in focus, lit, and fills a good part of the frame"
+        )
+    f1, a1 = _fundamental(spec, f1, a1)
+    info = {"peak_ratio": [ratio1]}
+    if kind == "lines":
+        return [_canon(f1)], info
+    pk2 = spec.peak(spec.direction_mask(f1))
+    found2 = False
+    if pk2 is not None:
+        f2, a2 = pk2
+        ratio2 = a2 / max(spec.background(f2), 1e-30)
+        found2 = ratio2 >= MIN_PEAK_RATIO and a2 >= 0.1 * a1
+        info["second_peak_ratio"] = ratio2
+    if kind == "grid" and not found2:
+        raise CalibrationError(
+            "only one set of lines found, but a crossed grid was expected; for a line scale use --target lines"
+        )
+    if not found2:
+        return [_canon(f1)], info
+    f2, a2 = _fundamental(spec, f2, a2)
+    f1, f2 = _reduce_pair(f1, f2)
+    info["peak_ratio"].append(a2 / max(spec.background(f2), 1e-30))
+    return [f1, f2], info
+
+
+# ------------------------------------------------------------------------------------- least-squares refinement
+
+
+class _Model:
+    """Periodic model over a set of points; linear in the amplitudes, iterated over the frequencies."""
+
+    def __init__(self, xs, ys, z, ndir: int, harmonics: int, mixed: bool):
+        self.xs, self.ys, self.z = xs, ys, z
+        self.ndir, self.harmonics, self.mixed = ndir, harmonics, mixed
+        self.scale = max(float(np.abs(xs).max()), float(np.abs(ys).max()), 1.0)
+
+    def _phases(self, theta):
+        f = np.asarray(theta).reshape(self.ndir, 2)
+        return [2 * np.pi * (f[j, 0] * self.xs + f[j, 1] * self.ys) for j in range(self.ndir)]
+
+    def design(self, theta):
+        ph = self._phases(theta)
+        cols = [np.ones_like(self.xs), self.xs / self.scale, self.ys / self.scale]
+        for p in ph:
+            for h in range(1, self.harmonics + 1):
+                cols += [np.cos(h * p), np.sin(h * p)]
+        if self.ndir == 2 and self.mixed:
+            for s in (1.0, -1.0):
+                q = ph[0] + s * ph[1]
+                cols += [np.cos(q), np.sin(q)]
+        return np.stack(cols, axis=1)
+
+    def nlin(self) -> int:
+        return 3 + 2 * self.harmonics * self.ndir + (4 if self.ndir == 2 and self.mixed else 0)
+
+    def solve(self, theta):
+        """Amplitudes by linear least squares (normal equations: the columns are nearly orthogonal)."""
+        A = self.design(theta)
+        M = A.T @ A
+        coef = np.linalg.solve(M, A.T @ self.z)
+        return self.z - A @ coef, coef, A, M
+
+    def residual(self, theta):
+        return self.solve(theta)[0]
+
+    def jacobian(self, theta, coef, A, M):
+        """Jacobian of the projected residual, Kaufman's form: -(I - A (AᵀA)⁻¹ Aᵀ) dA/dtheta coef."""
+        ph = self._phases(theta)
+        k = 3
+        slope = []
+        for p in ph:
+            acc = np.zeros_like(self.xs)
+            for h in range(1, self.harmonics + 1):
+                a, b = coef[k], coef[k + 1]
+                acc += h * (-a * np.sin(h * p) + b * np.cos(h * p))
+                k += 2
+            slope.append(acc)
+        if self.ndir == 2 and self.mixed:
+            for s in (1.0, -1.0):
+                q = ph[0] + s * ph[1]
+                c, d = coef[k], coef[k + 1]
+                t = -c * np.sin(q) + d * np.cos(q)
+                slope[0] = slope[0] + t
+                slope[1] = slope[1] + s * t
+                k += 2
+        D = np.empty((self.xs.size, 2 * self.ndir))
+        for j in range(self.ndir):
+            D[:, 2 * j] = 2 * np.pi * self.xs * slope[j]
+            D[:, 2 * j + 1] = 2 * np.pi * self.ys * slope[j]
+        return -(D - A @ np.linalg.solve(M, A.T @ D))
+
+    def fit(self, theta, max_iter: int = 40):
+        """Gauss-Newton with step halving on the projected residual; returns (theta, r, J)."""
+        theta = np.asarray(theta, dtype=np.float64).copy()
+        r, coef, A, M = self.solve(theta)
+        cost = float(r @ r)
+        J = self.jacobian(theta, coef, A, M)
+        for _ in range(max_iter):
+            step = np.linalg.lstsq(J, -r, rcond=None)[0]
+            lam = 1.0
+            while lam > 1e-4:
+                t_new = theta + lam * step
+                r_new, c_new, A_new, M_new = self.solve(t_new)
+                if float(r_new @ r_new) <= cost:
+                    break
+                lam *= 0.5
+            else:
+                break
+            theta, r, coef, A, M = t_new, r_new, c_new, A_new, M_new
+            cost = float(r @ r)
+            J = self.jacobian(theta, coef, A, M)
+            if np.max(np.abs(lam * step)) * self.scale < 1e-9:
+                break
+        return theta, r, J
+
+    def subset(self, keep):
+        return _Model(self.xs[keep], self.ys[keep], self.z[keep], self.ndir, self.harmonics, self.mixed)
+
+
+def _neighbour_corr(res_img: np.ndarray, ok: np.ndarray) -> float:
+    """Variance inflation for spatially correlated residuals: AR(1) factor along x times along y."""
+    factor = 1.0
+    for axis in (0, 1):
+        a = np.take(res_img, np.arange(res_img.shape[axis] - 1), axis=axis)
+        b = np.take(res_img, np.arange(1, res_img.shape[axis]), axis=axis)
+        m = np.take(ok, np.arange(ok.shape[axis] - 1), axis=axis) & np.take(ok, np.arange(1, ok.shape[axis]), axis=axis)
+        if m.sum() < 50:
+            continue
+        ra, rb = a[m], b[m]
+        rho = float(np.corrcoef(ra, rb)[0, 1]) if ra.std() > 0 and rb.std() > 0 else 0.0
+        rho = min(max(rho, 0.0), 0.95)
+        factor *= (1 + rho) / (1 - rho)
+    return factor
+
+
+def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None, mixed: bool = True,
+                    sigma_px: float | None = None):
+    """Refine the frequency vector(s) ``f0`` (cycles/px) over the image; returns (f, cov, info)."""
+    H, W = data.shape
+    ndir = len(f0)
+    period = max(1.0 / math.hypot(*f) for f in f0)
+    if harmonics is None:
+        harmonics = 4 if ndir == 1 else 3
+    sigma = sigma_px or max(3.0, 2.0 * period)
+    z = _flat_field(data, sigma)
+    yy, xx = np.mgrid[0:H, 0:W].astype(np.float64)
+    cx, cy = (W - 1) / 2, (H - 1) / 2
+    # where the pattern is present: local modulation at the fundamental(s)
+    amp = np.zeros((H, W))
+    for f in f0:
+        q = np.exp(-2j * np.pi * (f[0] * (xx - cx) + f[1] * (yy - cy))) * z
+        re = _smooth(q.real, 1.5 * period)
+        im = _smooth(q.imag, 1.5 * period)
+        amp += np.hypot(re, im)
+    edge = int(math.ceil(1.5 * period))
+    present = amp > 0.25 * float(np.percentile(amp, 99))
+    present[:edge], present[-edge:], present[:, :edge], present[:, -edge:] = False, False, False, False
+    count = int(present.sum())
+    if count < 200:
+        raise CalibrationError("the line pattern covers too little of the image; fill more of the frame with it")
+    step = max(1, int(math.ceil(math.sqrt(count / MAX_FIT_POINTS))))
+    grid = np.zeros_like(present)
+    grid[::step, ::step] = True
+    pts = present & grid
+    xs, ys, zs = xx[pts] - cx, yy[pts] - cy, z[pts]
+    model = _Model(xs, ys, zs, ndir, harmonics, mixed)
+    theta0 = np.concatenate([np.asarray(f, float) for f in f0])
+    keep = np.ones(xs.size, dtype=bool)
+    theta = theta0
+    for _ in range(3):
+        theta, _, _ = model.subset(keep).fit(theta)
+        r = model.residual(theta)  # all points, so rejected ones can come back
+        s = 1.4826 * float(np.median(np.abs(r[keep] - np.median(r[keep]))))
+        new_keep = np.abs(r) <= 4.0 * max(s, 1e-12)
+        if np.array_equal(new_keep, keep):
+            break
+        keep = new_keep
+    m = model.subset(keep)
+    theta, r, J = m.fit(theta)
+    n, p = r.size, theta.size + m.nlin()
+    s2 = float(r @ r) / max(n - p, 1)
+    try:
+        cov = np.linalg.inv(J.T @ J) * s2
+    except np.linalg.LinAlgError:
+        raise CalibrationError("the line-pattern fit is degenerate; photograph more of the scale") from None
+    res_img = np.zeros((H, W))
+    ok = np.zeros((H, W), dtype=bool)
+    idx = np.flatnonzero(pts)[keep]
+    res_img.flat[idx] = r
+    ok.flat[idx] = True
+    corr = _neighbour_corr(res_img[::step, ::step], ok[::step, ::step])
+    cov = cov * corr
+    explained = 1.0 - float(r @ r) / max(float(((m.z - m.z.mean()) ** 2).sum()), 1e-30)
+    if explained < MIN_EXPLAINED:
+        raise CalibrationError(
+            f"the image is not a regular line pattern (a periodic model explains only {100 * explained:.0f} % "
+            "of it); check focus and that the target is a line scale, grid or dot grid"
+        )
+    drift = np.abs(theta - theta0).reshape(ndir, 2)
+    info = {
+        "points_used": int(n),
+        "points_rejected": int(keep.size - keep.sum()),
+        "pattern_area_fraction": count / float(H * W),
+        "harmonics": harmonics,
+        "residual_rms": math.sqrt(float(r @ r) / n),
+        "explained_fraction": explained,
+        "reduced_chi_square_scale": s2,
+        "correlation_inflation": corr,
+        "refinement_shift_cycles_per_px": drift.max(),
+    }
+    return theta.reshape(ndir, 2), cov, info
+
+
+def _direction_info(f) -> dict:
+    return {
+        "frequency_cycles_per_px": [float(f[0]), float(f[1])],
+        "period_px": 1.0 / math.hypot(*f),
+        "normal_direction_deg": math.degrees(math.atan2(f[1], f[0])),
+    }
+
+
+def _check_pitch(pitch_um, pitch_u_um):
+    try:
+        P = float(pitch_um)
+        uP = float(pitch_u_um)
+    except (TypeError, ValueError):
+        raise InputError("grating pitch and its uncertainty must be numbers of micrometres") from None
+    if not math.isfinite(P) or P <= 0:
+        raise InputError(f"grating pitch must be a positive number of micrometres, got {pitch_um}")
+    if not math.isfinite(uP) or uP < 0:
+        raise InputError(f"pitch uncertainty must be zero or a positive number of micrometres, got {pitch_u_um}")
+    if uP > 0.1 * P:
+        raise InputError(f"pitch uncertainty {uP:g} µm is over 10 % of the pitch {P:g} µm; check both values")
+    return P, uP
+
+
+def _default_pitch_u(P: float) -> float:
+    """When no certificate value is given: 0.1 % of the pitch as a rectangular half-width -> standard u.
+
+    Common practice, no source: ordinary stage micrometers are specified to about ±1 µm over 1 mm.
+    """
+    return 0.001 * P / math.sqrt(3.0)
+
+
+def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, kind: str = "auto",
+                    target_id: str | None = None) -> ScaleCalibration:
+    """Pixel scale from one image of a line scale, line grating, crossed grid or dot grid.
+
+    Parameters
+    ----------
+    image : Frame or (H, W) array
+        The calibration image, taken at the same focus and magnification as the parts.
+    pitch_um : float
+        Certified pitch (division or grid period) in micrometres, object space.
+    pitch_u_um : float, optional
+        Its standard uncertainty in micrometres (k = 1). Default: 0.1 % of the pitch as a rectangular limit.
+    kind : {"auto", "lines", "grid", "dots"}
+        "lines" = one line set (x and y then assumed equal), "grid" = two perpendicular line sets of the same
+        pitch, "dots" = a square dot grid; "auto" decides from the spectrum (two strong directions -> grid).
+
+    Returns
+    -------
+    ScaleCalibration
+    """
+    if kind not in ("auto", "lines", "grid", "dots"):
+        raise InputError(f"target kind must be auto, lines, grid or dots, got {kind!r}")
+    defaulted = pitch_u_um is None
+    P, uP = _check_pitch(pitch_um, 0.0 if defaulted else pitch_u_um)
+    if defaulted:
+        uP = _default_pitch_u(P)
+    frame = _as_frame(image)
+    data = frame.data.astype(np.float64)
+    H, W = data.shape
+    z0 = _flat_field(data, max(H, W) / 16.0)
+    f0, spec_info = find_frequencies(z0, "grid" if kind == "dots" else kind)
+    f, cov, fit_info = fit_frequencies(data, f0, harmonics=2 if kind == "dots" else None)
+    warnings: list[str] = []
+    if defaulted:
+        warnings.append(
+            f"no pitch uncertainty given: assumed ±0.1 % of the pitch (u = {uP:.3g} µm); give --pitch-u from "
+            "the target's certificate"
+        )
+    details = {"spectrum": spec_info, "fit": fit_info, "directions": [_direction_info(v) for v in f]}
+    for v in f:
+        n_periods = math.hypot(*v) * min(H, W)
+        if n_periods < MIN_PERIODS:
+            raise CalibrationError(
+                f"only {n_periods:.1f} line periods across the image; at least {MIN_PERIODS} are needed -- use a "
+                "finer pitch or a lower magnification"
+            )
+    target = {"kind": "line scale" if len(f) == 1 else ("dot grid" if kind == "dots" else "crossed grid"),
+              "pitch_um": P, "pitch_u_um": uP, "id": target_id}
+    ref = ("pitch", P, uP, "µm")
+    images = (_image_info(frame),)
+    if len(f) == 1:
+        fv = f[0]
+        s = P * math.hypot(*fv)
+        us = P * math.sqrt(float(fv @ cov @ fv)) / math.hypot(*fv)
+        G = np.array([s * s, 0.0, s * s])
+        warnings.append("one line set: the scale is measured across the lines only, and x and y are assumed "
+                        "equal; a crossed grid, or the scale photographed again turned by 90°, measures both")
+        details["direction_deg"] = details["directions"][0]["normal_direction_deg"]
+        return assemble("line-scale", target, G, np.array([us, us, 0.0, 0.0]), ref, measured_y=False,
+                        images=images, details=details, warnings=warnings)
+
+    def metric(theta):
+        a, b = theta[:2], theta[2:]
+        return P * P * np.array([a[0] ** 2 + b[0] ** 2, a[0] * a[1] + b[0] * b[1], a[1] ** 2 + b[1] ** 2])
+
+    from .result import derived, propagate
+
+    theta = f.reshape(-1)
+    fit_u = propagate(lambda t: derived(metric(t)), theta, cov)
+    n1, n2 = math.hypot(*f[0]), math.hypot(*f[1])
+    if abs(n1 - n2) / max(n1, n2) > 0.1:
+        warnings.append(
+            f"the two line sets have periods {1 / n1:.2f} px and {1 / n2:.2f} px; a square grid of one pitch "
+            "was assumed -- check the target"
+        )
+    method = "dot-grid" if kind == "dots" else "crossed-grid"
+    res = assemble(method, target, metric(theta), fit_u, ref, images=images, details=details, warnings=warnings)
+    return _anisotropy_note(res)
+
+
+def _anisotropy_note(res: ScaleCalibration) -> ScaleCalibration:
+    if not res.anisotropic:
+        return res
+    from dataclasses import replace
+
+    note = (
+        f"x and y scales differ ({res.scale_x.value:.5g} vs {res.scale_y.value:.5g} µm/px, more than twice the "
+        f"uncertainty of the difference {res.difference_u_um:.2g} µm/px): anisotropic pixels or a tilted "
+        "camera; both scales will be used"
+    )
+    return replace(res, warnings=res.warnings + (note,))
+
+
+def measure_line_pair(image_a, image_b, pitch_um: float, pitch_u_um: float | None = None, *,
+                      target_id: str | None = None) -> ScaleCalibration:
+    """Pixel scale along x and y from one line scale photographed twice, turned by about 90° in between.
+
+    Each image gives a frequency vector f_i; with the pixel axes perpendicular on the part (G diagonal) the
+    two equations f_ix² / G_xx + f_iy² / G_yy = 1 / P² give both scales. The turn need not be exactly 90°;
+    the line directions must differ by 45°-135° in the images for a well-conditioned answer.
+    """
+    defaulted = pitch_u_um is None
+    P, uP = _check_pitch(pitch_um, 0.0 if defaulted else pitch_u_um)
+    if defaulted:
+        uP = _default_pitch_u(P)
+    frames = [_as_frame(image_a), _as_frame(image_b)]
+    fs, covs, infos = [], [], []
+    for fr in frames:
+        data = fr.data.astype(np.float64)
+        H, W = data.shape
+        f0, spec_info = find_frequencies(_flat_field(data, max(H, W) / 16.0), "lines")
+        f, cov, fit_info = fit_frequencies(data, f0)
+        fs.append(f[0])
+        covs.append(cov)
+        infos.append({"spectrum": spec_info, "fit": fit_info, **_direction_info(f[0])})
+    a1 = math.degrees(math.atan2(fs[0][1], fs[0][0]))
+    a2 = math.degrees(math.atan2(fs[1][1], fs[1][0]))
+    turn = abs(((a2 - a1) + 90.0) % 180.0 - 90.0)
+    if turn < 45.0:
+        raise CalibrationError(
+            f"the line directions in the two images differ by only {turn:.0f}°; turn the scale by about 90° "
+            "between the two photographs"
+        )
+    theta = np.concatenate(fs)
+    cov = np.zeros((4, 4))
+    cov[:2, :2], cov[2:, 2:] = covs[0], covs[1]
+
+    def metric(t):
+        M = np.array([[t[0] ** 2, t[1] ** 2], [t[2] ** 2, t[3] ** 2]])
+        inv = np.linalg.solve(M, np.full(2, 1.0 / (P * P)))
+        if np.any(inv <= 0):
+            raise CalibrationError("the two line-scale images do not give a consistent scale; photograph again")
+        return np.array([1.0 / inv[0], 0.0, 1.0 / inv[1]])
+
+    from .result import derived, propagate
+
+    G = metric(theta)
+    fit_u = propagate(lambda t: derived(metric(t)), theta, cov)
+    warnings = []
+    if defaulted:
+        warnings.append(
+            f"no pitch uncertainty given: assumed ±0.1 % of the pitch (u = {uP:.3g} µm); give --pitch-u from "
+            "the target's certificate"
+        )
+    warnings.append("pixel axes assumed perpendicular on the part (squareness is not measured by two line images)")
+    details = {"images": infos, "turn_deg": turn}
+    target = {"kind": "line scale (two orientations)", "pitch_um": P, "pitch_u_um": uP, "id": target_id}
+    res = assemble("line-scale-pair", target, G, fit_u, ("pitch", P, uP, "µm"),
+                   images=tuple(_image_info(f) for f in frames), details=details, warnings=warnings)
+    from dataclasses import replace
+
+    res = replace(res, squareness=None)
+    return _anisotropy_note(res)
