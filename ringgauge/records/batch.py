@@ -41,11 +41,9 @@ def find_images(folder: str | os.PathLike, *, recursive: bool = False) -> list[P
 
 def analyse_image(path: str, setup) -> dict:
     """Analyse one image file with the standard pipeline; returns ``AnalysisResult.to_dict()``."""
-    from ..imaging import load_frame
-    from ..pipeline import analyse
+    from ..pipeline import analyse_files
 
-    frame = load_frame(path)
-    return analyse([frame], setup).to_dict()
+    return analyse_files([path], setup).to_dict()
 
 
 def _worker_init() -> None:
@@ -149,13 +147,14 @@ def run_lot(
     serial_from_name: bool = True,
     progress: Progress | None | bool = True,
     max_images: int | None = None,
+    warnings: list[str] | tuple[str, ...] = (),
 ) -> LotRun:
     """Analyse ``images`` in parallel and record each result in ``store`` under ``meta.lot``.
 
     Images the lot already holds (same SHA-256) are skipped; with ``retry_failed`` a failed one is analysed
     again and its new record supersedes the failed one. ``analyse_fn(path, setup) -> dict`` must be a
     module-level function (it is sent to worker processes). ``max_images`` stops after that many new records
-    (for trials). Returns counts; ``interrupted`` is set after Ctrl-C or SIGTERM (the records written so far
+    (for trials). ``warnings`` (e.g. an overdue bench calibration) are added to every result. Returns counts; ``interrupted`` is set after Ctrl-C or SIGTERM (the records written so far
     are kept).
     """
     if not meta.lot:
@@ -208,7 +207,7 @@ def run_lot(
                     pending[pool.submit(_run_one, analyse_fn, path, setup)] = (path, sha, prior)
                 finished, _ = wait(list(pending), return_when=FIRST_COMPLETED)
                 for fut in finished:
-                    _record(store, run, meta, pending.pop(fut), fut, serial_from_name, bar)
+                    _record(store, run, meta, pending.pop(fut), fut, serial_from_name, bar, warnings)
         except (KeyboardInterrupt, _Stop):
             run.interrupted = True
             queue.clear()
@@ -222,7 +221,7 @@ def run_lot(
             while pending:
                 finished, _ = wait(list(pending), return_when=FIRST_COMPLETED)
                 for fut in finished:
-                    _record(store, run, meta, pending.pop(fut), fut, serial_from_name, bar)
+                    _record(store, run, meta, pending.pop(fut), fut, serial_from_name, bar, warnings)
     finally:
         pool.shutdown(wait=not run.interrupted, cancel_futures=True)
         if old_term is not None:
@@ -239,7 +238,8 @@ def _main_thread() -> bool:
     return threading.current_thread() is threading.main_thread()
 
 
-def _record(store: Store, run: LotRun, meta: RecordMeta, job, fut, serial_from_name: bool, bar) -> None:
+def _record(store: Store, run: LotRun, meta: RecordMeta, job, fut, serial_from_name: bool, bar,
+            warnings=()) -> None:
     path, sha, prior = job
     try:
         result, failure = fut.result()
@@ -247,6 +247,8 @@ def _record(store: Store, run: LotRun, meta: RecordMeta, job, fut, serial_from_n
         result, failure = None, f"analysis process died ({type(exc).__name__}: {exc})"
     if failure is None and not isinstance(result, dict):
         result, failure = None, "analysis returned no result"
+    if result is not None and warnings:
+        result = {**result, "warnings": list(warnings) + list(result.get("warnings") or [])}
     m = meta.with_(serial=Path(path).stem) if serial_from_name and not meta.serial else meta
     if prior is not None:
         rec = store.supersede(prior, "analysed again after a failure (--retry-failed)", result=result,

@@ -214,10 +214,11 @@ def chart_png(charts: Sequence[IndividualsChart], path, *, title: str = "") -> N
 
     matplotlib.use("Agg", force=False)
     from matplotlib.figure import Figure
+    from matplotlib.ticker import MaxNLocator
 
     if not charts:
         raise InputError("no chart to draw: the lot needs at least two measured parts")
-    fig = Figure(figsize=(8.0, 2.6 * len(charts) + 0.6), dpi=150)
+    fig = Figure(figsize=(8.0, 2.8 * len(charts) + 0.6), dpi=150)
     axes = fig.subplots(len(charts), 1, squeeze=False)[:, 0]
     for ax, ch in zip(axes, charts):
         x = np.arange(1, len(ch.values) + 1)
@@ -233,7 +234,8 @@ def chart_png(charts: Sequence[IndividualsChart], path, *, title: str = "") -> N
         ax.set_ylabel(f"{ch.quantity} / {ch.unit}")
         ax.grid(alpha=0.3)
         ax.set_xlim(0.5, len(ch.values) + 0.5)
-        ax.legend(loc="upper left", fontsize=7, frameon=False)
+        ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), ncol=2, fontsize=7, frameon=False)
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
     axes[-1].set_xlabel("part, in measurement order")
     if title:
         fig.suptitle(title, fontsize=10)

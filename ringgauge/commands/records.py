@@ -1,0 +1,245 @@
+"""``ringgauge records``: list, show, export and correct inspection records."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from ..errors import InputError
+from ..uncertainty import format_value
+from ._records_common import add_db_argument, open_from_args
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "records", help="list, show, export and correct inspection records",
+        description="The inspection records store. Records are never edited or deleted: a correction is a new "
+                    "record that supersedes the old one, with a reason.",
+    )
+    add_db_argument(p)
+    rs = p.add_subparsers(dest="records_command", metavar="ACTION", parser_class=type(p))
+
+    def filters(q):
+        add_db_argument(q)
+        g = q.add_argument_group("filters (combine with AND)")
+        g.add_argument("--lot")
+        g.add_argument("--part")
+        g.add_argument("--operator")
+        g.add_argument("--serial")
+        g.add_argument("--verdict", help="pass, fail, conditional pass, conditional fail, not evaluated")
+        g.add_argument("--status", choices=("ok", "failed"), help="ok = analysed, failed = analysis failed")
+        g.add_argument("--since", metavar="DATE", help="from this UTC date (YYYY-MM-DD) or date-time")
+        g.add_argument("--until", metavar="DATE", help="up to and including this UTC date or date-time")
+        g.add_argument("--all", dest="include_superseded", action="store_true",
+                       help="include records that were superseded by a correction")
+        g.add_argument("--limit", type=int, metavar="N", help="at most N records")
+
+    q = rs.add_parser("list", help="list records (newest corrections only, unless --all)")
+    filters(q)
+    q.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    q.set_defaults(func=run_list)
+
+    q = rs.add_parser("show", help="show one record in full, with its correction history")
+    add_db_argument(q)
+    q.add_argument("record_id", type=int, metavar="RECORD_ID")
+    q.add_argument("--json", action="store_true", help="print the record as JSON (with the full result)")
+    q.set_defaults(func=run_show)
+
+    q = rs.add_parser("export", help="export records as CSV or JSON")
+    filters(q)
+    q.add_argument("--format", choices=("csv", "json"), default=None,
+                   help="csv (one row per record) or json (full records); default from --out's ending, else csv")
+    q.add_argument("--out", metavar="FILE", help="write to FILE instead of standard output")
+    q.set_defaults(func=run_export)
+
+    q = rs.add_parser("supersede", help="correct a record: append a new record that replaces it, with a reason",
+                      description="Append a corrected copy of a record. Give the reason and what changes: "
+                                  "details (serial, lot, ...) and/or a new result from 'ringgauge analyze --json'.")
+    add_db_argument(q)
+    q.add_argument("record_id", type=int, metavar="RECORD_ID")
+    q.add_argument("--reason", required=True, help="why the record is corrected (kept with the correction)")
+    for name in ("lot", "part", "drawing", "surface", "serial", "operator", "customer"):
+        q.add_argument(f"--{name}", help=f"corrected {name}")
+    q.add_argument("--order", dest="order_ref", help="corrected order reference")
+    q.add_argument("--temperature", dest="temperature_c", type=float, metavar="DEG_C", help="corrected temperature")
+    q.add_argument("--notes", help="corrected notes")
+    q.add_argument("--result", metavar="FILE.json", help="a new result (JSON from 'ringgauge analyze --json')")
+    q.set_defaults(func=run_supersede)
+
+    q = rs.add_parser("lots", help="list the lots in the store with their record counts")
+    add_db_argument(q)
+    q.set_defaults(func=run_lots)
+
+    p.set_defaults(func=lambda a: (p.print_help(sys.stderr), 2)[1])
+
+
+def _filter(args):
+    from ..records import RecordFilter
+
+    if args.limit is not None and args.limit <= 0:
+        raise InputError("--limit must be a positive number of records")
+    return RecordFilter(lot=args.lot, part=args.part, operator=args.operator, serial=args.serial,
+                        verdict=args.verdict, status=args.status, since=args.since, until=args.until,
+                        include_superseded=args.include_superseded, limit=args.limit)
+
+
+def _pm(value, U, unit):
+    if value is None:
+        return "—"
+    return format_value(value, U, unit)
+
+
+def _verdict(r) -> str:
+    v = "ANALYSIS FAILED" if r.status == "failed" else (r.verdict or "not evaluated")
+    return v + (f" (superseded by {r.superseded_by})" if r.superseded_by else "")
+
+
+def run_list(args) -> int:
+    with open_from_args(args) as store:
+        recs = store.find(_filter(args))
+    if args.json:
+        json.dump([r.to_dict(with_result=False) for r in recs], sys.stdout, indent=2, ensure_ascii=False)
+        sys.stdout.write("\n")
+        return 0
+    if not recs:
+        print("no records match", file=sys.stderr)
+        return 0
+    head = ("id", "measured (UTC)", "lot", "serial", "part", "verdict", "R ± U", "power ± U", "operator")
+    rows = [(str(r.id), r.created_utc[:16].replace("T", " "), r.meta.lot or "—", r.meta.serial or "—",
+             r.meta.part or "—", _verdict(r), _pm(r.radius_mm, r.radius_U_mm, "mm"),
+             _pm(r.power_fringes, r.power_U_fringes, "fringes"), r.meta.operator or "—") for r in recs]
+    widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(head)]
+    print("  ".join(h.ljust(w) for h, w in zip(head, widths)).rstrip())
+    for row in rows:
+        print("  ".join(c.ljust(w) for c, w in zip(row, widths)).rstrip())
+    print(f"{len(recs)} record(s); U is the expanded uncertainty (k = 2 unless the record says otherwise)",
+          file=sys.stderr)
+    return 0
+
+
+def run_show(args) -> int:
+    with open_from_args(args) as store:
+        rec = store.get(args.record_id)
+        chain = store.history(rec.id)
+        docs = store.documents(record_id=rec.id)
+    if args.json:
+        d = rec.to_dict()
+        d["intact"] = rec.intact()
+        d["history"] = [{"id": r.id, "created_utc": r.created_utc, "supersede_reason": r.supersede_reason}
+                        for r in chain]
+        d["documents"] = [{"number": x.number, "issued_utc": x.issued_utc} for x in docs]
+        json.dump(d, sys.stdout, indent=2, ensure_ascii=False)
+        sys.stdout.write("\n")
+        return 0
+    m = rec.meta
+    s = rec.setup or {}
+    lines = [
+        f"record {rec.id}  ({rec.uid})",
+        f"  measured        {rec.created_utc} UTC, ringgauge {rec.software_version}",
+        f"  part            {m.part or '—'}  drawing {m.drawing or '—'}  surface {m.surface or '—'}",
+        f"  lot / serial    {m.lot or '—'} / {m.serial or '—'}",
+        f"  operator        {m.operator or '—'}",
+        f"  customer/order  {m.customer or '—'} / {m.order_ref or '—'}",
+        f"  temperature     {'—' if m.temperature_c is None else f'{m.temperature_c:.1f} °C'}",
+        f"  image           {rec.image_path or '—'}",
+        f"  image SHA-256   {rec.image_sha256 or '—'}",
+    ]
+    if s:
+        pix = s.get("pixel_size_um") or ["?"]
+        pixu = s.get("pixel_size_u_um") or ["?"]
+        lines += [
+            f"  source          {(s.get('source') or {}).get('name', '—')}, λ = {s.get('wavelength_nm')} nm",
+            f"  pixel size      {pix[0]} µm (u = {pixu[0]} µm), bench {s.get('bench') or '—'}"
+            + (f", calibrated {s['bench_calibrated']}" if s.get("bench_calibrated") else ""),
+            f"  medium index    {s.get('medium_index')}",
+            f"  test plate      {json.dumps(s.get('test_plate'), ensure_ascii=False) if s.get('test_plate') else '—'}",
+            f"  tolerance       {s.get('tolerance') or '—'}",
+        ]
+    if rec.status == "failed":
+        lines.append(f"  ANALYSIS FAILED {rec.failure_reason}")
+    else:
+        lines += [
+            f"  verdict         {rec.verdict or 'not evaluated'}",
+            f"  radius          {_pm(rec.radius_mm, rec.radius_U_mm, 'mm')}",
+            f"  power           {_pm(rec.power_fringes, rec.power_U_fringes, 'fringes')}",
+        ]
+    lines.append(f"  integrity       {'intact (checksum matches)' if rec.intact() else 'ALTERED: checksum does not match'}")
+    if len(chain) > 1:
+        lines.append("  history:")
+        for r in chain:
+            mark = "→" if r.id == rec.id else " "
+            why = f" — {r.supersede_reason}" if r.supersede_reason else " — original"
+            lines.append(f"   {mark} record {r.id}  {r.created_utc[:19]}{why}")
+    for x in docs:
+        lines.append(f"  document        {x.kind} {x.number}, issued {x.issued_utc[:19]} UTC")
+    print("\n".join(lines))
+    if rec.status == "ok" and rec.result:
+        try:
+            from ..report.text import format_result
+        except ImportError:
+            return 0
+        try:
+            text = format_result(rec.result)
+        except Exception as exc:  # noqa: BLE001 - an old or partial result must not hide the record itself
+            print(f"\n(the full result cannot be laid out as text: {type(exc).__name__}: {exc}; use --json)")
+        else:
+            print()
+            print(text)
+    return 0
+
+
+def run_export(args) -> int:
+    from ..records.export import write_csv, write_json
+
+    fmt = args.format or ("json" if args.out and args.out.lower().endswith(".json") else "csv")
+    with open_from_args(args) as store:
+        recs = store.find(_filter(args))
+    writer = write_json if fmt == "json" else write_csv
+    if args.out:
+        out = Path(args.out)
+        if not out.parent.exists():
+            raise InputError(f"cannot write {out}: folder {out.parent} does not exist")
+        tmp = out.with_name(out.name + ".part")
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            n = writer(recs, fh)
+        tmp.replace(out)
+        print(f"exported {n} record(s) to {out} ({fmt.upper()})", file=sys.stderr)
+    else:
+        writer(recs, sys.stdout)
+    return 0
+
+
+def run_supersede(args) -> int:
+    changes = {k: getattr(args, k) for k in ("lot", "part", "drawing", "surface", "serial", "operator",
+                                              "customer", "order_ref", "temperature_c", "notes")
+               if getattr(args, k) is not None}
+    result = None
+    if args.result:
+        p = Path(args.result)
+        try:
+            result = json.loads(p.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise InputError(f"{p}: no such file") from None
+        except json.JSONDecodeError as exc:
+            raise InputError(f"{p}: not valid JSON (line {exc.lineno}: {exc.msg})") from None
+        if not isinstance(result, dict) or "setup" not in result or "image" not in result:
+            raise InputError(f"{p}: not a ringgauge result (expected the JSON of 'ringgauge analyze --json')")
+    if not changes and result is None:
+        raise InputError("nothing to correct: give the corrected details (e.g. --serial) and/or --result FILE.json")
+    with open_from_args(args) as store:
+        new = store.supersede(args.record_id, args.reason, meta_changes=changes, result=result)
+    what = ", ".join(f"{k} = {v}" for k, v in changes.items()) + (", new result" if result is not None else "")
+    print(f"record {new.id} supersedes record {args.record_id} ({what.strip(', ')}); reason: {args.reason}")
+    return 0
+
+
+def run_lots(args) -> int:
+    with open_from_args(args) as store:
+        lots = store.lots()
+    if not lots:
+        print("no lots in the store", file=sys.stderr)
+    for lot, n in lots:
+        print(f"{lot}\t{n} record(s)")
+    return 0

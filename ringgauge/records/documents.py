@@ -1,0 +1,102 @@
+"""Issuing certificates and lot reports: number them in the store, keep their content, write the PDF.
+
+A certificate is issued once per record; asking again reprints the issued content (same number, same
+content checksum) unless a new issue is asked for. A lot report is issued anew each time (the lot may have
+grown), and any issued document can be reprinted by its number.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from ..errors import InputError
+from .lot import summarise_lot
+from .store import IssuedDocument, RecordFilter, Store
+
+
+def power_limits_from_tolerance(tolerance: str | None) -> tuple[float, float] | None:
+    """Power limits −A..+A in fringes from the ``3/A`` part of an ISO 10110-5 form tolerance (None if absent
+    or given as '-')."""
+    if not tolerance:
+        return None
+    m = re.match(r"\s*3\s*/\s*([0-9]*\.?[0-9]+|-)", tolerance)
+    if not m:
+        raise InputError(f"tolerance {tolerance!r} does not start with '3/A' (ISO 10110-5), e.g. 3/2(0.5)")
+    if m.group(1) == "-":
+        return None
+    a = float(m.group(1))
+    return (-a, a)
+
+
+def load_record_image(record):
+    """The record's image for the figures, if the file is still there and unchanged: (image01, note)."""
+    from ..imaging import load_frame
+
+    if not record.image_path:
+        return None, "Image not shown: the record names no image file."
+    try:
+        frame = load_frame(record.image_path)
+    except InputError as exc:
+        return None, f"Image not shown: {exc}."
+    if record.image_sha256 and frame.sha256 != record.image_sha256:
+        return None, (f"Image not shown: {record.image_path} has changed since the measurement "
+                      "(its checksum differs from the record's).")
+    return frame.data, None
+
+
+def issue_certificate(store: Store, record_id: int, out: str | Path, shop: dict, *, paper: str | None = None,
+                      approver: str | None = None, new_issue: bool = False) -> tuple[IssuedDocument, Path, bool]:
+    """Issue (or reprint) the certificate of a record; returns (document, path, reprinted)."""
+    from ..report.pdf import certificate_content, render_certificate
+
+    rec = store.get(record_id)
+    if not rec.intact():
+        raise InputError(f"record {rec.id} fails its integrity check (its stored content was altered); "
+                         "no certificate can be issued")
+    earlier = store.documents(record_id=rec.id)
+    if earlier and not new_issue:
+        doc, reprint = earlier[-1], True
+    else:
+        content = certificate_content(rec, shop, approver=approver)
+        doc, reprint = store.issue("certificate", content, record_id=rec.id, lot=rec.meta.lot,
+                                   prefix=shop.get("certificate_prefix") or "RG"), False
+    image01, note = load_record_image(rec)
+    path = render_certificate(doc.content, out, paper=paper or shop.get("paper") or "A4", result=rec.result,
+                              image01=image01, image_note=note)
+    return doc, path, reprint
+
+
+def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, paper: str | None = None,
+                     tolerance: str | None = None, radius_limits=None, approver: str | None = None,
+                     chart_out: str | Path | None = None) -> tuple[IssuedDocument, Path]:
+    """Issue a lot report from the lot's current records."""
+    from ..report.pdf import lot_report_content, render_lot_report
+    from .lot import chart_png
+
+    records = store.find(RecordFilter(lot=lot))
+    if not records:
+        raise InputError(f"lot {lot!r} has no records in {store.where}; run 'ringgauge batch' first")
+    tol = tolerance or next(((r.setup or {}).get("tolerance") for r in records
+                             if (r.setup or {}).get("tolerance")), None)
+    summary = summarise_lot(records, lot, power_limits=power_limits_from_tolerance(tol),
+                            radius_limits=radius_limits)
+    content = lot_report_content(records, summary, shop, tolerance=tol, approver=approver)
+    doc = store.issue("lot report", content, lot=lot, prefix=shop.get("certificate_prefix") or "RG")
+    path = render_lot_report(doc.content, out, paper=paper or shop.get("paper") or "A4")
+    if chart_out is not None and summary.charts:
+        chart_png(summary.charts, chart_out, title=f"Lot {lot}")
+    return doc, path
+
+
+def reprint(store: Store, number: str, out: str | Path, *, paper: str = "A4") -> tuple[IssuedDocument, Path]:
+    """Lay out an issued document again from its stored content."""
+    from ..report.pdf import render_certificate, render_lot_report
+
+    doc = store.document(number)
+    if doc.kind == "lot report":
+        return doc, render_lot_report(doc.content, out, paper=paper)
+    rec = store.get(doc.record_id)
+    image01, note = load_record_image(rec)
+    return doc, render_certificate(doc.content, out, paper=paper, result=rec.result, image01=image01,
+                                   image_note=note)

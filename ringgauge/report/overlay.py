@@ -1,0 +1,156 @@
+"""Figures for reports and certificates, drawn from a result dict with matplotlib's Agg backend (no Qt).
+
+They only draw what the analysis found: the image with the fitted rings and centre, and the fit of squared
+ring radius against fringe order (or, for a test-plate analysis, the form terms with their uncertainties).
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+
+INK = "#1f4e79"
+ACCENT = "#c55a11"
+MAX_DISPLAY_PX = 900
+
+
+def _figure(w_in: float, h_in: float, dpi: int = 150):
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=(w_in, h_in), dpi=dpi)
+
+
+def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: str | None = None) -> None:
+    """The image (intensity in [0, 1], ``image[y, x]``) with the fitted rings, centre and aperture drawn on."""
+    from matplotlib.patches import Ellipse
+
+    img = np.asarray(image01, dtype=np.float32)
+    H, W = img.shape
+    step = max(1, int(math.ceil(max(H, W) / MAX_DISPLAY_PX)))
+    shown = img[::step, ::step]
+    aspect = H / W
+    fig = _figure(5.0, max(2.5, 5.0 * aspect) + (0.35 if title else 0.0))
+    ax = fig.add_axes((0.0, 0.0, 1.0, 0.93 if title else 1.0))
+    ax.imshow(shown, cmap="gray", vmin=float(np.percentile(shown, 0.5)), vmax=float(np.percentile(shown, 99.5)),
+              extent=(-0.5, W - 0.5, H - 0.5, -0.5), interpolation="antialiased")
+    setup = result.get("setup") or {}
+    pix = setup.get("pixel_size_um") or [1.0, 1.0]
+    px, py = (pix if isinstance(pix, list) else [pix, pix])[:2]
+    yscale = px / py if py else 1.0  # ring radii are in x pixels; a round ring spans r * px / py rows
+    centre = result.get("centre_px")
+    rings = ((result.get("fringes") or {}).get("rings")) or []
+    lw = 0.8
+    if centre:
+        cx, cy = centre
+        for ring in rings:
+            r = ring.get("radius_px")
+            if not r:
+                continue
+            used = ring.get("used", True)
+            ax.add_patch(Ellipse((cx, cy), 2 * r, 2 * r * yscale, fill=False, lw=lw,
+                                 ec="#00b050" if used else ACCENT, ls="-" if used else "--", alpha=0.9))
+        size = 0.03 * max(W, H)
+        ax.plot([cx - size, cx + size], [cy, cy], color="#ff3030", lw=1.0)
+        ax.plot([cx, cx], [cy - size, cy + size], color="#ff3030", lw=1.0)
+    form = result.get("form") or {}
+    ap = form.get("aperture") if isinstance(form, dict) else None
+    if isinstance(ap, dict) and ap.get("centre_px") and ap.get("diameter_px"):
+        (ax_, ay_), d = ap["centre_px"], ap["diameter_px"]
+        ax.add_patch(Ellipse((ax_, ay_), d, d * yscale, fill=False, lw=1.0, ec="#00a0ff", ls="--"))
+        td = setup.get("test_diameter_mm")
+        if td and px:
+            dpx = td / (px * 1e-3)
+            ax.add_patch(Ellipse((ax_, ay_), dpx, dpx * yscale, fill=False, lw=1.0, ec="#ffd000", ls=":"))
+    ax.set_xlim(-0.5, W - 0.5)
+    ax.set_ylim(H - 0.5, -0.5)
+    ax.set_axis_off()
+    if title:
+        fig.suptitle(title, fontsize=9, y=0.985)
+    fig.savefig(path, format="png")
+
+
+def fit_plot_png(result: dict, path: str | Path) -> bool:
+    """The fit behind the result; returns False (and draws nothing) when the result holds no fit to show."""
+    fr = result.get("fringes") or {}
+    rings = [r for r in (fr.get("rings") or []) if r.get("r2_mm2") is not None and r.get("order") is not None]
+    if len(rings) >= 2 and fr.get("slope_mm2_per_fringe") is not None:
+        _ring_fit(result, fr, rings, path)
+        return True
+    form = result.get("form") or {}
+    terms = _form_terms(form)
+    if terms:
+        _form_bars(terms, result, path)
+        return True
+    return False
+
+
+def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
+    fig = _figure(5.0, 3.6)
+    top, bot = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 1.3]})
+    m = np.array([r["order"] for r in rings], dtype=float)
+    r2 = np.array([r["r2_mm2"] for r in rings], dtype=float)
+    used = np.array([bool(r.get("used", True)) for r in rings])
+    u = np.array([r.get("u_r2_mm2") or 0.0 for r in rings], dtype=float)
+    slope = fr["slope_mm2_per_fringe"]
+    icpt = fr.get("intercept_mm2") or 0.0
+    mm = np.linspace(min(m.min(), 0.0), m.max() * 1.03, 50)
+    top.plot(mm, slope * mm + icpt, color=ACCENT, lw=1.0, label="least-squares line")
+    top.errorbar(m[used], r2[used], yerr=u[used], fmt="o", ms=3, color=INK, label="rings used")
+    if (~used).any():
+        top.plot(m[~used], r2[~used], "x", color="#888888", label="rings left out")
+    top.set_ylabel("r² / mm²")
+    top.legend(fontsize=7, frameon=False)
+    top.grid(alpha=0.3)
+    res = np.array([r.get("residual_mm2") or 0.0 for r in rings], dtype=float) * 1e6
+    bot.axhline(0, color="#555555", lw=0.8)
+    bot.plot(m[used], res[used], "o", ms=3, color=INK)
+    bot.set_ylabel("residual / µm²", fontsize=8)
+    bot.set_xlabel(f"fringe order m ({rings[0].get('kind', 'dark')} rings)")
+    bot.grid(alpha=0.3)
+    fig.suptitle(f"r² = {slope:.6g} mm² · m + {icpt:.4g} mm²", fontsize=8)
+    fig.tight_layout()
+    fig.savefig(path, format="png")
+
+
+FORM_TERMS = (
+    ("power_fringes", "power_u_fringes", "power"),
+    ("astigmatism_fringes", "astigmatism_u_fringes", "astigmatism"),
+    ("irregularity_fringes", "irregularity_u_fringes", "irregularity"),
+    ("rsi_fringes", "rsi_u_fringes", "rot. sym. irregularity"),
+    ("rms_total_fringes", "rms_total_u_fringes", "RMSt"),
+    ("rms_irregularity_fringes", "rms_irregularity_u_fringes", "RMSi"),
+    ("rms_asymmetric_fringes", "rms_asymmetric_u_fringes", "RMSa"),
+)
+
+
+def _form_terms(form: dict) -> list[tuple[str, float, float | None]]:
+    out = []
+    if not isinstance(form, dict):
+        return out
+    for key, ukey, label in FORM_TERMS:
+        v = form.get(key)
+        if isinstance(v, (int, float)) and math.isfinite(v):
+            u = form.get(ukey)
+            out.append((label, float(v), float(u) if isinstance(u, (int, float)) else None))
+    return out
+
+
+def _form_bars(terms, result: dict, path) -> None:
+    fig = _figure(5.0, 3.0)
+    ax = fig.add_subplot(1, 1, 1)
+    k = result.get("k") or 2.0
+    y = np.arange(len(terms))[::-1]
+    vals = [t[1] for t in terms]
+    errs = [k * t[2] if t[2] is not None else 0.0 for t in terms]
+    ax.barh(y, vals, xerr=errs, color=INK, alpha=0.8, capsize=3, height=0.55)
+    ax.set_yticks(y, [t[0] for t in terms], fontsize=8)
+    ax.axvline(0, color="#555555", lw=0.8)
+    ax.set_xlabel(f"fringes (λ/2 of surface height), error bars U (k = {k:g})")
+    ax.grid(alpha=0.3, axis="x")
+    fig.tight_layout()
+    fig.savefig(path, format="png")

@@ -1,0 +1,869 @@
+"""Certificates and lot reports as PDF (reportlab), and their verification.
+
+A document is made in two steps. :func:`certificate_content` / :func:`lot_report_content` gather what the
+document says into a plain dict (this is what the records store keeps when the document is issued and what
+the content checksum covers); :func:`render_certificate` / :func:`render_lot_report` only lay that dict out.
+A reprint lays out the same stored dict again, so it carries the same content checksum.
+
+Each PDF carries its content as an embedded JSON file plus the checksum in the document information, and
+prints the checksum on the last page; :func:`verify_pdf` recomputes it, checks that the printed text agrees
+with the embedded content (number and page marks on every page, every result value) and, given a store,
+that the document was issued there with that exact content.
+
+The content a certificate carries follows ISO/IEC 17025:2017 §7.8 (title, unique identification on every
+page, page x of y and a clear end, laboratory and customer, method, item, dates, results with units and
+uncertainty, decision rule, traceability, conditions, authorisation).
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+import os
+import re
+import tempfile
+import unicodedata
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .. import __version__
+from ..errors import InputError, RinggaugeError
+from ..uncertainty import format_value, round_uncertainty
+
+CONTENT_FILE = "ringgauge-content.json"
+TITLE_CERT = "Certificate of Surface Inspection"
+TITLE_LOT = "Lot Inspection Report"
+
+
+class VerificationError(RinggaugeError):
+    """A document failed verification (its content or printed text does not match its checksum)."""
+
+    exit_code = 1
+
+
+# ---------------------------------------------------------------------------------------------- content
+
+
+def _canonical(obj) -> str:
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
+
+def content_checksum(content: dict) -> str:
+    import hashlib
+
+    return hashlib.sha256(_canonical(content).encode("utf-8")).hexdigest()
+
+
+def _fmt(v, digits: int = 6) -> str:
+    if v is None:
+        return "—"
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    if isinstance(v, (int,)):
+        return str(v)
+    if isinstance(v, float):
+        if not math.isfinite(v):
+            return "—"
+        return f"{v:.{digits}g}"
+    return str(v)
+
+
+def _g(v, n: int = 3) -> str:
+    """``n`` significant digits, trailing zeros kept (2.0, not 2)."""
+    if not isinstance(v, (int, float)) or not math.isfinite(v):
+        return _fmt(v)
+    if v == 0:
+        return "0"
+    t = f"{v:#.{n}g}"
+    return t[:-1] if t.endswith(".") else t
+
+
+def _value_u(value, U, unit: str) -> tuple[str, str]:
+    """Value and expanded uncertainty as printed: U to two significant digits, value to the same place."""
+    if value is None:
+        return "—", "—"
+    if U is None or not isinstance(U, (int, float)) or not math.isfinite(U) or U <= 0:
+        return f"{value:.6g} {unit}".strip(), "not available"
+    txt = format_value(float(value), float(U), unit)
+    v, u = txt.split(" ± ")
+    return f"{v} {unit}".strip(), u.strip()
+
+
+RULE_NOTES = {
+    "simple": "Simple acceptance: a measured value inside the tolerance passes. With a value closer to a limit "
+              "than its expanded uncertainty the probability of a wrong decision can reach 50 % "
+              "(ILAC-G8:09/2019, from memory).",
+    "guard": "Guard-banded acceptance: a pass needs the value inside the tolerance by at least the guard band "
+             "(here the expanded uncertainty U); values within U of a limit are reported as conditional. "
+             "The risk of a false pass is then below about 2.5 % (ILAC-G8:09/2019, from memory).",
+}
+
+
+def _rule_note(rule: str | None) -> str:
+    r = (rule or "").lower()
+    if "guard" in r:
+        return RULE_NOTES["guard"]
+    if "simple" in r or not r:
+        return RULE_NOTES["simple"]
+    return ""
+
+
+def _results_rows(result: dict) -> list[dict]:
+    from .overlay import FORM_TERMS
+
+    rows = []
+    k = result.get("k") or 2.0
+    if result.get("radius_mm") is not None:
+        v, u = _value_u(result["radius_mm"], result.get("radius_U_mm"), "mm")
+        rows.append({"quantity": "Radius of curvature R", "value": v, "U": u, "k": _fmt(k)})
+    fr = result.get("fringes") or {}
+    if fr.get("rings_used") is not None:
+        rows.append({"quantity": "Rings used in the fit", "value": str(fr["rings_used"]), "U": "—", "k": "—"})
+    if fr.get("contact_offset_fringes") is not None:
+        rows.append({"quantity": "Contact offset", "value": f"{fr['contact_offset_fringes']:.2f} fringes",
+                     "U": "—", "k": "—"})
+    form = result.get("form") or {}
+    if isinstance(form, dict):
+        for key, ukey, label in FORM_TERMS:
+            val = form.get(key)
+            if isinstance(val, (int, float)) and math.isfinite(val):
+                uu = form.get(ukey)
+                U = k * uu if isinstance(uu, (int, float)) else None
+                v, u = _value_u(val, U, "fringes")
+                rows.append({"quantity": label[0].upper() + label[1:], "value": v, "U": u, "k": _fmt(k)})
+        for key, label, unit in (("radius_difference_mm", "Radius difference to test plate", "mm"),
+                                 ("radius_mm", "Surface radius", "mm")):
+            val = form.get(key)
+            if isinstance(val, (int, float)) and math.isfinite(val):
+                uu = form.get(key.replace("_mm", "_u_mm"))
+                U = k * uu if isinstance(uu, (int, float)) else None
+                v, u = _value_u(val, U, unit)
+                rows.append({"quantity": label, "value": v, "U": u, "k": _fmt(k)})
+    return rows
+
+
+def _budget(result: dict) -> dict | None:
+    b = result.get("budget")
+    if not b or not b.get("rows"):
+        return None
+    rows = []
+    for r in b["rows"]:
+        rows.append({
+            "quantity": r.get("quantity", ""),
+            "estimate": f"{_fmt(r.get('estimate'))} {r.get('estimate_unit', '')}".strip(),
+            "u": f"{_g(r.get('u'), 3)} {r.get('estimate_unit', '')}".strip(),
+            "distribution": r.get("distribution", ""),
+            "divisor": _fmt(r.get("divisor"), 4),
+            "sensitivity": f"{_fmt(r.get('sensitivity'), 4)} {r.get('sensitivity_unit', '')}".strip(),
+            "contribution": f"{_g(r.get('contribution'), 3)} {b.get('unit', '')}".strip(),
+            "share": f"{100 * (r.get('share') or 0):.1f} %",
+        })
+    return {
+        "output": b.get("output", ""), "unit": b.get("unit", ""), "rows": rows,
+        "u_c": f"{_g(b.get('u_c'), 3)} {b.get('unit', '')}",
+        "k": _fmt(b.get("k")),
+        "U": f"{_g(round_uncertainty(b['U']) if b.get('U') else None, 2)} {b.get('unit', '')}",
+        "dof_eff": "large (> 1000)" if b.get("dof_eff") is None or b["dof_eff"] > 1000 else f"{b['dof_eff']:.1f}",
+        "coverage": b.get("coverage", ""),
+    }
+
+
+def _method(result: dict) -> str:
+    if result.get("form"):
+        return ("Interference fringes of the surface against a test plate under a monochromatic source "
+                "(one fringe = λ/2 of surface height). Form deviation evaluated over the test diameter and "
+                "reported in ISO 10110-5 terms (power / sagitta deviation, irregularity). Uncertainty "
+                "evaluated per GUM (JCGM 100:2008).")
+    fr = result.get("fringes") or {}
+    how = f" ({fr['method']})" if fr.get("method") else ""
+    return ("Newton's rings in reflection, lens resting on an optical flat. Ring radii measured from the image "
+            f"and fitted by least squares as r² = (λR/n)·m + c against fringe order m{how}; the intercept "
+            "absorbs a contact offset. R follows from the slope. Uncertainty evaluated per GUM "
+            "(JCGM 100:2008).")
+
+
+def certificate_content(record, shop: dict, *, approver: str | None = None) -> dict:
+    """What a certificate of ``record`` (an :class:`~ringgauge.records.InspectionRecord`) says."""
+    if record.status != "ok" or not record.result:
+        raise InputError(f"record {record.id} is a failed analysis ({record.failure_reason}); "
+                         "no certificate can be issued for it")
+    if record.superseded_by is not None:
+        raise InputError(f"record {record.id} was superseded by record {record.superseded_by}; "
+                         f"certify record {record.superseded_by}")
+    res = record.result
+    setup = res.get("setup") or record.setup or {}
+    m = record.meta
+    src = setup.get("source") or {}
+    pix = setup.get("pixel_size_um") or []
+    pixu = setup.get("pixel_size_u_um") or []
+    verdict = res.get("verdict") or {}
+    if not isinstance(verdict, dict):
+        verdict = {"overall": str(verdict)}
+    terms = []
+    for t in verdict.get("terms") or []:
+        if isinstance(t, dict):
+            terms.append({str(k): _fmt(v) for k, v in t.items()})
+        else:
+            terms.append({"term": str(t)})
+    plate = setup.get("test_plate")
+    pixel_text = "—"
+    if pix:
+        pixel_text = f"{_fmt(pix[0])} µm/pixel"
+        if len(pix) > 1 and pix[1] != pix[0]:
+            pixel_text = f"x {_fmt(pix[0])}, y {_fmt(pix[1])} µm/pixel"
+        if pixu and pixu[0]:
+            pixel_text += f", standard uncertainty {_fmt(pixu[0], 3)} µm"
+        else:
+            pixel_text += " (uncertainty not given)"
+    cal = setup.get("bench") or "—"
+    if setup.get("bench_calibrated"):
+        cal += f", calibrated {setup['bench_calibrated']}"
+    return {
+        "kind": "certificate",
+        "title": TITLE_CERT,
+        "software": f"ringgauge {__version__}",
+        "shop": {k: shop.get(k) for k in ("name", "address", "contact", "accreditation")},
+        "customer": {"customer": m.customer or "—", "order": m.order_ref or "—"},
+        "item": {"part": m.part or "—", "drawing": m.drawing or "—", "surface": m.surface or "—",
+                 "serial": m.serial or "—", "lot": m.lot or "—"},
+        "specification": {
+            "tolerance": setup.get("tolerance") or "not specified",
+            "wavelength": f"{_fmt(setup.get('wavelength_nm'), 7)} nm" if setup.get("wavelength_nm") else "—",
+            "test diameter": f"{_fmt(setup.get('test_diameter_mm'))} mm" if setup.get("test_diameter_mm")
+            else "full clear aperture",
+            "fringes counted": setup.get("fringe_kind") or "—",
+            "gap medium index": _fmt(setup.get("medium_index")),
+        },
+        "method": _method(res),
+        "dates": {"measured (UTC)": record.created_utc[:19].replace("T", " "),
+                  "record": f"{record.id} ({record.uid})"},
+        "results": _results_rows(res),
+        "coverage": f"Expanded uncertainty U = k·u_c with coverage factor k = {_fmt(res.get('k') or 2.0)} "
+                    "(coverage probability about 95 %).",
+        "budget": _budget(res),
+        "decision": {"verdict": verdict.get("overall") or "not evaluated",
+                     "rule": verdict.get("decision_rule") or setup.get("decision_rule") or "simple",
+                     "rule_note": _rule_note(verdict.get("decision_rule") or setup.get("decision_rule")),
+                     "terms": terms},
+        "traceability": {
+            "test plate": plate if isinstance(plate, dict) else (plate or "none (optical flat or not stated)"),
+            "wavelength source": f"{src.get('name', '—')}, {_fmt(setup.get('wavelength_nm'), 7)} nm, "
+                                 f"standard uncertainty {_fmt(setup.get('wavelength_u_nm'), 3)} nm; "
+                                 f"{src.get('reference') or 'reference not stated'}",
+            "pixel scale": pixel_text,
+            "pixel-scale calibration": cal,
+        },
+        "environment": {"temperature": f"{m.temperature_c:.1f} °C" if m.temperature_c is not None
+                        else "not recorded"},
+        "image": {"name": record.image_name or "—", "sha256": record.image_sha256 or "—",
+                  "size": f"{(res.get('image') or {}).get('width', '?')} × "
+                          f"{(res.get('image') or {}).get('height', '?')} pixels"},
+        "record_checksum": record.content_sha256,
+        "correction": (f"This record corrects record {record.supersedes}: {record.supersede_reason}"
+                       if record.supersedes is not None else None),
+        "warnings": list(res.get("warnings") or []),
+        "operator": m.operator or "—",
+        "approver": approver or shop.get("approver") or "",
+        "notes": m.notes or None,
+        "record_id": record.id,
+    }
+
+
+def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
+                       tolerance: str | None = None, approver: str | None = None) -> dict:
+    """What a lot report says: every current record of the lot, the statistics and the control chart data."""
+    rows = []
+    ks = set()
+    for r in sorted(records, key=lambda r: r.id):
+        if r.result and r.result.get("k"):
+            ks.add(float(r.result["k"]))
+        rows.append({
+            "record": str(r.id), "serial": r.meta.serial or "—", "image": r.image_name or "—",
+            "verdict": "analysis failed" if r.status == "failed" else (r.verdict or "not evaluated"),
+            "radius": _pm(r.radius_mm, r.radius_U_mm),
+            "power": _pm(r.power_fringes, r.power_U_fringes),
+            "note": (r.failure_reason or "")[:80],
+        })
+    s = summary.to_dict()
+
+    def spread_text(sp: dict) -> dict:
+        if not sp["n"]:
+            return {"n": "0", "mean": "—", "sd": "—", "range": "—"}
+        dig = 6 if sp["unit"] == "mm" else 3
+        return {"n": str(sp["n"]), "mean": f"{sp['mean']:.{dig}g} {sp['unit']}",
+                "sd": "—" if sp["sd"] is None else f"{sp['sd']:.3g} {sp['unit']}",
+                "range": f"{sp['minimum']:.{dig}g} to {sp['maximum']:.{dig}g} {sp['unit']}"}
+
+    caps = [{"quantity": c["quantity"], "limits": f"{_fmt(c['lsl'])} to {_fmt(c['usl'])} {c['unit']}",
+             "n": str(c["n"]), "mean": f"{c['mean']:.4g} {c['unit']}", "s": f"{c['sd']:.3g} {c['unit']}",
+             "Cp": "—" if c["cp"] is None else f"{c['cp']:.2f}", "Cpk": f"{c['cpk']:.2f}"}
+            for c in s["capability"]]
+    first = min((r.created_utc for r in records), default="")
+    last = max((r.created_utc for r in records), default="")
+    return {
+        "kind": "lot report",
+        "title": TITLE_LOT,
+        "software": f"ringgauge {__version__}",
+        "shop": {k: shop.get(k) for k in ("name", "address", "contact", "accreditation")},
+        "lot": summary.lot,
+        "part": part or ", ".join(sorted({r.meta.part for r in records if r.meta.part})) or "—",
+        "customer": ", ".join(sorted({r.meta.customer for r in records if r.meta.customer})) or "—",
+        "tolerance": tolerance or ", ".join(sorted({(r.setup or {}).get("tolerance") for r in records
+                                                    if (r.setup or {}).get("tolerance")})) or "not specified",
+        "period": f"{first[:19].replace('T', ' ')} to {last[:19].replace('T', ' ')} UTC" if first else "—",
+        "counts": {k: str(s["counts"][k]) for k in sorted(s["counts"], key=_verdict_order)},
+        "k": "k = " + (", ".join(f"{k:g}" for k in sorted(ks)) or "2"),
+        "n_records": str(s["n_records"]),
+        "radius": spread_text(s["radius"]),
+        "power": spread_text(s["power"]),
+        "capability": caps,
+        "capability_note": "Cp = (USL − LSL)/6s, Cpk = min(USL − x̄, x̄ − LSL)/3s with s the sample standard "
+                           "deviation (NIST/SEMATECH e-Handbook of Statistical Methods §6.1.6).",
+        "charts": [{k: c[k] for k in ("quantity", "unit", "labels", "values", "centre", "mr_bar", "ucl", "lcl",
+                                      "out_of_limits")} for c in s["charts"]],
+        "chart_note": "Individuals chart: limits x̄ ± 3·MR̄/d2, d2 = 1.128 (moving ranges of two).",
+        "notes": s["notes"],
+        "rows": rows,
+        "operators": ", ".join(sorted({r.meta.operator for r in records if r.meta.operator})) or "—",
+        "approver": approver or shop.get("approver") or "",
+        "record_checksums": _canonical_digest([r.content_sha256 for r in sorted(records, key=lambda r: r.id)]),
+    }
+
+
+def _pm(value, U) -> str:
+    """``value ± U`` without the unit (the column heading carries it)."""
+    if value is None:
+        return "—"
+    if U is None or not math.isfinite(U) or U <= 0:
+        return f"{value:.6g} (U not available)"
+    return format_value(float(value), float(U), "").strip()
+
+
+def _verdict_order(v: str) -> tuple:
+    order = ["pass", "conditional pass", "conditional fail", "fail", "not evaluated", "analysis failed"]
+    return (order.index(v) if v in order else len(order), v)
+
+
+def _canonical_digest(items) -> str:
+    import hashlib
+
+    return hashlib.sha256("\n".join(items).encode()).hexdigest()
+
+
+# ----------------------------------------------------------------------------------------------- layout
+
+_FONTS: dict | None = None
+
+
+def _fonts() -> dict:
+    """Register DejaVu (for µ, λ, ², ±) from the system or from matplotlib's bundled copy."""
+    global _FONTS
+    if _FONTS is not None:
+        return _FONTS
+    from reportlab.pdfbase import pdfmetrics
+    from reportlab.pdfbase.ttfonts import TTFont
+
+    dirs = ["/usr/share/fonts/truetype/dejavu"]
+    try:
+        import matplotlib
+
+        dirs.append(os.path.join(os.path.dirname(matplotlib.__file__), "mpl-data", "fonts", "ttf"))
+    except ImportError:  # pragma: no cover - matplotlib is a dependency
+        pass
+    names = {"regular": "DejaVuSans.ttf", "bold": "DejaVuSans-Bold.ttf", "mono": "DejaVuSansMono.ttf"}
+    found = {}
+    for key, fname in names.items():
+        for d in dirs:
+            p = os.path.join(d, fname)
+            if os.path.exists(p):
+                face = "RG-" + fname[:-4]
+                pdfmetrics.registerFont(TTFont(face, p))
+                found[key] = face
+                break
+    if len(found) < 3:
+        raise RinggaugeError("the DejaVu fonts are missing (install fonts-dejavu-core); cannot write the PDF")
+    _FONTS = found
+    return found
+
+
+def _styles():
+    from reportlab.lib import colors
+    from reportlab.lib.styles import ParagraphStyle
+
+    f = _fonts()
+    base = ParagraphStyle("base", fontName=f["regular"], fontSize=8.6, leading=11.2)
+    return {
+        "base": base,
+        "small": ParagraphStyle("small", parent=base, fontSize=7.4, leading=9.4),
+        "mono": ParagraphStyle("mono", parent=base, fontName=f["mono"], fontSize=7.2, leading=9.2),
+        "h1": ParagraphStyle("h1", parent=base, fontName=f["bold"], fontSize=15, leading=19, spaceAfter=2,
+                             textColor=colors.HexColor("#1f3b57")),
+        "h2": ParagraphStyle("h2", parent=base, fontName=f["bold"], fontSize=10, leading=13, spaceBefore=9,
+                             spaceAfter=3, textColor=colors.HexColor("#1f3b57")),
+        "cell": ParagraphStyle("cell", parent=base, fontSize=7.8, leading=9.6),
+        "cellb": ParagraphStyle("cellb", parent=base, fontName=f["bold"], fontSize=7.8, leading=9.6),
+        "verdict": ParagraphStyle("verdict", parent=base, fontName=f["bold"], fontSize=12, leading=15),
+        "end": ParagraphStyle("end", parent=base, fontName=f["bold"], fontSize=9, alignment=1, spaceBefore=10),
+    }
+
+
+def _esc(s) -> str:
+    from xml.sax.saxutils import escape
+
+    return escape(str(s))
+
+
+def _page_size(paper: str):
+    from reportlab.lib.pagesizes import A4, LETTER
+
+    p = (paper or "A4").strip().lower()
+    if p == "a4":
+        return A4
+    if p == "letter":
+        return LETTER
+    raise InputError(f"paper size must be A4 or Letter, got {paper!r}")
+
+
+def _kv_table(pairs, st, widths):
+    from reportlab.lib import colors
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    data = [[Paragraph(_esc(k), st["cellb"]), Paragraph(_esc(v), st["cell"])] for k, v in pairs]
+    t = Table(data, colWidths=widths, hAlign="LEFT")
+    t.setStyle(TableStyle([
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#c8d0d8")),
+        ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+    ]))
+    return t
+
+
+def _grid_table(header, rows, st, widths, *, repeat=True, zebra=True):
+    from reportlab.lib import colors
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    data = [[Paragraph(_esc(h), st["cellb"]) for h in header]]
+    data += [[Paragraph(_esc(c), st["cell"]) for c in r] for r in rows]
+    t = Table(data, colWidths=widths, repeatRows=1 if repeat else 0, hAlign="LEFT")
+    style = [
+        ("BACKGROUND", (0, 0), (-1, 0), colors.HexColor("#e4ebf2")),
+        ("LINEBELOW", (0, 0), (-1, 0), 0.6, colors.HexColor("#1f3b57")),
+        ("LINEBELOW", (0, 1), (-1, -1), 0.25, colors.HexColor("#c8d0d8")),
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3), ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+    ]
+    if zebra:
+        for i in range(2, len(data), 2):
+            style.append(("BACKGROUND", (0, i), (-1, i), colors.HexColor("#f5f7f9")))
+    t.setStyle(TableStyle(style))
+    return t
+
+
+def _canvas_class(number: str, title: str, shop_name: str):
+    """A canvas that knows the page count when it saves, so every page can say "page x of y"."""
+    from reportlab.lib import colors
+    from reportlab.pdfgen import canvas as rl_canvas
+
+    f = _fonts()
+
+    class NumberedCanvas(rl_canvas.Canvas):
+        def __init__(self, *a, **kw):
+            super().__init__(*a, **kw)
+            self._pages = []
+
+        def showPage(self):  # noqa: N802 - reportlab API
+            self._pages.append(dict(self.__dict__))
+            self._startPage()
+
+        def save(self):
+            n = len(self._pages)
+            for i, state in enumerate(self._pages, 1):
+                self.__dict__.update(state)
+                self._marks(i, n)
+                super().showPage()
+            super().save()
+
+        def _marks(self, i: int, n: int) -> None:
+            w, h = self._pagesize
+            m = 18 * 72 / 25.4
+            self.saveState()
+            self.setStrokeColor(colors.HexColor("#1f3b57"))
+            self.setLineWidth(0.8)
+            self.line(m, h - 14 * 72 / 25.4, w - m, h - 14 * 72 / 25.4)
+            self.setFont(f["bold"], 8.5)
+            self.setFillColor(colors.HexColor("#1f3b57"))
+            self.drawString(m, h - 12 * 72 / 25.4, shop_name)
+            self.setFont(f["regular"], 8.5)
+            self.drawRightString(w - m, h - 12 * 72 / 25.4, f"{title}  No. {number}")
+            self.setLineWidth(0.4)
+            self.line(m, 14 * 72 / 25.4, w - m, 14 * 72 / 25.4)
+            self.setFont(f["regular"], 7.5)
+            self.setFillColor(colors.black)
+            self.drawString(m, 10 * 72 / 25.4, f"No. {number}")
+            self.drawCentredString(w / 2, 10 * 72 / 25.4, f"ringgauge {__version__}")
+            self.drawRightString(w - m, 10 * 72 / 25.4, f"Page {i} of {n}")
+            self.restoreState()
+
+    return NumberedCanvas
+
+
+def _doc(buf, paper: str, content: dict):
+    from reportlab.lib.units import mm
+    from reportlab.platypus import SimpleDocTemplate
+
+    return SimpleDocTemplate(
+        buf, pagesize=_page_size(paper), leftMargin=18 * mm, rightMargin=18 * mm, topMargin=20 * mm,
+        bottomMargin=20 * mm, title=f"{content['title']} {content['number']}",
+        author=(content.get("shop") or {}).get("name") or "", subject=content["number"],
+        creator=content["software"], invariant=1,
+    )
+
+
+def _shop_block(content, st):
+    from reportlab.platypus import Paragraph
+
+    shop = content.get("shop") or {}
+    lines = [f"<b>{_esc(shop.get('name') or '')}</b>"] + [_esc(a) for a in shop.get("address") or []]
+    if shop.get("contact"):
+        lines.append(_esc(shop["contact"]))
+    if shop.get("accreditation"):
+        lines.append(_esc(shop["accreditation"]))
+    return Paragraph("<br/>".join(lines), st["small"])
+
+
+def _header_block(content, st, width):
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    right = Paragraph(
+        f"<b>No. {_esc(content['number'])}</b><br/>Issued {_esc(content['issued_utc'][:10])} (UTC)",
+        st["base"])
+    t = Table([[_shop_block(content, st), right]], colWidths=[width * 0.62, width * 0.38])
+    t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("ALIGN", (1, 0), (1, 0), "RIGHT"),
+                           ("LEFTPADDING", (0, 0), (-1, -1), 3)]))
+    return [t, Paragraph(_esc(content["title"]), st["h1"])]
+
+
+def _image_flowable(path, max_w, max_h):
+    from reportlab.platypus import Image
+
+    from PIL import Image as PILImage
+
+    with PILImage.open(path) as im:
+        w, h = im.size
+    s = min(max_w / w, max_h / h)
+    return Image(str(path), width=w * s, height=h * s)
+
+
+def _signoff(content, st, width):
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    line = "_" * 28
+    cells = [
+        Paragraph(f"<b>Measured by</b><br/>{_esc(content.get('operator') or content.get('operators') or '')}"
+                  f"<br/><br/>Signature {line}<br/>Date {line}", st["cell"]),
+        Paragraph(f"<b>Approved by</b><br/>{_esc(content.get('approver') or '')}<br/><br/>Signature {line}"
+                  f"<br/>Date {line}", st["cell"]),
+    ]
+    t = Table([cells], colWidths=[width / 2, width / 2])
+    t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("LEFTPADDING", (0, 0), (-1, -1), 3)]))
+    return t
+
+
+def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A4", result: dict | None = None,
+                       image01=None, image_note: str | None = None) -> Path:
+    """Lay out a certificate from its issued ``content``; ``result`` and ``image01`` give the figures."""
+    from reportlab.lib.units import mm
+    from reportlab.platypus import CondPageBreak, KeepTogether, Paragraph, Spacer, Table, TableStyle
+
+    from .overlay import fit_plot_png, overlay_png
+
+    st = _styles()
+    buf = io.BytesIO()
+    doc = _doc(buf, paper, content)
+    W = doc.width
+    story = _header_block(content, st, W)
+    c = content
+    story.append(_kv_table(
+        [("Customer", c["customer"]["customer"]), ("Order", c["customer"]["order"]),
+         ("Part / drawing", f"{c['item']['part']} / {c['item']['drawing']}"),
+         ("Surface", c["item"]["surface"]), ("Serial", c["item"]["serial"]), ("Lot", c["item"]["lot"]),
+         ("Measured (UTC)", c["dates"]["measured (UTC)"]), ("Inspection record", c["dates"]["record"])],
+        st, [34 * mm, W - 34 * mm]))
+    story.append(Paragraph("Specification and method", st["h2"]))
+    story.append(_kv_table([(k[0].upper() + k[1:], v) for k, v in c["specification"].items()]
+                           + [("Method", c["method"])], st, [34 * mm, W - 34 * mm]))
+    story.append(Paragraph("Results", st["h2"]))
+    story.append(_grid_table(["Quantity", "Value", "Expanded uncertainty U", "k"],
+                             [[r["quantity"], r["value"], r["U"], r["k"]] for r in c["results"]],
+                             st, [W * 0.38, W * 0.26, W * 0.26, W * 0.10]))
+    story.append(Paragraph(_esc(c["coverage"]), st["small"]))
+    d = c["decision"]
+    verdict_colour = {"pass": "#1e7b34", "fail": "#b00020"}.get(d["verdict"].split()[-1], "#7a5b00")
+    story.append(Paragraph("Conformity statement", st["h2"]))
+    story.append(Paragraph(f"Verdict: <font color='{verdict_colour}'>{_esc(d['verdict'].upper())}</font>",
+                           st["verdict"]))
+    if d["verdict"] == "not evaluated":
+        story.append(Paragraph("No tolerance was given for this inspection, so no statement of conformity is "
+                               "made.", st["base"]))
+    else:
+        story.append(Paragraph(f"Decision rule: {_esc(d['rule'])}. {_esc(d['rule_note'])}", st["base"]))
+    if d["terms"]:
+        keys = list(dict.fromkeys(k for t in d["terms"] for k in t))
+        front = [k for k in ("term", "quantity", "name") if k in keys]
+        keys = front + [k for k in keys if k not in front]
+        story.append(Spacer(1, 3))
+        story.append(_grid_table(keys, [[t.get(k, "") for k in keys] for t in d["terms"]], st,
+                                 [W / len(keys)] * len(keys)))
+    if c.get("budget"):
+        b = c["budget"]
+        story.append(CondPageBreak(50 * mm))
+        story.append(Paragraph(f"Uncertainty budget — {_esc(b['output'])} / {_esc(b['unit'])}", st["h2"]))
+        story.append(_grid_table(
+            ["Input quantity", "Estimate", "Std. unc. u_i", "Distribution", "Divisor", "Sensitivity c_i",
+             "Contribution", "Share"],
+            [[r["quantity"], r["estimate"], r["u"], r["distribution"], r["divisor"], r["sensitivity"],
+              r["contribution"], r["share"]] for r in b["rows"]],
+            st, [W * x for x in (0.18, 0.12, 0.11, 0.13, 0.09, 0.15, 0.13, 0.09)]))
+        story.append(Paragraph(
+            f"Combined standard uncertainty u_c = {_esc(b['u_c'])}; effective degrees of freedom "
+            f"{_esc(b['dof_eff'])}; coverage factor k = {_esc(b['k'])}; expanded uncertainty U = {_esc(b['U'])} "
+            f"({_esc(b['coverage'])}).", st["small"]))
+    # figures
+    with tempfile.TemporaryDirectory(prefix="rg-cert-") as tmp:
+        figs = []
+        if image01 is not None and result is not None:
+            p = Path(tmp) / "overlay.png"
+            overlay_png(image01, result, p)
+            figs.append((_image_flowable(p, W * 0.49, 75 * mm), "Image with the fitted rings and centre"))
+        if result is not None:
+            p = Path(tmp) / "fit.png"
+            if fit_plot_png(result, p):
+                figs.append((_image_flowable(p, W * 0.49, 75 * mm), "Fit behind the result"))
+        story.append(CondPageBreak(85 * mm))
+        story.append(Paragraph("Image and fit", st["h2"]))
+        if figs:
+            cells = [[f for f, _ in figs], [Paragraph(_esc(t), st["small"]) for _, t in figs]]
+            t = Table(cells, colWidths=[W / 2] * len(figs), hAlign="LEFT")
+            t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("ALIGN", (0, 0), (-1, -1), "CENTER")]))
+            story.append(t)
+        if image_note:
+            story.append(Paragraph(_esc(image_note), st["small"]))
+        story.append(Paragraph("Traceability and conditions", st["h2"]))
+        tr = c["traceability"]
+        plate = tr["test plate"]
+        plate_txt = ", ".join(f"{k.replace('_', ' ')} {_fmt(v)}" for k, v in plate.items()) \
+            if isinstance(plate, dict) else str(plate)
+        story.append(_kv_table(
+            [("Test plate", plate_txt), ("Wavelength source", tr["wavelength source"]),
+             ("Pixel scale", tr["pixel scale"]), ("Pixel-scale calibration", tr["pixel-scale calibration"]),
+             ("Temperature", c["environment"]["temperature"]),
+             ("Image file", f"{c['image']['name']}, {c['image']['size']}")],
+            st, [34 * mm, W - 34 * mm]))
+        notes = []
+        if c.get("correction"):
+            notes.append(c["correction"])
+        notes += c.get("warnings") or []
+        if c.get("notes"):
+            notes.append(c["notes"])
+        if notes:
+            story.append(Paragraph("Notes", st["h2"]))
+            for n in notes:
+                story.append(Paragraph("• " + _esc(n), st["base"]))
+        closing = [
+            Paragraph("Authorisation", st["h2"]),
+            _signoff(c, st, W),
+            Spacer(1, 6),
+            Paragraph("Checksums (SHA-256)", st["h2"]),
+            Paragraph(f"Image: {_esc(c['image']['sha256'])}", st["mono"]),
+            Paragraph(f"Inspection record: {_esc(c['record_checksum'])}", st["mono"]),
+            Paragraph(f"Certificate content: {content_checksum(content)}", st["mono"]),
+            Paragraph("Check a copy with: ringgauge certificate verify FILE.pdf", st["small"]),
+            Spacer(1, 4),
+            Paragraph("The results relate only to the item inspected. This certificate shall not be reproduced "
+                      "except in full without the written approval of the issuing shop.", st["small"]),
+            Paragraph(f"— End of certificate {_esc(c['number'])} —", st["end"]),
+        ]
+        story.append(KeepTogether(closing))
+        doc.build(story, canvasmaker=_canvas_class(c["number"], "Certificate", c["shop"].get("name") or ""))
+    return _finish(buf, content, out)
+
+
+def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4") -> Path:
+    """Lay out a lot report from its issued ``content`` (the control chart is drawn from the content)."""
+    from reportlab.lib.units import mm
+    from reportlab.platypus import CondPageBreak, KeepTogether, Paragraph, Spacer
+
+    from ..records.lot import IndividualsChart, chart_png
+
+    st = _styles()
+    buf = io.BytesIO()
+    doc = _doc(buf, paper, content)
+    W = doc.width
+    c = content
+    story = _header_block(c, st, W)
+    story.append(_kv_table(
+        [("Lot", c["lot"]), ("Part", c["part"]), ("Customer", c["customer"]), ("Tolerance", c["tolerance"]),
+         ("Inspected", c["period"]), ("Operators", c["operators"]), ("Records", c["n_records"])],
+        st, [34 * mm, W - 34 * mm]))
+    story.append(Paragraph("Summary", st["h2"]))
+    story.append(_grid_table(["Verdict", "Parts"], [[k, v] for k, v in c["counts"].items()], st,
+                             [W * 0.4, W * 0.15], zebra=False))
+    story.append(Spacer(1, 4))
+    story.append(_grid_table(
+        ["Quantity", "n", "Mean", "Standard deviation s", "Range"],
+        [["Radius of curvature", c["radius"]["n"], c["radius"]["mean"], c["radius"]["sd"], c["radius"]["range"]],
+         ["Power", c["power"]["n"], c["power"]["mean"], c["power"]["sd"], c["power"]["range"]]],
+        st, [W * 0.22, W * 0.08, W * 0.22, W * 0.2, W * 0.28]))
+    if c["capability"]:
+        story.append(Paragraph("Process capability", st["h2"]))
+        story.append(_grid_table(["Quantity", "Specification", "n", "Mean", "s", "Cp", "Cpk"],
+                                 [[x["quantity"], x["limits"], x["n"], x["mean"], x["s"], x["Cp"], x["Cpk"]]
+                                  for x in c["capability"]], st,
+                                 [W * x for x in (0.14, 0.24, 0.07, 0.17, 0.16, 0.11, 0.11)]))
+        story.append(Paragraph(_esc(c["capability_note"]), st["small"]))
+    for n in c.get("notes") or []:
+        story.append(Paragraph("• " + _esc(n), st["small"]))
+    with tempfile.TemporaryDirectory(prefix="rg-lot-") as tmp:
+        if c["charts"]:
+            charts = [IndividualsChart(ch["quantity"], ch["unit"], tuple(ch["labels"]), tuple(ch["values"]),
+                                       ch["centre"], ch["mr_bar"], ch["ucl"], ch["lcl"], 3.267 * ch["mr_bar"],
+                                       tuple(ch["out_of_limits"])) for ch in c["charts"]]
+            p = Path(tmp) / "chart.png"
+            chart_png(charts, p)
+            story.append(CondPageBreak(95 * mm))
+            story.append(Paragraph("Control chart (individuals)", st["h2"]))
+            story.append(_image_flowable(p, W, 110 * mm))
+            story.append(Paragraph(_esc(c["chart_note"]), st["small"]))
+        story.append(Paragraph("Parts", st["h2"]))
+        story.append(Paragraph(f"R: radius of curvature; U: expanded uncertainty ({_esc(c['k'])}, about 95 %).",
+                               st["small"]))
+        story.append(Spacer(1, 3))
+        story.append(_grid_table(["Record", "Serial", "Verdict", "R ± U / mm", "Power ± U / fringes", "Note"],
+                                 [[r["record"], r["serial"], r["verdict"], r["radius"], r["power"], r["note"]]
+                                  for r in c["rows"]], st,
+                                 [W * x for x in (0.08, 0.12, 0.13, 0.24, 0.17, 0.26)]))
+        story.append(KeepTogether([
+            Paragraph("Authorisation", st["h2"]),
+            _signoff(c, st, W),
+            Paragraph("Checksums (SHA-256)", st["h2"]),
+            Paragraph(f"Records listed: {_esc(c['record_checksums'])}", st["mono"]),
+            Paragraph(f"Report content: {content_checksum(content)}", st["mono"]),
+            Paragraph("Check a copy with: ringgauge certificate verify FILE.pdf", st["small"]),
+            Paragraph(f"— End of lot report {_esc(c['number'])} —", st["end"]),
+        ]))
+        doc.build(story, canvasmaker=_canvas_class(c["number"], "Lot report", c["shop"].get("name") or ""))
+    return _finish(buf, content, out)
+
+
+def _finish(buf: io.BytesIO, content: dict, out) -> Path:
+    """Embed the content and its checksum, then write the file atomically."""
+    from pypdf import PdfReader, PdfWriter
+
+    buf.seek(0)
+    writer = PdfWriter(clone_from=PdfReader(buf))
+    text = _canonical(content)
+    writer.add_attachment(CONTENT_FILE, text.encode("utf-8"))
+    writer.add_metadata({"/RinggaugeNumber": content["number"], "/RinggaugeContentSHA256": content_checksum(content)})
+    out = Path(out)
+    if out.parent and not out.parent.exists():
+        raise InputError(f"cannot write {out}: folder {out.parent} does not exist")
+    tmp = out.with_name(out.name + ".part")
+    try:
+        with open(tmp, "wb") as fh:
+            writer.write(fh)
+        os.replace(tmp, out)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise InputError(f"cannot write {out} ({exc.strerror or exc})") from None
+    return out
+
+
+# ----------------------------------------------------------------------------------------------- verify
+
+
+@dataclass
+class Verification:
+    path: str
+    number: str | None = None
+    kind: str | None = None
+    checksum: str | None = None
+    pages: int = 0
+    ok: bool = True
+    checks: list[tuple[bool, str]] = field(default_factory=list)
+
+    def check(self, ok: bool, what: str) -> bool:
+        self.checks.append((bool(ok), what))
+        self.ok = self.ok and bool(ok)
+        return bool(ok)
+
+
+def _norm(text: str) -> str:
+    return re.sub(r"\s+", " ", unicodedata.normalize("NFKC", text))
+
+
+def printed_values(content: dict) -> list[str]:
+    """Strings the printed pages must show for the text to agree with the embedded content."""
+    vals = [content["number"]]
+    if content.get("kind") == "certificate":
+        for r in content.get("results") or []:
+            vals += [r["value"], r["U"]]
+        vals.append(content["decision"]["verdict"].upper())
+        vals.append(content["image"]["sha256"])
+        vals += [content["item"]["serial"], content["item"]["part"]]
+    else:
+        vals += [content["lot"]] + [r["radius"] for r in content.get("rows") or []]
+        vals += [c["Cpk"] for c in content.get("capability") or []]
+    return [v for v in vals if v and v not in ("—",)]
+
+
+def verify_pdf(path: str | os.PathLike, store=None) -> Verification:
+    """Check a certificate or lot report: embedded content against its checksum, printed text against the
+    content, and (given a store) against the document as issued."""
+    from pypdf import PdfReader
+    from pypdf.errors import PdfReadError
+
+    p = Path(path)
+    v = Verification(str(p))
+    if not p.exists():
+        raise InputError(f"{p}: no such file")
+    try:
+        reader = PdfReader(str(p))
+        pages = [_norm(pg.extract_text() or "") for pg in reader.pages]
+        meta = reader.metadata or {}
+        att = reader.attachments
+    except (PdfReadError, OSError, ValueError) as exc:
+        raise InputError(f"{p}: not a readable PDF ({exc})") from None
+    v.pages = len(pages)
+    if CONTENT_FILE not in att:
+        v.check(False, "the PDF carries no ringgauge content (not a ringgauge certificate, or rewritten)")
+        return v
+    try:
+        content = json.loads(att[CONTENT_FILE][0].decode("utf-8"))
+    except (ValueError, UnicodeDecodeError):
+        v.check(False, "the embedded content is damaged")
+        return v
+    digest = content_checksum(content)
+    v.number, v.kind, v.checksum = content.get("number"), content.get("kind"), digest
+    v.check(meta.get("/RinggaugeContentSHA256") == digest,
+            "embedded content matches the checksum in the document information")
+    v.check(any(f"content: {digest}" in t for t in pages), "the printed content checksum matches the content")
+    n = len(pages)
+    v.check(all(f"No. {v.number}" in t and f"Page {i} of {n}" in t for i, t in enumerate(pages, 1)),
+            f"number {v.number} and 'Page x of {n}' on every page")
+    v.check(f"End of {v.kind} {v.number}" in pages[-1] if pages else False, "end mark on the last page")
+    alltext = " ".join(pages)
+    missing = [s for s in printed_values(content) if _norm(s) not in alltext]
+    v.check(not missing, "printed values agree with the content"
+            + (f" (not found: {', '.join(missing[:4])})" if missing else ""))
+    if store is not None:
+        try:
+            doc = store.document(v.number)
+        except RinggaugeError:
+            v.check(False, f"document {v.number} is not in the records store {store.where}")
+        else:
+            v.check(doc.content_sha256 == digest,
+                    f"identical to {doc.kind} {doc.number} as issued on {doc.issued_utc[:10]} ({store.where})")
+    return v
