@@ -151,3 +151,20 @@ def test_kill_in_the_middle_then_resume(tmp_path):
     assert [r.id for r in before] == [r.id for r in after[: len(before)]]  # earlier records untouched
     assert sum(r.status == "failed" for r in after) == 1
     store.close()
+
+
+@pytest.mark.postgres
+def test_lot_on_a_shared_postgresql_store(tmp_path, pg_url):
+    """Two benches sharing one server: the second run of the lot finds every image already recorded."""
+    make_folder(tmp_path / "lot", 5, bad=1)
+    with open_store(pg_url) as bench1:
+        run = run_lot(bench1, find_images(tmp_path / "lot"), default_setup(10.0), RecordMeta(lot="PG1"),
+                      workers=2, analyse_fn=fake_analyse, progress=False, max_images=3)
+        assert (run.recorded, run.skipped) == (3, 0)
+    with open_store(pg_url) as bench2:
+        run = run_lot(bench2, find_images(tmp_path / "lot"), default_setup(10.0), RecordMeta(lot="PG1"),
+                      workers=2, analyse_fn=fake_analyse, progress=False)
+        assert (run.recorded, run.skipped) == (2, 3)
+        recs = bench2.find(RecordFilter(lot="PG1"))
+        assert len(recs) == 5 and len({r.image_sha256 for r in recs}) == 5
+        assert sum(r.status == "failed" for r in recs) == 1 and all(r.intact() for r in recs)
