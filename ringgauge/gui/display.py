@@ -407,8 +407,11 @@ def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None
 
 
 def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24) -> np.ndarray | None:
-    """Fit minus image for a ring result: within each annulus the image is regressed on
-    [1, cos 2πm, sin 2πm] with m the fitted fringe order at each pixel; NaN outside the fitted rings."""
+    """Fit minus image for a ring result, NaN outside the fitted rings.
+
+    The fitted orders put dark rings at whole m = (r² − c) / slope, so the model is I = a − b cos 2πm. Only
+    the background a and the fringe amplitude b are taken from the image, annulus by annulus (they vary with
+    lighting); the phase is the fit's own, so a wrong centre or slope shows as residual fringes."""
     if not d:
         return None
     fr = d.get("fringes") or {}
@@ -429,7 +432,7 @@ def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24) -> np.
         sel = (r2 >= lo) & (r2 < hi)
         if sel.sum() < 12:
             continue
-        X = np.stack([np.ones(sel.sum()), np.cos(2 * np.pi * m[sel]), np.sin(2 * np.pi * m[sel])], axis=1)
+        X = np.stack([np.ones(sel.sum()), -np.cos(2 * np.pi * m[sel])], axis=1)
         coef, *_ = np.linalg.lstsq(X, img[sel], rcond=None)
         out[sel] = X @ coef - img[sel]
     return out

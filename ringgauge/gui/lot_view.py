@@ -104,13 +104,20 @@ class LotFilter(QSortFilterProxyModel):
         self.choice = "All rows"
         self.setSortRole(SORT_ROLE)
 
+    def _refilter(self, change) -> None:
+        if hasattr(self, "beginFilterChange"):  # Qt 6.10 and later
+            self.beginFilterChange()
+            change()
+            self.endFilterChange(QSortFilterProxyModel.Direction.Rows)
+        else:
+            change()
+            self.invalidateFilter()
+
     def set_text(self, text: str) -> None:
-        self.text = text.strip().lower()
-        self.invalidateFilter()
+        self._refilter(lambda: setattr(self, "text", text.strip().lower()))
 
     def set_choice(self, choice: str) -> None:
-        self.choice = choice
-        self.invalidateFilter()
+        self._refilter(lambda: setattr(self, "choice", choice))
 
     def filterAcceptsRow(self, row, parent):  # noqa: N802
         lot: Lot = self.sourceModel().lot

@@ -10,7 +10,8 @@ os.environ.setdefault("QT_API", "pyside6")
 import numpy as np  # noqa: E402
 from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
-from PySide6.QtWidgets import QTabWidget  # noqa: E402
+from PySide6.QtCore import Qt  # noqa: E402
+from PySide6.QtWidgets import QLabel, QStackedWidget, QTabWidget  # noqa: E402
 
 from . import display  # noqa: E402
 
@@ -23,25 +24,36 @@ C_OUT = "#D55E00"
 _RC = {"font.size": 10.5, "axes.grid": True, "grid.alpha": 0.3}
 
 
-class PlotCanvas(FigureCanvasQTAgg):
+class PlotCanvas(QStackedWidget):
+    """A matplotlib figure with a plain-text stand-in while there is nothing to plot (cheap to show)."""
+
     def __init__(self, parent=None):
-        self.figure = Figure(figsize=(5, 3.2), dpi=96, layout="constrained")
-        super().__init__(self.figure)
-        self.setParent(parent)
+        super().__init__(parent)
+        self.figure = Figure(figsize=(5, 3.2), dpi=96)
+        self.canvas = FigureCanvasQTAgg(self.figure)
+        self.label = QLabel("")
+        self.label.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        self.label.setWordWrap(True)
+        self.label.setStyleSheet("color: #555555;")
+        self.addWidget(self.label)
+        self.addWidget(self.canvas)
         self.setMinimumHeight(180)
         self.has_data = False
 
     def empty(self, text: str) -> None:
-        self.figure.clear()
-        ax = self.figure.add_subplot(111)
-        ax.set_axis_off()
-        ax.text(0.5, 0.5, text, ha="center", va="center", transform=ax.transAxes, color="#555555", wrap=True)
+        self.label.setText(text)
+        self.setCurrentWidget(self.label)
         self.has_data = False
-        self.draw_idle()
+
+    def shown(self) -> None:
+        self.has_data = True
+        self.setCurrentWidget(self.canvas)
+        self.canvas.draw_idle()
 
 
 class PlotPanel(QTabWidget):
-    """Three tabs of plots; :meth:`show_result` redraws all from a result dict."""
+    """Three tabs of plots; :meth:`show_result` redraws them from a result dict. Only the tab in view is drawn
+    at once; the others are drawn when they are opened (matplotlib drawing is the slow part)."""
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -51,19 +63,35 @@ class PlotPanel(QTabWidget):
         self.addTab(self.rings, "r² against order")
         self.addTab(self.profile, "Radial profile")
         self.addTab(self.form, "Form map")
+        self._pending: dict[int, tuple] = {}
+        self.currentChanged.connect(self._draw_pending)
         self.clear()
 
     def clear(self) -> None:
+        self._pending.clear()
         for c in (self.rings, self.profile, self.form):
             c.empty("no result yet")
 
     def show_result(self, d: dict | None, *, form_obj=None, shape=None) -> None:
+        self._pending = {0: (self._rings, (d,)), 1: (self._profile, (d,)), 2: (self._form, (d, form_obj, shape))}
+        # state what each tab will hold now, draw the visible one now and the rest when opened
+        self.rings.has_data = display.ring_plot_data(d) is not None
+        self.profile.has_data = display.profile_plot_data(d) is not None
+        self._draw_pending(self.currentIndex())
+
+    def _draw_pending(self, index: int) -> None:
+        job = self._pending.pop(index, None)
+        if job is None:
+            return
         import matplotlib
 
+        fn, args = job
         with matplotlib.rc_context(_RC):
-            self._rings(d)
-            self._profile(d)
-            self._form(d, form_obj, shape)
+            fn(*args)
+
+    def draw_all(self) -> None:
+        for i in list(self._pending):
+            self._draw_pending(i)
 
     def _rings(self, d) -> None:
         data = display.ring_plot_data(d)
@@ -73,6 +101,7 @@ class PlotPanel(QTabWidget):
             return
         c.figure.clear()
         ax, axr = c.figure.subplots(2, 1, sharex=True, height_ratios=[3, 1.3])
+        c.figure.subplots_adjust(left=0.15, right=0.97, top=0.96, bottom=0.14, hspace=0.08)
         m, r2, used = data["order"], data["r2_mm2"], data["used"]
         ax.errorbar(m[used], r2[used], yerr=data["u_r2_mm2"][used], fmt="o", ms=4, color=C_DARK,
                     label="ring (used)", zorder=3)
@@ -90,8 +119,7 @@ class PlotPanel(QTabWidget):
             axr.plot(m[~used], data["residual_um2"][~used], "x", ms=6, color=C_OUT)
         axr.set_ylabel("residual / µm²")
         axr.set_xlabel("fringe order m")
-        c.has_data = True
-        c.draw_idle()
+        c.shown()
 
     def _profile(self, d) -> None:
         data = display.profile_plot_data(d)
@@ -101,6 +129,7 @@ class PlotPanel(QTabWidget):
             return
         c.figure.clear()
         ax = c.figure.add_subplot(111)
+        c.figure.subplots_adjust(left=0.15, right=0.97, top=0.96, bottom=0.14)
         ax.plot(data["r_px"], data["intensity"], "-", color=C_BRIGHT, lw=1.0, label="mean intensity")
         ex = data["extrema_r_px"]
         if ex.size:
@@ -109,8 +138,7 @@ class PlotPanel(QTabWidget):
         ax.set_xlabel(data["xlabel"])
         ax.set_ylabel("intensity (full scale = 1)")
         ax.legend(loc="upper right", fontsize=9)
-        c.has_data = True
-        c.draw_idle()
+        c.shown()
 
     def _form(self, d, form_obj, shape) -> None:
         data = display.form_map(d, form_obj, shape)
@@ -120,6 +148,7 @@ class PlotPanel(QTabWidget):
             return
         c.figure.clear()
         ax = c.figure.add_subplot(111)
+        c.figure.subplots_adjust(left=0.12, right=0.92, top=0.92, bottom=0.13)
         im = ax.imshow(data["gap_nm"], extent=data["extent_px"], cmap="cividis", interpolation="nearest")
         ax.set_aspect("equal")
         ax.set_xlabel("x / px")
@@ -127,5 +156,4 @@ class PlotPanel(QTabWidget):
         ax.set_title(data["title"], fontsize=10)
         cb = c.figure.colorbar(im, ax=ax, shrink=0.9)
         cb.set_label("gap / nm")
-        c.has_data = True
-        c.draw_idle()
+        c.shown()

@@ -396,6 +396,7 @@ class MainWindow(QMainWindow):
             if what == "overrides":
                 page.hint.setText(s.overrides.describe())
             if s.frames and self.auto_analyse:
+                page.results.show_busy(0.0, "the inputs changed; analysing again")
                 self._debounce.start()
         elif what == "busy":
             f, msg = s.progress
@@ -425,7 +426,10 @@ class MainWindow(QMainWindow):
             self._show_photo()
         v = display.verdict_view(d)
         R = (d or {}).get("radius_mm")
-        extra = f"R = {display.value_rows(d)[0].value} mm" if R is not None else ""
+        extra = ""
+        if R is not None:
+            row = display.value_rows(d)[0]
+            extra = f"R = {row.value} {row.uncertainty} mm (k = {d.get('k', 2):g})"
         self.set_status(f"Analysed {s.title}: {v.word}" + (f", {extra}" if extra else ""))
 
     def _show_photo(self, *, refit: bool = False) -> None:

@@ -1,0 +1,70 @@
+"""Helpers for the window's tests: sample images made by the synthetic generator and a hand-made analysis for
+the widget tests (fast and predictable)."""
+
+import math
+
+import cv2
+import numpy as np
+
+from ringgauge.errors import AnalysisError
+from ringgauge.result import AnalysisResult, ImageInfo, Ring, RingFit
+from ringgauge.uncertainty import BudgetRow, make_budget
+
+
+def write_rings(path, *, radius_mm=800.0, width=320, height=256, pixel_um=16.0, seed=1, source="sodium-d"):
+    from ringgauge import synth
+
+    s = synth.newton_rings(radius_mm, camera=synth.Camera(width=width, height=height, pixel_um=pixel_um),
+                           source=source, rng=seed)
+    cv2.imwrite(str(path), s.image)
+    return s.truth
+
+
+def hand_result(frame, setup, radius_mm: float, *, verdict=None, n_rings: int = 10) -> AnalysisResult:
+    """A result put together by hand (no image analysis): rings on r^2 = m lambda R / n exactly."""
+    lam_mm = setup.wavelength_nm * 1e-6
+    slope = lam_mm * radius_mm / setup.medium_index
+    px_mm = setup.pixel_size_um * 1e-3
+    rings = tuple(
+        Ring(float(m), "dark", math.sqrt(m * slope) / px_mm, math.sqrt(m * slope), m * slope, 1e-4, 0.0)
+        for m in range(1, n_rings + 1)
+    )
+    fit = RingFit(slope, slope * 1e-4, 0.0, 1e-4, 0.0, None, 1.0, 1.0, n_rings, 2, rings, rings[0].radius_mm,
+                  rings[-1].radius_mm, "hand-made")
+    rows = [BudgetRow("slope", slope, "mm²", slope * 1e-4, "normal", 1.0, radius_mm / slope, "1/mm",
+                      radius_mm * 1e-4)]
+    budget = make_budget("R", "mm", radius_mm, rows)
+    h, w = frame.shape
+    info = ImageInfo(frame.path, frame.sha256, w, h, frame.bit_depth, frame.channel, 0.0)
+    return AnalysisResult(info, setup, ((w - 1) / 2, (h - 1) / 2), (0.01, 0.01), radius_mm, budget.u_c, budget.k,
+                          budget, fit, verdict=verdict, warnings=("hand-made result",))
+
+
+class FakeEngine:
+    """Stands in for ringgauge.pipeline.analyse: R scales with 1/λ so a set-up change shows in the result."""
+
+    def __init__(self, fail_on: str | None = None, verdict=None):
+        self.calls = 0
+        self.fail_on = fail_on
+        self.verdict = verdict
+
+    def __call__(self, frames, setup, *, progress=None):
+        self.calls += 1
+        if progress:
+            progress(0.5, "hand-made analysis")
+        if self.fail_on and self.fail_on in (frames[0].path or ""):
+            raise AnalysisError("no ring system found (hand-made failure for the test)")
+        return hand_result(frames[0], setup, 1000.0 * 589.2938 / setup.wavelength_nm, verdict=self.verdict)
+
+
+def wait_for(qtbot, predicate, timeout=30000):
+    qtbot.waitUntil(predicate, timeout=timeout)
+
+
+def noiseless_rings(radius_mm=500.0, width=200, height=160, pixel_um=20.0):
+    from ringgauge import synth
+
+    s = synth.newton_rings(radius_mm, camera=synth.Camera(width=width, height=height, pixel_um=pixel_um,
+                                                          blur_px=0.0),
+                           lighting=synth.Lighting(falloff=0, gradient=0, stray=0), noise=False, rng=0)
+    return s.intensity.astype(np.float64), s.truth

@@ -1,0 +1,192 @@
+"""The main flows of the bench window, offscreen: open, analyse, read the values and verdict; change the set-up;
+bad files and failed analyses; manual overrides with undo; settings that persist; the watched folder."""
+
+import json
+
+import pytest
+from gui_helpers import FakeEngine, write_rings
+from PySide6.QtCore import QMimeData, QPointF, Qt, QUrl
+from PySide6.QtGui import QDropEvent
+
+from ringgauge.gui.model import BenchSession, SetupState
+from ringgauge.gui.prefs import Prefs
+from ringgauge.gui.window import MainWindow
+from ringgauge.sources import SAFETY_NOTES
+
+
+def make_window(qtbot, engine, rg_home, setup=None):
+    prefs = Prefs(str(rg_home / "window-test.ini"))
+    s = BenchSession(engine, setup or SetupState(source="sodium-d", pixel_size_um=16.0, pixel_size_u_um=0.02))
+    w = MainWindow(s, prefs=prefs)
+    qtbot.addWidget(w)
+    w.show()
+    return w
+
+
+def analysed(w):
+    return lambda: w.session.result is not None and not w.session.busy
+
+
+def test_open_analyse_and_read_values(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    assert w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    value, U, unit = w.bench.results.value_of("Radius of curvature R")
+    assert float(value) == pytest.approx(1000.0, abs=0.1) and unit == "mm" and U.startswith("± ")
+    assert w.bench.results.banner.word.text() == "MEASURED"
+    assert w.bench.title.text() == "lens-A01.png"
+    assert w.bench.view.layer_item_count("rings") == 10
+    assert f"R = {value} {U} mm (k = 2)" in w.status.text()
+    w.bench.plots.draw_all()
+    assert w.bench.plots.rings.has_data and w.bench.plots.form.has_data
+    assert not w.bench.plots.profile.has_data  # a hand-made result carries no profile: the tab says so
+    assert not w.progress.isVisible()
+    assert str(sample_dir / "lens-A01.png") in w.prefs.recent()
+    out = rg_home / "result.json"
+    w.write_json(str(out))
+    assert json.loads(out.read_text(encoding="utf-8"))["radius_mm"] == pytest.approx(1000.0)
+
+
+def test_a_setup_change_updates_the_result(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    panel = w.bench.setup_panel
+    panel.source.setCurrentIndex(panel.source.findData("mercury-e"))
+    expected = 1000.0 * 589.2938 / 546.074
+    qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.wavelength_nm == pytest.approx(546.074),
+                    timeout=10000)
+    value, _, _ = w.bench.results.value_of("Radius of curvature R")
+    assert float(value) == pytest.approx(expected, abs=0.1)
+    assert "UV" in panel.note.text() or "ultraviolet" in panel.note.text()
+    # the set-up was saved for the next run
+    assert Prefs(w.prefs.file).load_setup().source == "mercury-e"
+
+
+def test_a_bad_file_shows_a_message_and_keeps_the_open_image(app, qtbot, fake_engine, sample_dir, rg_home,
+                                                             tmp_path):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    bad = tmp_path / "half-written.png"
+    bad.write_bytes(b"\x89PNG\r\n\x1a\n" + b"\0" * 20)
+    assert w.open_paths([str(bad)]) is False
+    assert "cannot decode" in w.status.text()
+    assert w.bench.results.banner.word.text() == "NO MEASUREMENT"
+    assert "cannot decode" in w.bench.results.banner.explain.text()
+    assert w.session.frames[0].name == "lens-A01.png"
+    assert w.open_paths([str(tmp_path / "missing.png")]) is False
+    assert "no such file" in w.status.text()
+
+
+def test_a_failed_analysis_shows_the_engines_message(app, qtbot, sample_dir, rg_home):
+    w = make_window(qtbot, FakeEngine(fail_on="lens-A02"), rg_home)
+    w.open_paths([str(sample_dir / "lens-A02.png")])
+    qtbot.waitUntil(lambda: w.session.error is not None, timeout=10000)
+    assert "no ring system found" in w.bench.results.banner.explain.text()
+    assert "Analysis failed" in w.status.text() and w.isVisible()
+
+
+def test_an_unexpected_engine_crash_is_a_message_not_a_crash(app, qtbot, sample_dir, rg_home):
+    def broken(frames, setup, *, progress=None):
+        raise ZeroDivisionError("division by zero")
+
+    w = make_window(qtbot, broken, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(lambda: w.session.error is not None, timeout=10000)
+    assert "internal error (ZeroDivisionError" in w.session.error
+    assert (rg_home / "crash.log").exists()
+
+
+def test_manual_centre_with_undo(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    assert not w.a_undo.isEnabled()
+    w.set_mode("centre")
+    assert w.bench.view.mode == "centre" and w.a_pick_centre.isChecked()
+    w.bench.view.centrePicked.emit(120.0, 100.0)
+    assert w.session.overrides.centre_px == (120.0, 100.0)
+    assert w.bench.view.overlay.centre == (120.0, 100.0) and w.bench.view.overlay.centre_by_hand
+    assert w.bench.view.mode == "look" and w.a_undo.isEnabled()
+    assert w.bench.results.banner.word.text() == "ANALYSING"
+    # the engine is told
+    qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.extras.get("centre_px") == (120.0, 100.0),
+                    timeout=10000)
+    w.a_undo.trigger()
+    assert w.session.overrides.empty and not w.a_undo.isEnabled() and w.a_redo.isEnabled()
+    w.bench.view.aperturePicked.emit(5.0, 5.0, 1.0)  # too small: a message, no change
+    assert w.session.overrides.empty and "at least 8 px" in w.status.text()
+
+
+def test_layers_residual_view_and_help(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    w.layer_actions["rings"].trigger()
+    assert not w.bench.view._groups["rings"].isVisible()
+    w.a_residual.trigger()
+    assert w.residual_on and "Residual view" in w.bench.hint.text()
+    w.a_residual.trigger()
+    assert not w.residual_on
+    text = w.help_html()
+    for note in SAFETY_NOTES:
+        assert note.replace("'", "&#x27;") in text
+    w.show_help()
+    assert w._help.isVisible()
+    w._help.close()
+
+
+def test_drop_a_file_onto_the_window(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(sample_dir / "lens-A02.png"))])
+    ev = QDropEvent(QPointF(50, 50), Qt.DropAction.CopyAction, mime, Qt.MouseButton.NoButton,
+                    Qt.KeyboardModifier.NoModifier)
+    w.dropEvent(ev)
+    assert w.session.title == "lens-A02.png"
+    qtbot.waitUntil(analysed(w), timeout=10000)
+
+
+def test_watched_folder_opens_each_new_image(app, qtbot, fake_engine, rg_home, tmp_path):
+    cam = tmp_path / "camera"
+    cam.mkdir()
+    w = make_window(qtbot, fake_engine, rg_home)
+    assert w.start_watch(str(cam)) and w.a_unwatch.isEnabled()
+    write_rings(cam / "part-0001.png")
+    assert w.poll_watch() == []  # seen once: maybe still being written
+    assert w.poll_watch() == [str(cam / "part-0001.png")]
+    assert w.session.title == "part-0001.png"
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    w.stop_watch()
+    assert w.watch is None
+    assert w.start_watch(str(tmp_path / "nowhere")) is False and "no such folder" in w.status.text()
+
+
+def test_settings_persist_between_runs(app, qtbot, fake_engine, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.bench.setup_panel.operator.setText("A.N.")
+    w.bench.setup_panel.operator.editingFinished.emit()
+    w.bench.setup_panel.pixel.setValue(12.5)
+    w.close()
+    again = MainWindow(prefs=Prefs(w.prefs.file))
+    qtbot.addWidget(again)
+    assert again.session.setup.operator == "A.N." and again.session.setup.pixel_size_um == pytest.approx(12.5)
+    assert again.bench.setup_panel.pixel.value() == pytest.approx(12.5)
+
+
+@pytest.mark.slow
+def test_real_engine_measures_a_synthetic_lens(app, qtbot, rg_home, tmp_path):
+    pytest.importorskip("ringgauge.pipeline")
+    truth = write_rings(tmp_path / "lens.png", radius_mm=800.0, width=320, height=256, pixel_um=16.0, seed=3)
+    w = make_window(qtbot, None, rg_home, SetupState(source="sodium-d", pixel_size_um=16.0, pixel_size_u_um=0.02))
+    w.open_paths([str(tmp_path / "lens.png")])
+    qtbot.waitUntil(lambda: analysed(w)() or w.session.error is not None, timeout=120000)
+    assert w.session.error is None
+    r = w.session.result
+    # the generator's truth lies within the expanded uncertainty the engine states
+    assert abs(r.radius_mm - truth["radius_mm"]) <= r.radius_U_mm
+    value, U, unit = w.bench.results.value_of("Radius of curvature R")
+    assert unit == "mm" and float(value) == pytest.approx(r.radius_mm, abs=float(U.split()[1]))
+    w.bench.plots.draw_all()
+    assert w.bench.plots.profile.has_data and w.bench.plots.rings.has_data
