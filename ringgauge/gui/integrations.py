@@ -10,7 +10,7 @@ from __future__ import annotations
 import importlib
 from typing import Any
 
-from ..errors import InputError
+from ..errors import InputError, RinggaugeError
 
 
 def _module(name: str):
@@ -33,16 +33,42 @@ def profile_names() -> list[str]:
     for attr in ("profile_names", "list_profiles", "names"):
         fn = getattr(mod, attr, None)
         if callable(fn):
-            out = fn()
+            try:
+                out = fn()
+            except RinggaugeError:
+                return []  # a damaged profile file: the panel offers typed values; the CLI names the problem
             return [p if isinstance(p, str) else str(getattr(p, "name", p)) for p in out]
     return []
 
 
-def profile_setup_kwargs(name: str) -> dict[str, Any]:
+def profile_setup_kwargs(name: str) -> tuple[dict[str, Any], list[str]]:
+    """BenchSetup keywords from a saved bench profile, and the warnings that go with it (overdue, ...)."""
     mod = _module("ringgauge.calibration.profiles")
     if mod is None or not hasattr(mod, "setup_kwargs"):
         raise InputError(f"bench profile '{name}' cannot be used: this build has no bench calibration profiles")
-    return dict(mod.setup_kwargs(name))
+    out = mod.setup_kwargs(name)
+    if isinstance(out, tuple):
+        kw, warnings = out
+        return dict(kw), list(warnings)
+    return dict(out), []
+
+
+def profile_defaults(name: str) -> dict[str, Any]:
+    """The light source key and gap index a bench profile suggests (to preset the panel), when it has them."""
+    mod = _module("ringgauge.calibration.profiles")
+    if mod is None or not hasattr(mod, "get"):
+        return {}
+    prof = mod.get(name)
+    out: dict[str, Any] = {}
+    if getattr(prof, "source", None):
+        out["source"] = prof.source
+    elif getattr(prof, "wavelength_nm", None):
+        out.update(source="custom", custom_wavelength_nm=float(prof.wavelength_nm),
+                   custom_wavelength_u_nm=float(prof.wavelength_u_nm or 0.005 / 3**0.5))
+    if getattr(prof, "medium_index", None) is not None:
+        n = float(prof.medium_index)
+        out.update(medium="air") if n == 1.0 else out.update(medium="custom", medium_index=n, medium_index_u=0.0)
+    return out
 
 
 # -- test-plate register -----------------------------------------------------------------------------------

@@ -137,13 +137,17 @@ class SetupState:
         from . import integrations
 
         kw: dict[str, Any] = {}
+        extras: dict[str, Any] = {}
         if self.bench_profile:
-            kw.update(integrations.profile_setup_kwargs(self.bench_profile))
+            pk, warnings = integrations.profile_setup_kwargs(self.bench_profile)
+            # the panel's own choice of lamp and gap medium wins over the profile's suggestion
+            kw.update({k: v for k, v in pk.items() if k not in ("source", "medium_index", "medium_index_u")})
+            if warnings:
+                extras["bench_warnings"] = list(warnings)
         else:
             kw["pixel_size_um"] = _as_float("pixel size", self.pixel_size_um)
             kw["pixel_size_u_um"] = _as_float("pixel size uncertainty", self.pixel_size_u_um)
         n, nu = self.index()
-        extras: dict[str, Any] = {}
         if self.operator.strip():
             extras["operator"] = self.operator.strip()
         if overrides is not None:

@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from ..errors import RinggaugeError
 from ..sources import SOURCES
 from . import integrations
 from .model import CUSTOM, MEDIA, BenchSession, SetupState
@@ -192,8 +193,15 @@ class SetupPanel(QWidget):
                     self.wavelength.setValue(src.wavelength_nm)
                     self.wavelength_u.setValue(src.wavelength_u_nm)
             self._select(self.profile, s.bench_profile)
-            self.pixel.setValue(s.pixel_size_um)
-            self.pixel_u.setValue(s.pixel_size_u_um)
+            px, pu = s.pixel_size_um, s.pixel_size_u_um
+            if s.bench_profile:
+                try:
+                    kw, _ = integrations.profile_setup_kwargs(s.bench_profile)
+                    px, pu = kw["pixel_size_um"], kw["pixel_size_u_um"]
+                except (RinggaugeError, KeyError):
+                    pass
+            self.pixel.setValue(px)
+            self.pixel_u.setValue(pu)
             self.pixel.setEnabled(not s.bench_profile)
             self.pixel_u.setEnabled(not s.bench_profile)
             self._select(self.medium, s.medium)
@@ -213,17 +221,23 @@ class SetupPanel(QWidget):
         self.note.setText(self._note(s))
 
     def _note(self, s: SetupState) -> str:
+        lines = []
+        if s.bench_profile:
+            try:
+                kw, warnings = integrations.profile_setup_kwargs(s.bench_profile)
+                lines.append(f"Bench '{s.bench_profile}' calibrated {kw.get('bench_calibrated') or '(no date)'}.")
+                lines.extend(warnings)
+            except RinggaugeError as exc:
+                lines.append(str(exc))
         if s.source in SOURCES and SOURCES[s.source].hazard:
-            return "Caution: " + SOURCES[s.source].hazard
-        return ""
+            lines.append("Caution: " + SOURCES[s.source].hazard)
+        return "\n".join(lines)
 
     # widgets -> session -------------------------------------------------------------------------------------
     def state_from_widgets(self) -> dict:
         d = {
             "source": self.source.currentData(),
             "bench_profile": self.profile.currentData() or "",
-            "pixel_size_um": self.pixel.value(),
-            "pixel_size_u_um": self.pixel_u.value(),
             "medium": self.medium.currentData(),
             "fringe_kind": self.kind.currentData(),
             "test_plate": self.plate.currentData() or "",
@@ -231,6 +245,9 @@ class SetupPanel(QWidget):
             "test_diameter_mm": self.diameter.value() or None,
             "operator": self.operator.text().strip(),
         }
+        if not d["bench_profile"]:  # with a profile the fields show its scale and are not the operator's
+            d["pixel_size_um"] = self.pixel.value()
+            d["pixel_size_u_um"] = self.pixel_u.value()
         if d["source"] == CUSTOM:
             d["custom_wavelength_nm"] = self.wavelength.value()
             d["custom_wavelength_u_nm"] = self.wavelength_u.value()
@@ -242,4 +259,14 @@ class SetupPanel(QWidget):
     def _edited(self, *_args) -> None:
         if self._syncing:
             return
-        self.session.update_setup(**self.state_from_widgets())
+        changes = self.state_from_widgets()
+        if self.session.setup.bench_profile and not changes["bench_profile"]:
+            # leaving a profile: the fields still show its scale; go back to the operator's own values
+            changes.pop("pixel_size_um", None)
+            changes.pop("pixel_size_u_um", None)
+        if changes["bench_profile"] and changes["bench_profile"] != self.session.setup.bench_profile:
+            try:  # a newly chosen bench brings its usual lamp and gap medium along
+                changes.update(integrations.profile_defaults(changes["bench_profile"]))
+            except RinggaugeError:
+                pass
+        self.session.update_setup(**changes)

@@ -114,3 +114,23 @@ def test_image_view_layers_and_picking(app, qtbot, sample_dir):
     v.fit()
     assert v.zoom() == pytest.approx(z, rel=0.05)
     assert isinstance(target, QPoint)
+
+
+def test_bench_profiles_fill_the_panel_and_the_setup(app, qtbot, fake_engine):
+    profiles = pytest.importorskip("ringgauge.calibration.profiles")
+    entry = profiles.hand_entry(6.45, 0.012, operator="Q.A.", date="2026-11-02")
+    profiles.save(profiles.BenchProfile("Bench 2 camera", source="mercury-e", calibration=entry))
+    s = BenchSession(fake_engine, SetupState(source="sodium-d", pixel_size_um=16.0, pixel_size_u_um=0.05))
+    p = SetupPanel(s)
+    qtbot.addWidget(p)
+    assert p.profile.isEnabled() and p.profile.findData("Bench 2 camera") > 0
+    p.profile.setCurrentIndex(p.profile.findData("Bench 2 camera"))
+    assert s.setup.bench_profile == "Bench 2 camera"
+    assert s.setup.source == "mercury-e"  # the bench's usual lamp comes along
+    assert p.pixel.value() == pytest.approx(6.45) and not p.pixel.isEnabled()
+    assert "calibrated 2026-11-02" in p.note.text()
+    b = s.setup.to_bench_setup()
+    assert (b.pixel_size_um, b.pixel_size_u_um, b.bench) == (pytest.approx(6.45), pytest.approx(0.012),
+                                                             "Bench 2 camera")
+    p.profile.setCurrentIndex(0)  # back to typed values
+    assert s.setup.bench_profile == "" and p.pixel.isEnabled() and p.pixel.value() == pytest.approx(16.0)
