@@ -52,6 +52,8 @@ def _worker_init() -> None:
     # Each worker uses one core: numerical libraries must not start their own thread pools on top.
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ.setdefault(var, "1")
+    # a damaged file is recorded as failed with its reason; the decoder's own log line would only be noise
+    os.environ.setdefault("OPENCV_LOG_LEVEL", "OFF")
 
 
 def _run_one(fn: Callable, path: str, setup) -> tuple[dict | None, str | None]:

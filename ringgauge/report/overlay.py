@@ -25,8 +25,12 @@ def _figure(w_in: float, h_in: float, dpi: int = 150):
     return Figure(figsize=(w_in, h_in), dpi=dpi)
 
 
-def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: str | None = None) -> None:
-    """The image (intensity in [0, 1], ``image[y, x]``) with the fitted rings, centre and aperture drawn on."""
+def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: str | None = None,
+                fmt: str = "png") -> None:
+    """The image (intensity in [0, 1], ``image[y, x]``) with the fitted rings, centre and aperture drawn on.
+
+    ``fmt`` "jpeg" keeps documents small (camera noise compresses badly as PNG); the checksum of the original
+    image, not this illustration, identifies the data."""
     from matplotlib.patches import Ellipse
 
     img = np.asarray(image01, dtype=np.float32)
@@ -71,7 +75,10 @@ def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: s
     ax.set_axis_off()
     if title:
         fig.suptitle(title, fontsize=9, y=0.985)
-    fig.savefig(path, format="png")
+    if fmt == "jpeg":
+        fig.savefig(path, format="jpeg", pil_kwargs={"quality": 88})
+    else:
+        fig.savefig(path, format="png")
 
 
 def fit_plot_png(result: dict, path: str | Path) -> bool:
@@ -100,7 +107,7 @@ def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
     icpt = fr.get("intercept_mm2") or 0.0
     mm = np.linspace(min(m.min(), 0.0), m.max() * 1.03, 50)
     top.plot(mm, slope * mm + icpt, color=ACCENT, lw=1.0, label="least-squares line")
-    top.errorbar(m[used], r2[used], yerr=u[used], fmt="o", ms=3, color=INK, label="rings used")
+    top.plot(m[used], r2[used], "o", ms=3, color=INK, label="rings used")
     if (~used).any():
         top.plot(m[~used], r2[~used], "x", color="#888888", label="rings left out")
     top.set_ylabel("r² / mm²")
@@ -108,11 +115,15 @@ def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
     top.grid(alpha=0.3)
     res = np.array([r.get("residual_mm2") or 0.0 for r in rings], dtype=float) * 1e6
     bot.axhline(0, color="#555555", lw=0.8)
-    bot.plot(m[used], res[used], "o", ms=3, color=INK)
+    bot.errorbar(m[used], res[used], yerr=u[used] * 1e6, fmt="o", ms=3, color=INK, elinewidth=0.6)
+    if used.any():
+        lim = 1.4 * float(np.max(np.abs(res[used]))) or 1.0
+        bot.set_ylim(-lim, lim)  # a ring with a large u must not flatten the others' residuals
     bot.set_ylabel("residual / µm²", fontsize=8)
     bot.set_xlabel(f"fringe order m ({rings[0].get('kind', 'dark')} rings)")
     bot.grid(alpha=0.3)
-    fig.suptitle(f"r² = {slope:.6g} mm² · m + {icpt:.4g} mm²", fontsize=8)
+    sign = "−" if icpt < 0 else "+"
+    fig.suptitle(f"r² = {slope:.6g} mm² · m {sign} {abs(icpt):.4g} mm²", fontsize=8)
     fig.tight_layout()
     fig.savefig(path, format="png")
 

@@ -635,8 +635,8 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
     with tempfile.TemporaryDirectory(prefix="rg-cert-") as tmp:
         figs = []
         if image01 is not None and result is not None:
-            p = Path(tmp) / "overlay.png"
-            overlay_png(image01, result, p)
+            p = Path(tmp) / "overlay.jpg"
+            overlay_png(image01, result, p, fmt="jpeg")
             figs.append((_image_flowable(p, W * 0.49, 75 * mm), "Image with the fitted rings and centre"))
         if result is not None:
             p = Path(tmp) / "fit.png"

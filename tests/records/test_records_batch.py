@@ -168,3 +168,43 @@ def test_lot_on_a_shared_postgresql_store(tmp_path, pg_url):
         recs = bench2.find(RecordFilter(lot="PG1"))
         assert len(recs) == 5 and len({r.image_sha256 for r in recs}) == 5
         assert sum(r.status == "failed" for r in recs) == 1 and all(r.intact() for r in recs)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM])
+def test_ctrl_c_or_term_stops_cleanly_and_resumes(tmp_path, sig):
+    n = 12
+    make_folder(tmp_path / "lot", n)
+    db = tmp_path / "r.sqlite"
+    env = {**os.environ, "RG_TEST_DELAY_S": "0.4", "RINGGAUGE_HOME": str(tmp_path / "home")}
+    cmd = [sys.executable, str(HERE / "batch_driver.py"), str(db), str(tmp_path / "lot"), "2"]
+    proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True)
+    try:
+        deadline = time.monotonic() + 60
+        while time.monotonic() < deadline:
+            time.sleep(0.1)
+            try:
+                con = sqlite3.connect(db, timeout=5)
+                if con.execute("SELECT COUNT(*) FROM inspection").fetchone()[0] >= 2:
+                    con.close()
+                    break
+                con.close()
+            except sqlite3.OperationalError:
+                pass
+        os.kill(proc.pid, sig)  # the parent only, as a terminal's Ctrl-C or a service stop would
+        out, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.wait()
+    assert proc.returncode == 0, err.decode()
+    assert b"interrupted True" in out and b"stopping" in err
+    with open_store(db) as store:
+        first = len(store.find(RecordFilter(lot="K1")))
+    assert 2 <= first < n
+    env["RG_TEST_DELAY_S"] = "0"
+    out = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=120)
+    assert f"recorded {n - first} skipped {first}" in out.stdout
+    with open_store(db) as store:
+        recs = store.find(RecordFilter(lot="K1", include_superseded=True))
+    assert len(recs) == n and len({r.image_sha256 for r in recs}) == n

@@ -177,3 +177,20 @@ def test_batch_bad_input(tmp_path, capsys, monkeypatch):
     with pytest.raises(SystemExit) as e:
         main(["batch", str(tmp_path / "lot"), "--source", "sodium-d", "--pixel-size", "10"])
     assert e.value.code == 2 and "--lot" in capsys.readouterr().err
+
+
+@pytest.mark.postgres
+def test_commands_against_postgresql(pg_url, tmp_path, capsys, monkeypatch, make_result):
+    monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
+    monkeypatch.chdir(tmp_path)
+    with open_store(pg_url) as s:
+        s.add(RecordMeta(lot="PG", serial="001"), make_result("1"))
+    monkeypatch.setenv("RINGGAUGE_DB", pg_url)  # a shop points every bench at the server this way
+    code, out, _ = run(capsys, "records", "supersede", "1", "--reason", "serial misread", "--serial", "100")
+    assert code == 0
+    code, out, _ = run(capsys, "records", "list", "--lot", "PG", "--all")
+    assert "superseded by 2" in out and "100" in out
+    code, out, _ = run(capsys, "certificate", "2", "--out", "c.pdf")
+    assert code == 0
+    code, out, _ = run(capsys, "certificate", "verify", "c.pdf")
+    assert code == 0 and "identical to certificate" in out and "postgresql://" in out
