@@ -405,7 +405,20 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
             "of it); check focus and that the target is a line scale, grid or dot grid"
         )
     drift = np.abs(theta - theta0).reshape(ndir, 2)
+    coef = m.solve(theta)[1]
+    amps = []
+    for j in range(ndir):
+        k = 3 + 2 * harmonics * j
+        amps.append([float(np.hypot(coef[k + 2 * h], coef[k + 2 * h + 1])) for h in range(harmonics)])
+    # curvature of the log of the local light level over the pattern (quadratic surface, per px^2)
+    bg = _smooth(data, sigma)[pts][keep]
+    xk, yk = m.xs / m.scale, m.ys / m.scale
+    Q = np.stack([np.ones_like(xk), xk, yk, xk * xk, xk * yk, yk * yk], axis=1)
+    qc = np.linalg.lstsq(Q, np.log(np.maximum(bg, 1e-6)), rcond=None)[0] / m.scale**2
+    hess = np.array([[2 * qc[3], qc[4]], [qc[4], 2 * qc[5]]])
     info = {
+        "harmonic_amplitudes": amps,
+        "light_log_hessian_per_px2": hess,
         "points_used": int(n),
         "points_rejected": int(keep.size - keep.sum()),
         "pattern_area_fraction": count / float(H * W),
@@ -417,6 +430,41 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
         "refinement_shift_cycles_per_px": drift.max(),
     }
     return theta.reshape(ndir, 2), cov, info
+
+
+def light_blur_bound(f, amps, hess) -> float:
+    """Bound on the relative frequency shift from uneven light seen through the blur.
+
+    Light that varies over the target, A(x), imaged through a Gaussian blur of variance sigma^2 shifts the local
+    fringe phase by sigma^2 2 pi f . grad ln A, so the frequency by sigma^2 H f, H the Hessian of ln A
+    (derived here from the first-order expansion of the blur). sigma^2 is bounded from the pattern itself: the
+    blur damps harmonic h by exp(-2 pi^2 sigma^2 h^2 |f|^2) and the line shape damps the 2nd harmonic relative
+    to the 1st further, so a2/a1 <= exp(-6 pi^2 sigma^2 |f|^2) gives an upper bound on sigma^2 (capped at
+    (0.3 period)^2, beyond which the pattern would have too little contrast to be found).
+    """
+    f = np.asarray(f, dtype=np.float64)
+    nf2 = float(f @ f)
+    cap = (0.3 ** 2) / nf2
+    ratio = amps[1] / amps[0] if len(amps) > 1 and amps[0] > 0 else 0.0
+    s2 = cap if ratio <= 0 else min(cap, max(0.0, -math.log(min(ratio, 1.0)) / (6 * math.pi**2 * nf2)))
+    return abs(s2 * float(f @ np.asarray(hess) @ f) / nf2)
+
+
+def _light_term(metric, theta, ndir, bounds):
+    """u of (s_x, s_y, psi, s_x - s_y) from relative frequency shifts up to ``bounds`` (rectangular)."""
+    from .result import derived
+
+    d0 = derived(metric(theta))
+    acc = np.zeros(4)
+    for j in range(ndir):
+        t = np.array(theta, dtype=np.float64)
+        t[2 * j: 2 * j + 2] *= 1.0 + bounds[j]
+        acc += (derived(metric(t)) - d0) ** 2
+    return np.sqrt(acc) / math.sqrt(3.0)
+
+
+LIGHT_NOTE = ("uneven light on the target seen through the lens blur shifts the line phase; bound from the "
+              "measured light curvature and the blur the harmonics allow")
 
 
 def _direction_info(f) -> dict:
@@ -505,10 +553,14 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
         s = P * math.hypot(*fv)
         us = P * math.sqrt(float(fv @ cov @ fv)) / math.hypot(*fv)
         G = np.array([s * s, 0.0, s * s])
+        b = light_blur_bound(fv, fit_info["harmonic_amplitudes"][0], fit_info["light_log_hessian_per_px2"])
+        ul = s * b / math.sqrt(3.0)
+        details["light_blur_bound_rel"] = b
         warnings.append("one line set: the scale is measured across the lines only, and x and y are assumed "
                         "equal; a crossed grid, or the scale photographed again turned by 90°, measures both")
         details["direction_deg"] = details["directions"][0]["normal_direction_deg"]
         return assemble("line-scale", target, G, np.array([us, us, 0.0, 0.0]), ref, measured_y=False,
+                        extra=[("uneven light through the blur", np.array([ul, ul, 0.0, 0.0]), LIGHT_NOTE)],
                         images=images, details=details, warnings=warnings)
 
     def metric(theta):
@@ -525,8 +577,13 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
             f"the two line sets have periods {1 / n1:.2f} px and {1 / n2:.2f} px; a square grid of one pitch "
             "was assumed -- check the target"
         )
+    bounds = [light_blur_bound(v, fit_info["harmonic_amplitudes"][j], fit_info["light_log_hessian_per_px2"])
+              for j, v in enumerate(f)]
+    details["light_blur_bound_rel"] = bounds
+    light = _light_term(metric, theta, 2, bounds)
     method = "dot-grid" if kind == "dots" else "crossed-grid"
-    res = assemble(method, target, metric(theta), fit_u, ref, images=images, details=details, warnings=warnings)
+    res = assemble(method, target, metric(theta), fit_u, ref, extra=[("uneven light through the blur", light,
+                   LIGHT_NOTE)], images=images, details=details, warnings=warnings)
     return _anisotropy_note(res)
 
 
@@ -564,6 +621,8 @@ def measure_line_pair(image_a, image_b, pitch_um: float, pitch_u_um: float | Non
         f, cov, fit_info = fit_frequencies(data, f0)
         fs.append(f[0])
         covs.append(cov)
+        fit_info["light_blur_bound_rel"] = light_blur_bound(f[0], fit_info["harmonic_amplitudes"][0],
+                                                            fit_info["light_log_hessian_per_px2"])
         infos.append({"spectrum": spec_info, "fit": fit_info, **_direction_info(f[0])})
     a1 = math.degrees(math.atan2(fs[0][1], fs[0][0]))
     a2 = math.degrees(math.atan2(fs[1][1], fs[1][0]))
@@ -597,7 +656,9 @@ def measure_line_pair(image_a, image_b, pitch_um: float, pitch_u_um: float | Non
     warnings.append("pixel axes assumed perpendicular on the part (squareness is not measured by two line images)")
     details = {"images": infos, "turn_deg": turn}
     target = {"kind": "line scale (two orientations)", "pitch_um": P, "pitch_u_um": uP, "id": target_id}
+    light = _light_term(metric, theta, 2, [i["fit"]["light_blur_bound_rel"] for i in infos])
     res = assemble("line-scale-pair", target, G, fit_u, ("pitch", P, uP, "µm"),
+                   extra=[("uneven light through the blur", light, LIGHT_NOTE)],
                    images=tuple(_image_info(f) for f in frames), details=details, warnings=warnings)
     from dataclasses import replace
 

@@ -158,6 +158,7 @@ def assemble(
     reference: tuple[str, float, float, str],
     *,
     edge: tuple[np.ndarray, np.ndarray] | None = None,
+    extra: tuple = (),
     measured_y: bool = True,
     images=(),
     details=None,
@@ -175,6 +176,8 @@ def assemble(
     edge : (G at the 25 % level, G at the 75 % level), optional
         Disc only: the metric with edges read at the 25 % and 75 % levels. Half their difference is taken as
         the half-width of a rectangular distribution (edge-definition term).
+    extra : sequence of (quantity, (4,) standard uncertainties of (s_x, s_y, psi, s_x - s_y), note)
+        Further rectangular terms (e.g. uneven light seen through the blur).
     measured_y : bool
         False for one line-scale image: only the scale along the grating's normal is known; x and y are
         reported equal and y is not "measured".
@@ -187,9 +190,13 @@ def assemble(
     rel = u_ref / value
     ref_contrib = np.abs(derived(G * (1.0 + rel) ** 2) - d0)
     rows_by_axis = []
-    edge_u = None
+    terms = []  # (quantity, u vector, note), rectangular
     if edge is not None:
-        edge_u = np.abs(derived(edge[0]) - derived(edge[1])) / 2.0 / math.sqrt(3.0)
+        terms.append((
+            "edge definition", np.abs(derived(edge[0]) - derived(edge[1])) / 2.0 / math.sqrt(3.0),
+            "edge read at 25 % and 75 % of the edge step bound where the true edge lies",
+        ))
+    terms += [(q, np.asarray(u, dtype=np.float64), note) for q, u, note in extra]
     for axis in (0, 1):
         s = d0[axis]
         rows = [
@@ -206,13 +213,12 @@ def assemble(
                 note="covariance scaled by the reduced chi-square and the residuals' spatial correlation",
             ),
         ]
-        if edge_u is not None:
+        for q, u, note in terms:
             rows.append(
                 BudgetRow(
-                    quantity="edge definition", estimate=s, estimate_unit="µm/px",
-                    u=float(edge_u[axis]), distribution="rectangular", divisor=math.sqrt(3.0), sensitivity=1.0,
-                    sensitivity_unit="", contribution=float(edge_u[axis]),
-                    note="edge read at 25 % and 75 % of the edge step bound where the true edge lies",
+                    quantity=q, estimate=s, estimate_unit="µm/px", u=float(u[axis]), distribution="rectangular",
+                    divisor=math.sqrt(3.0), sensitivity=1.0, sensitivity_unit="", contribution=float(u[axis]),
+                    note=note,
                 )
             )
         rows_by_axis.append(rows)
@@ -220,9 +226,9 @@ def assemble(
     bx = make_budget(label, "µm/px", float(d0[0]), rows_by_axis[0])
     by = make_budget("pixel scale along y", "µm/px", float(d0[1]), rows_by_axis[1]) if measured_y else None
     if measured_y:
-        diff_terms = [float(ref_contrib[3]), float(fit_u[3])] + ([float(edge_u[3])] if edge_u is not None else [])
+        diff_terms = [float(ref_contrib[3]), float(fit_u[3])] + [float(u[3]) for _, u, _ in terms]
         diff_u = math.sqrt(sum(t * t for t in diff_terms))
-        psi_terms = [float(fit_u[2])] + ([float(edge_u[2])] if edge_u is not None else [])
+        psi_terms = [float(fit_u[2])] + [float(u[2]) for _, u, _ in terms]
         psi = Quantity(float(d0[2]), math.sqrt(sum(t * t for t in psi_terms)), "°")
         sy = Quantity(float(d0[1]), by.u_c, "µm/px")
     else:
