@@ -21,6 +21,8 @@ QGroupBox::title { subcontrol-origin: margin; left: 8px; padding: 0 4px; color: 
 QLabel#imageTitle { font-size: 12pt; font-weight: bold; color: #111; padding: 2px 4px; }
 QLabel#modeHint { color: #333; padding: 2px 4px; }
 QLabel#setupNote { color: #6b2a00; }
+QWidget#notice { background: #fbe3d6; border: 1px solid #d99a7a; border-radius: 4px; }
+QWidget#notice QLabel { color: #5a1400; }
 QTabBar::tab { padding: 6px 16px; }
 QTabBar::tab:selected { font-weight: bold; color: #0b3d6e; }
 QTableView, QTableWidget { gridline-color: #d5d9df; selection-background-color: #0b4f8a; selection-color: white; }

@@ -210,13 +210,13 @@ def value_rows(d: dict | None) -> list[ValueRow]:
         rows.append(ValueRow("Radius of curvature R", a, b, "mm", "Radius"))
         if U is not None and R:
             rel = 100 * U / abs(R)
-            rows.append(ValueRow("Relative expanded uncertainty", f"{rel:.2g}" if rel >= 0.01 else f"{1e4 * rel:.2g}",
+            rows.append(ValueRow("Relative U", f"{rel:.2g}" if rel >= 0.01 else f"{1e4 * rel:.2g}",
                                  "—", "%" if rel >= 0.01 else "ppm", "Radius"))
         rows.append(ValueRow("Coverage factor k", f"{k:g}", "—", "", "Radius"))
         budget = d.get("budget") or {}
         dof = _num(budget.get("dof_eff"))
         dof_text = "∞" if dof is None else ("> 1000" if dof > 1000 else f"{dof:.0f}")
-        rows.append(ValueRow("Effective degrees of freedom", dof_text, "—", "", "Radius"))
+        rows.append(ValueRow("Degrees of freedom", dof_text, "—", "", "Radius"))
     c, cu = d.get("centre_px"), d.get("centre_u_px")
     if c:
         for i, axis in enumerate("xy"):
@@ -228,7 +228,7 @@ def value_rows(d: dict | None) -> list[ValueRow]:
     if fr:
         s, su = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("slope_u_mm2_per_fringe"))
         a, b = _fmt_pair(s, None if su is None else k * su)
-        rows.append(ValueRow("Slope of r² per fringe", a, b, "mm²", "Rings"))
+        rows.append(ValueRow("Slope of r²", a, b, "mm²/fringe", "Rings"))
         off = _num(fr.get("contact_offset_fringes"))
         if off is not None:
             rows.append(ValueRow("Contact offset", f"{off:.3f}", "—", "fringes", "Rings"))
@@ -406,12 +406,13 @@ def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None
     return ring_gap_map(d, shape)
 
 
-def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24) -> np.ndarray | None:
+def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24, sectors: int = 12) -> np.ndarray | None:
     """Fit minus image for a ring result, NaN outside the fitted rings.
 
     The fitted orders put dark rings at whole m = (r² − c) / slope, so the model is I = a − b cos 2πm. Only
-    the background a and the fringe amplitude b are taken from the image, annulus by annulus (they vary with
-    lighting); the phase is the fit's own, so a wrong centre or slope shows as residual fringes."""
+    the background a and the fringe amplitude b are taken from the image, cell by cell of ``annuli`` rings and
+    ``sectors`` angular sectors (uneven lighting); the phase is the fit's own, so a wrong centre or slope shows
+    as residual fringes."""
     if not d:
         return None
     fr = d.get("fringes") or {}
@@ -424,18 +425,31 @@ def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24) -> np.
     img = np.asarray(data, dtype=np.float64)
     H, W = img.shape
     yy, xx = np.mgrid[0:H, 0:W]
-    r2 = ((xx - float(c[0])) * float(px[0]) * 1e-3) ** 2 + ((yy - float(c[1])) * float(px[1]) * 1e-3) ** 2
+    dx = (xx - float(c[0])) * float(px[0]) * 1e-3
+    dy = (yy - float(c[1])) * float(px[1]) * 1e-3
+    r2 = dx * dx + dy * dy
     m = (r2 - icpt) / slope
-    out = np.full(img.shape, np.nan)
-    edges = np.linspace(0.0, rmax * rmax, annuli + 1)
-    for lo, hi in zip(edges[:-1], edges[1:]):
-        sel = (r2 >= lo) & (r2 < hi)
-        if sel.sum() < 12:
-            continue
-        X = np.stack([np.ones(sel.sum()), -np.cos(2 * np.pi * m[sel])], axis=1)
-        coef, *_ = np.linalg.lstsq(X, img[sel], rcond=None)
-        out[sel] = X @ coef - img[sel]
-    return out
+    ring = np.floor(r2 / (rmax * rmax) * annuli).astype(np.int64)
+    sector = np.floor((np.arctan2(dy, dx) + np.pi) / (2 * np.pi) * sectors).astype(np.int64) % sectors
+    inside = ring < annuli
+    cell = np.where(inside, ring * sectors + sector, -1).ravel()
+    v = img.ravel()
+    cm = -np.cos(2 * np.pi * m).ravel()
+    ncell = annuli * sectors
+    sel = cell >= 0
+    # per-cell least squares of v on [1, cm]: the normal equations, summed with bincount
+    w = np.bincount(cell[sel], minlength=ncell).astype(np.float64)
+    sx = np.bincount(cell[sel], cm[sel], ncell)
+    sxx = np.bincount(cell[sel], cm[sel] ** 2, ncell)
+    sy = np.bincount(cell[sel], v[sel], ncell)
+    sxy = np.bincount(cell[sel], cm[sel] * v[sel], ncell)
+    det = w * sxx - sx * sx
+    ok = (w >= 12) & (det > 1e-9 * np.maximum(w * sxx, 1e-300))
+    b = np.where(ok, (w * sxy - sx * sy) / np.where(ok, det, 1.0), np.nan)
+    a = np.where(ok, (sy - b * sx) / np.where(w > 0, w, 1.0), np.nan)
+    out = np.full(v.shape, np.nan)
+    out[sel] = a[cell[sel]] + b[cell[sel]] * cm[sel] - v[sel]
+    return out.reshape(H, W)
 
 
 def rounded_u(u: float | None) -> str:

@@ -40,6 +40,10 @@ LAYERS = {
 }
 
 
+#: most fitted rings drawn over the photograph
+MAX_RINGS = 16
+
+
 def array_to_qimage(a: np.ndarray) -> QImage:
     """uint8 (H, W) grey or (H, W, 3) RGB to a QImage that owns its bytes."""
     a = np.ascontiguousarray(a)
@@ -73,6 +77,8 @@ class ImageView(QGraphicsView):
         self.setTransformationAnchor(QGraphicsView.ViewportAnchor.AnchorUnderMouse)
         self.setResizeAnchor(QGraphicsView.ViewportAnchor.AnchorViewCenter)
         self.setDragMode(QGraphicsView.DragMode.ScrollHandDrag)
+        self.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         self.setAccessibleName("Interferogram view")
         self._pixmap = QGraphicsPixmapItem()
         self._pixmap.setTransformationMode(Qt.TransformationMode.SmoothTransformation)
@@ -90,6 +96,7 @@ class ImageView(QGraphicsView):
         self._press: QPointF | None = None
         self._rubber: QGraphicsEllipseItem | None = None
         self._fit_pending = True
+        self.ring_step = 1
         self._placeholder = QGraphicsSimpleTextItem("Open an interferogram: File > Open (Ctrl+O), or drop a file here")
         self._placeholder.setBrush(QBrush(QColor(230, 230, 230)))
         f = self._placeholder.font()
@@ -189,7 +196,10 @@ class ImageView(QGraphicsView):
         if ov.centre is None:
             return
         cx, cy = ov.centre
-        for r in ov.rings:
+        # dozens of rings would hide the photograph: draw at most MAX_RINGS of them, evenly spread in order
+        step = max(1, -(-len(ov.rings) // MAX_RINGS))
+        self.ring_step = step
+        for r in ov.rings[::step]:
             colour = QColor(ORANGE if r.kind == "dark" else SKY)
             colour.setAlpha(220)
             style = Qt.PenStyle.SolidLine if r.used else Qt.PenStyle.DotLine

@@ -16,6 +16,7 @@ from PySide6.QtWidgets import (
     QLabel,
     QLineEdit,
     QPushButton,
+    QSizePolicy,
     QSplitter,
     QTableView,
     QVBoxLayout,
@@ -159,6 +160,7 @@ class LotPage(QWidget):
                                 "This build cannot issue certificates yet")
         self.folder_label = QLabel("No lot open")
         self.folder_label.setObjectName("imageTitle")
+        self.folder_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         for w in (self.b_open, self.b_run, self.b_stop, self.b_export, self.b_certs):
             top.addWidget(w)
         top.addWidget(self.folder_label, 1)
@@ -171,10 +173,11 @@ class LotPage(QWidget):
         self.filter_choice = QComboBox()
         self.filter_choice.addItems(list(FILTERS))
         self.counts = QLabel("")
+        self.counts.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         filt.addWidget(QLabel("Show"))
         filt.addWidget(self.filter_choice)
-        filt.addWidget(self.filter_text, 1)
-        filt.addWidget(self.counts)
+        filt.addWidget(self.filter_text, 2)
+        filt.addWidget(self.counts, 3)
         lay.addLayout(filt)
 
         self.model = LotTableModel(self.lot, self)
@@ -208,6 +211,7 @@ class LotPage(QWidget):
         lay.addWidget(split, 1)
         self.message = QLabel("")
         self.message.setWordWrap(True)
+        self.message.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         lay.addWidget(self.message)
 
         self.b_open.clicked.connect(self.open_dialog)

@@ -112,7 +112,7 @@ class ResultsPanel(QWidget):
             t.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
             t.setAlternatingRowColors(True)
             t.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-            t.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+            t.horizontalHeader().setStretchLastSection(True)
         self.warnings = QListWidget(self)
         self.tabs.addTab(self.values, "Values")
         self.tabs.addTab(self.budget, "Uncertainty budget")

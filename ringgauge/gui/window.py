@@ -13,11 +13,14 @@ from PySide6.QtWidgets import (
     QDialog,
     QDialogButtonBox,
     QFileDialog,
+    QHBoxLayout,
     QLabel,
     QMainWindow,
     QMessageBox,
     QProgressBar,
+    QPushButton,
     QScrollArea,
+    QSizePolicy,
     QSplitter,
     QTabWidget,
     QTextBrowser,
@@ -82,12 +85,32 @@ class BenchPage(QWidget):
         self.results = ResultsPanel()
         self.title = QLabel("No image open")
         self.title.setObjectName("imageTitle")
+        self.title.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.hint = QLabel("")
         self.hint.setObjectName("modeHint")
+        self.hint.setWordWrap(True)
+        self.hint.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         middle = QWidget()
         ml = QVBoxLayout(middle)
         ml.setContentsMargins(0, 0, 0, 0)
         ml.addWidget(self.title)
+        notice_row = QWidget()
+        notice_row.setObjectName("notice")
+        nl = QHBoxLayout(notice_row)
+        nl.setContentsMargins(8, 4, 4, 4)
+        self.notice = QLabel("")
+        self.notice.setWordWrap(True)
+        self.notice.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        close = QPushButton("✕")
+        close.setFlat(True)
+        close.setToolTip("Dismiss")
+        close.setAccessibleName("Dismiss the message")
+        close.clicked.connect(lambda: self.show_notice(""))
+        nl.addWidget(self.notice, 1)
+        nl.addWidget(close, 0, Qt.AlignmentFlag.AlignTop)
+        self.notice_row = notice_row
+        notice_row.setVisible(False)
+        ml.addWidget(notice_row)
         ml.addWidget(self.view, 1)
         ml.addWidget(self.hint)
         right = QSplitter(Qt.Orientation.Vertical)
@@ -101,8 +124,14 @@ class BenchPage(QWidget):
         self.split.setStretchFactor(0, 0)
         self.split.setStretchFactor(1, 3)
         self.split.setStretchFactor(2, 2)
-        self.split.setSizes([330, 520, 430])
+        self.split.setSizes([300, 480, 500])
         lay.addWidget(self.split)
+
+    def show_notice(self, message: str) -> None:
+        """A message about the last request (a file that would not open, a bad position) above the image;
+        what was open stays open and its result stays valid."""
+        self.notice.setText(message)
+        self.notice_row.setVisible(bool(message))
 
 
 class MainWindow(QMainWindow):
@@ -139,6 +168,8 @@ class MainWindow(QMainWindow):
         self.progress.setMaximumWidth(220)
         self.progress.setVisible(False)
         self.status = QLabel("Ready")
+        # a long message must never widen the window: it is cut at the edge (the full text is the tooltip)
+        self.status.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.statusBar().addWidget(self.status, 1)
         self.statusBar().addPermanentWidget(self.progress)
 
@@ -287,6 +318,7 @@ class MainWindow(QMainWindow):
         except RinggaugeError as exc:
             self.show_problem(str(exc))
             return False
+        self.bench.show_notice("")
         for p in paths:
             self.prefs.add_recent(os.fspath(p))
         self.prefs.set("files/last_folder", os.path.dirname(os.path.abspath(os.fspath(paths[0]))))
@@ -522,11 +554,12 @@ class MainWindow(QMainWindow):
 
     def set_status(self, text: str) -> None:
         self.status.setText(text)
+        self.status.setToolTip(text)
 
     def show_problem(self, message: str) -> None:
-        """A one-line message in the status bar and the results banner; never a dialog that blocks tests."""
+        """A one-line message above the image and in the status bar; never a modal dialog."""
         self.set_status(message)
-        self.bench.results.banner.show_error(message)
+        self.bench.show_notice(message)
 
     def help_html(self) -> str:
         rows = "".join(f"<tr><td><b>{html.escape(k)}</b></td><td>{html.escape(v)}</td></tr>" for k, v in SHORTCUTS)

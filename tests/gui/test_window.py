@@ -72,11 +72,14 @@ def test_a_bad_file_shows_a_message_and_keeps_the_open_image(app, qtbot, fake_en
     bad.write_bytes(b"\x89PNG\r\n\x1a\n" + b"\0" * 20)
     assert w.open_paths([str(bad)]) is False
     assert "cannot decode" in w.status.text()
-    assert w.bench.results.banner.word.text() == "NO MEASUREMENT"
-    assert "cannot decode" in w.bench.results.banner.explain.text()
+    assert w.bench.notice_row.isVisible() and "cannot decode" in w.bench.notice.text()
+    # what was open stays open, and its result stays on show
     assert w.session.frames[0].name == "lens-A01.png"
+    assert w.bench.results.banner.word.text() == "MEASURED"
     assert w.open_paths([str(tmp_path / "missing.png")]) is False
-    assert "no such file" in w.status.text()
+    assert "no such file" in w.bench.notice.text()
+    assert w.open_paths([str(sample_dir / "lens-A02.png")])
+    assert not w.bench.notice_row.isVisible()
 
 
 def test_a_failed_analysis_shows_the_engines_message(app, qtbot, sample_dir, rg_home):

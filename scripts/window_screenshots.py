@@ -1,0 +1,122 @@
+"""Screenshots of the bench window's main screens, taken from a real window on a virtual screen.
+
+    QT_QPA_PLATFORM=xcb xvfb-run -a -s "-screen 0 1280x800x24" .venv/bin/python scripts/window_screenshots.py [OUT_DIR]
+
+Demo scenario (invented): the optics shop "Kestrel Lane Optics" checks lot KL-2611 of plano-convex lenses on bench 2
+under a sodium lamp; operator initials "J.V.". Images come from ringgauge.synth, so nothing here is a check value.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+OUT = Path(sys.argv[1] if len(sys.argv) > 1 else "resources/screenshots")
+
+
+def main() -> int:
+    home = tempfile.mkdtemp(prefix="rg-shots-")
+    os.environ["RINGGAUGE_HOME"] = home
+    import cv2
+    import numpy as np
+
+    from ringgauge import synth
+
+    lot = Path(home) / "lot-KL-2611"
+    lot.mkdir()
+    g = np.random.default_rng(2611)
+    for i in range(8):
+        R = float(g.normal(820.0, 6.0))
+        cam = synth.Camera(width=800, height=640, pixel_um=9.8, blur_px=0.7)
+        img = synth.newton_rings(R, camera=cam, centre_px=(float(g.uniform(360, 440)), float(g.uniform(290, 350))),
+                                 contact_offset_nm=float(g.uniform(0, 80)), dust=synth.Dust(count=int(g.integers(0, 3))),
+                                 rng=int(g.integers(1 << 30)))
+        cv2.imwrite(str(lot / f"KL2611-{i + 1:03d}.png"), img.image)
+    (lot / "KL2611-009.png").write_bytes(b"\x89PNG interrupted transfer")
+
+    from PySide6.QtGui import QGuiApplication
+
+    from ringgauge.gui.app import make_app
+    from ringgauge.gui.model import SetupState
+    from ringgauge.gui.window import MainWindow
+
+    app = make_app()
+    win = MainWindow()
+    win.session.replace_setup(SetupState(source="sodium-d", pixel_size_um=9.8, pixel_size_u_um=0.01,
+                                         operator="J.V."))
+    win.bench.setup_panel.refresh()
+    win.showMaximized()
+    OUT.mkdir(parents=True, exist_ok=True)
+
+    def pump(seconds: float, until=None) -> None:
+        t = time.time()
+        while time.time() - t < seconds:
+            app.processEvents()
+            time.sleep(0.02)
+            if until is not None and until():
+                break
+        for _ in range(10):
+            app.processEvents()
+
+    def shot(name: str) -> None:
+        pump(0.5)
+        pix = QGuiApplication.primaryScreen().grabWindow(0)
+        pix.save(str(OUT / name))
+        print("wrote", OUT / name, pix.width(), "x", pix.height())
+
+    # 1. the bench: one lens analysed
+    win.open_paths([str(lot / "KL2611-003.png")])
+    pump(120, lambda: win.session.result is not None or win.session.error is not None)
+    if win.session.error:
+        print("analysis failed:", win.session.error)
+    win.bench.view.fit()
+    shot("bench.png")
+
+    # 2. the residual view and the radial profile
+    win.a_residual.trigger()
+    win.bench.plots.setCurrentIndex(1)
+    shot("bench-residual.png")
+    win.a_residual.trigger()
+    win.bench.plots.setCurrentIndex(0)
+
+    # 3. a failed file: the message, not a crash
+    win.open_paths([str(lot / "KL2611-009.png")])
+    shot("bench-bad-file.png")
+
+    # 4. the lot review
+    win.tabs.setCurrentWidget(win.lot)
+    win.lot.open_folder(str(lot))
+    pump(600, lambda: not win.lot.running)
+    win.lot.select_row(2)
+    shot("lot-review.png")
+
+    # 5. training: an exercise, a reading and its score
+    win.tabs.setCurrentWidget(win.training)
+    tp = win.training
+    tp.trainee.setText("New starter 1")
+    tp.level.setCurrentIndex(tp.level.findData("bench"))
+    ex = tp.new_exercise(seed=14)
+    shot("training-exercise.png")
+    t = ex.truth
+    tp.count.setValue(t["fringe_count"])
+    tp.power.setValue(round(t["power_fringes"] + 0.5, 1))
+    tp.astig.setValue(round(t["astigmatism_fringes"], 1))
+    tp.sign_buttons[t["sign"]].setChecked(True)
+    tp.radius.setValue(round(ex.plate_radius_mm, 3))
+    tp.score_reading()
+    shot("training-scored.png")
+
+    # 6. help with the bench safety cautions
+    win.tabs.setCurrentWidget(win.bench)
+    win.show_help()
+    shot("help-safety.png")
+    win._help.close()
+    win.close()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
