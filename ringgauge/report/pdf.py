@@ -132,14 +132,21 @@ def _results_rows(result: dict) -> list[dict]:
                 U = k * uu if isinstance(uu, (int, float)) else None
                 v, u = _value_u(val, U, "fringes")
                 rows.append({"quantity": label[0].upper() + label[1:], "value": v, "U": u, "k": _fmt(k)})
-        for key, label, unit in (("radius_difference_mm", "Radius difference to test plate", "mm"),
-                                 ("radius_mm", "Surface radius", "mm")):
+        known = {name for term in FORM_TERMS for name in term[:2]}
+        units = (("_fringes", "fringes"), ("_nm", "nm"), ("_um", "µm"), ("_mm", "mm"))
+        for key in sorted(form):  # any other measured form quantity is printed too, never dropped
             val = form.get(key)
-            if isinstance(val, (int, float)) and math.isfinite(val):
-                uu = form.get(key.replace("_mm", "_u_mm"))
-                U = k * uu if isinstance(uu, (int, float)) else None
-                v, u = _value_u(val, U, unit)
-                rows.append({"quantity": label, "value": v, "U": u, "k": _fmt(k)})
+            unit = next((u for suffix, u in units if key.endswith(suffix)), None)
+            if (key in known or unit is None or "_u_" in key.lower() or key.lower().endswith("_u")
+                    or key.lower().startswith("u_") or isinstance(val, bool)
+                    or not isinstance(val, (int, float)) or not math.isfinite(val)):
+                continue
+            suffix = next(sfx for sfx, u in units if key.endswith(sfx))
+            uu = form.get(key[: -len(suffix)] + "_u" + suffix)
+            U = k * uu if isinstance(uu, (int, float)) else None
+            v, u = _value_u(val, U, unit)
+            name = key[: -len(suffix)].replace("_", " ")
+            rows.append({"quantity": name[0].upper() + name[1:], "value": v, "U": u, "k": _fmt(k)})
     return rows
 
 
@@ -551,10 +558,13 @@ def _image_flowable(path, max_w, max_h):
 
     from PIL import Image as PILImage
 
-    with PILImage.open(path) as im:
+    data = Path(path).read_bytes()
+    with PILImage.open(io.BytesIO(data)) as im:
         w, h = im.size
     s = min(max_w / w, max_h / h)
-    return Image(str(path), width=w * s, height=h * s)
+    # from bytes, not the file name: the temporary folder's name must not leak into the PDF (reprints are
+    # byte-identical)
+    return Image(io.BytesIO(data), width=w * s, height=h * s)
 
 
 def _signoff(content, st, width):

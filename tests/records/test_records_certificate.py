@@ -224,3 +224,18 @@ def test_shop_settings(tmp_path, monkeypatch):
     (tmp_path / "shop.json").write_text('{"paper": "A3"}')
     with pytest.raises(InputError, match="A4"):
         load_shop()
+
+
+def test_form_quantities_are_all_printed(make_result):
+    from ringgauge.report.pdf import _results_rows
+
+    res = make_result()
+    res["radius_mm"] = None
+    res["form"].update(astigmatism_fringes=0.4, astigmatism_u_fringes=0.05, radius_difference_mm=0.012,
+                       radius_difference_u_mm=0.001, sag_deviation_nm=160.0, power_U_fringes=0.1)
+    rows = {r["quantity"]: (r["value"], r["U"]) for r in _results_rows(res)}
+    assert rows["Power"] == ("1.20 fringes", "0.10 fringes")
+    assert rows["Astigmatism"] == ("0.40 fringes", "0.10 fringes")
+    assert rows["Radius difference"] == ("0.0120 mm", "0.0020 mm")
+    assert rows["Sag deviation"][0] == "160 nm"
+    assert "Power U" not in rows and "Radius of curvature R" not in rows
