@@ -168,6 +168,7 @@ def run_lot(
     run = LotRun(meta.lot, len(images))
     seen: set[str] = set()
     for p in images:
+        p = Path(p).resolve()  # records keep absolute paths: certificates are printed from anywhere
         try:
             sha = sha256_file(p)
         except OSError as exc:

@@ -35,7 +35,9 @@ def _as_server_user(cmd: list[str]) -> list[str]:
         return cmd
     if shutil.which("runuser"):
         return ["runuser", "-u", "postgres", "--", *cmd]
-    return ["su", "postgres", "-s", "/bin/sh", "-c", " ".join(cmd)]
+    import shlex
+
+    return ["su", "postgres", "-s", "/bin/sh", "-c", shlex.join(cmd)]
 
 
 @pytest.fixture(scope="session")
@@ -49,7 +51,11 @@ def pg_server():
     if os.geteuid() == 0:
         import pwd
 
-        pw = pwd.getpwnam("postgres")
+        try:
+            pw = pwd.getpwnam("postgres")
+        except KeyError:
+            pytest.fail("running as root, but there is no 'postgres' system user to run the test server as "
+                        "(initdb refuses root); install the postgresql package or run the tests as a user")
         os.chown(base, pw.pw_uid, pw.pw_gid)
     data = os.path.join(base, "data")
     port = random.randint(20000, 45000)
