@@ -45,6 +45,7 @@ def test_capability_uses_the_sample_standard_deviation():
 
 
 def test_one_sided_specification_has_only_cpk():
+    # SAS/QC user's guide, SHEWHART procedure, "The Index Cpk": with only USL, Cpk = (USL - mean) / 3 sigma
     c = capability_from(0.4, 0.1, None, 1.0)
     assert c.cp is None and c.cpk == pytest.approx(2.0)
 
