@@ -119,4 +119,5 @@ def records_available() -> bool:
 
 
 def certificates_available() -> bool:
-    return _module("ringgauge.report.certificate") is not None
+    mod = _module("ringgauge.records.documents")
+    return mod is not None and hasattr(mod, "issue_certificate")

@@ -48,6 +48,7 @@ class LotRow:
     message: str = ""
     result: Any = None
     summary: dict | None = None
+    record_id: int | None = None  # once kept in the inspection records
 
     @property
     def name(self) -> str:
@@ -121,7 +122,7 @@ class Lot:
 
     def set_result(self, i: int, result) -> None:
         row = self.rows[i]
-        row.status, row.result, row.message = DONE, result, ""
+        row.status, row.result, row.message, row.record_id = DONE, result, "", None
         row.summary = summarise(result)
         warn = row.summary.get("warnings")
         if warn:
@@ -130,7 +131,7 @@ class Lot:
 
     def set_failure(self, i: int, message: str) -> None:
         row = self.rows[i]
-        row.status, row.result, row.summary, row.message = FAILED, None, None, message
+        row.status, row.result, row.summary, row.message, row.record_id = FAILED, None, None, message, None
         self.changed.emit("row", i)
 
     def cell(self, i: int, key: str):
@@ -143,6 +144,14 @@ class Lot:
         if key == "message":
             return row.message
         return (row.summary or {}).get(key)
+
+    @property
+    def name(self) -> str:
+        """The lot's name: its folder's name."""
+        return os.path.basename(os.path.normpath(self.folder)) if self.folder else ""
+
+    def finished_rows(self) -> list[int]:
+        return [i for i, r in enumerate(self.rows) if r.status in (DONE, FAILED)]
 
     @staticmethod
     def analyse_one(path: str, setup, analyse, progress=None):

@@ -153,15 +153,18 @@ class LotPage(QWidget):
         self.b_run = QPushButton("Analyse lot")
         self.b_stop = QPushButton("Stop")
         self.b_export = QPushButton("Export CSV…")
+        self.b_keep = QPushButton("Keep in records")
+        self.b_keep.setToolTip("Store every analysed image of the lot in the inspection records")
+        self.b_keep.setEnabled(integrations.records_available())
         self.b_certs = QPushButton("Certificates…")
         self.b_certs.setEnabled(False)
-        self.b_certs.setToolTip("Certificates are issued from the inspection records"
+        self.b_certs.setToolTip("Certificates of the kept records and a lot report, as PDF files"
                                 if integrations.certificates_available() else
-                                "This build cannot issue certificates yet")
+                                "This build cannot issue certificates")
         self.folder_label = QLabel("No lot open")
         self.folder_label.setObjectName("imageTitle")
         self.folder_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
-        for w in (self.b_open, self.b_run, self.b_stop, self.b_export, self.b_certs):
+        for w in (self.b_open, self.b_run, self.b_stop, self.b_export, self.b_keep, self.b_certs):
             top.addWidget(w)
         top.addWidget(self.folder_label, 1)
         lay.addLayout(top)
@@ -218,6 +221,13 @@ class LotPage(QWidget):
         self.b_run.clicked.connect(self.run_lot)
         self.b_stop.clicked.connect(self.stop)
         self.b_export.clicked.connect(self.export_dialog)
+        self.b_keep.clicked.connect(self.keep_in_records)
+        self.b_certs.clicked.connect(self.certificates_dialog)
+        self.paper = Runner(self)  # records and PDFs: their own thread, so a long lot keeps analysing
+        self.paper.signals.finished.connect(self._paper_done)
+        self.paper.signals.failed.connect(self._paper_failed)
+        self.paper.signals.progress.connect(lambda _t, f, m: self.message.setText(f"{m} ({100 * f:.0f} %)"))
+        self.kept_paths: list = []
         self.b_bench.clicked.connect(self._to_bench)
         self.filter_text.textChanged.connect(self.proxy.set_text)
         self.filter_choice.currentTextChanged.connect(self.proxy.set_choice)
@@ -240,6 +250,7 @@ class LotPage(QWidget):
             self.message.setText(str(exc))
             return False
         self.folder_label.setText(f"{folder} — {len(self.lot.rows)} images")
+        self.b_certs.setEnabled(False)
         self.message.setText("")
         self.detail.clear()
         if run:
@@ -353,6 +364,64 @@ class LotPage(QWidget):
         if i is not None:
             r = self.lot.rows[i]
             self.openInBench.emit(r.path, r.result)
+
+    # -- records and certificates -------------------------------------------------------------------------------
+    def keep_in_records(self, *, target: str | None = None) -> bool:
+        from .recording import ToRecord, save_records
+
+        rows = self.lot.finished_rows()
+        if not rows:
+            self.message.setText("nothing to keep yet: analyse the lot first")
+            return False
+        items = [ToRecord(self.lot.rows[i].path, self.lot.rows[i].result, self.lot.rows[i].message) for i in rows]
+        lot, operator = self.lot.name, self.session.setup.operator
+        self.b_keep.setEnabled(False)
+        self.paper.submit(("keep", self.lot.generation, rows),
+                          lambda progress: save_records(items, lot=lot, operator=operator, setup=None,
+                                                        target=target, progress=progress))
+        return True
+
+    def certificates_dialog(self) -> None:
+        d = QFileDialog.getExistingDirectory(self, "Folder for the certificates")
+        if d:
+            self.issue_certificates(d)
+
+    def issue_certificates(self, out_dir: str, *, target: str | None = None) -> bool:
+        from .recording import issue_certificates
+
+        ids = [r.record_id for r in self.lot.rows if r.record_id is not None]
+        if not ids:
+            self.message.setText("keep the lot in the records first; certificates are issued from records")
+            return False
+        lot = self.lot.name
+        self.b_certs.setEnabled(False)
+        self.paper.submit(("certs", out_dir),
+                          lambda progress: issue_certificates(ids, out_dir, lot=lot, target=target,
+                                                              progress=progress))
+        return True
+
+    def _paper_done(self, token, value) -> None:
+        if token[0] == "keep":
+            _, gen, rows = token
+            if gen == self.lot.generation:
+                for i, rid in zip(rows, value):
+                    self.lot.rows[i].record_id = rid
+            self.message.setText(f"Kept {len(value)} images of lot {self.lot.name} in the inspection records "
+                                 f"(records {min(value)}–{max(value)})")
+            self.b_certs.setEnabled(integrations.certificates_available())
+            self.b_keep.setEnabled(True)
+        else:
+            self.kept_paths = list(value)
+            self.message.setText(f"Wrote {len(value)} PDF files to {token[1]}")
+            self.b_certs.setEnabled(True)
+
+    def _paper_failed(self, token, message: str) -> None:
+        self.message.setText(message)
+        self.b_keep.setEnabled(integrations.records_available())
+        self.b_certs.setEnabled(any(r.record_id is not None for r in self.lot.rows))
+
+    def wait_paper(self, msecs: int = 60000) -> bool:
+        return self.paper.wait(msecs)
 
     # -- export ---------------------------------------------------------------------------------------------------
     def export_dialog(self) -> None:

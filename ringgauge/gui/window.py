@@ -33,7 +33,7 @@ from .. import __version__
 from ..errors import RinggaugeError
 from ..imaging import IMAGE_SUFFIXES
 from ..sources import SAFETY_NOTES
-from . import display
+from . import display, integrations
 from .image_view import LAYERS, ImageView
 from .lot_view import LotPage
 from .model import BenchSession, FolderWatch, Job
@@ -149,6 +149,11 @@ class MainWindow(QMainWindow):
         self.auto_analyse = True
         self.watch: FolderWatch | None = None
         self._residual_cache = None
+        self.paper = Runner(self)  # records and PDFs
+        self.paper.signals.finished.connect(self._paper_done)
+        self.paper.signals.failed.connect(lambda _t, msg: self.show_problem(msg))
+        self.kept_record: tuple | None = None  # (result, record id)
+        self.last_certificate = None
 
         self.setWindowTitle(APP_TITLE)
         self.setAcceptDrops(True)
@@ -229,6 +234,14 @@ class MainWindow(QMainWindow):
         m.addSeparator()
         self.a_save = self._act("&Save result as JSON…", self.save_json, QKeySequence.StandardKey.Save)
         m.addAction(self.a_save)
+        self.a_keep = self._act("&Keep in inspection records", self.keep_result, "Ctrl+K",
+                                tip="Store this result in the inspection records")
+        self.a_cert = self._act("Issue &certificate…", self.certificate_dialog, "Ctrl+P",
+                                tip="A PDF certificate of the kept record")
+        self.a_keep.setEnabled(integrations.records_available())
+        self.a_cert.setEnabled(False)
+        m.addAction(self.a_keep)
+        m.addAction(self.a_cert)
         m.addSeparator()
         m.addAction(self._act("&Quit", self.close, QKeySequence.StandardKey.Quit))
 
@@ -438,6 +451,7 @@ class MainWindow(QMainWindow):
             self.set_status(f"Analysing: {msg}")
         elif what == "result":
             self.progress.setVisible(False)
+            self.a_cert.setEnabled(False)
             self.show_result()
         elif what == "error":
             self.progress.setVisible(False)
@@ -543,6 +557,47 @@ class MainWindow(QMainWindow):
         if p:
             self.write_json(p)
 
+    def keep_result(self, *, target: str | None = None) -> bool:
+        from .recording import ToRecord, save_records
+
+        s = self.session
+        if s.result is None:
+            self.show_problem("nothing to keep yet: analyse an image first")
+            return False
+        item = ToRecord(s.frames[0].path or s.title, s.result)
+        operator = s.setup.operator
+        result = s.result
+        self.paper.submit(("keep", result), lambda progress: save_records([item], lot=None, operator=operator,
+                                                                          setup=None, target=target,
+                                                                          progress=progress))
+        return True
+
+    def certificate_dialog(self) -> None:
+        d = QFileDialog.getExistingDirectory(self, "Folder for the certificate", self.prefs.get("files/cert_folder", ""))
+        if d:
+            self.prefs.set("files/cert_folder", d)
+            self.issue_certificate(d)
+
+    def issue_certificate(self, out_dir: str, *, target: str | None = None) -> bool:
+        from .recording import issue_certificates
+
+        if self.kept_record is None or self.kept_record[0] is not self.session.result:
+            self.show_problem("keep the result in the records first (Ctrl+K); certificates are issued from records")
+            return False
+        rid = self.kept_record[1]
+        self.paper.submit(("certificate", rid), lambda progress: issue_certificates([rid], out_dir, target=target,
+                                                                                   progress=progress))
+        return True
+
+    def _paper_done(self, token, value) -> None:
+        if token[0] == "keep":
+            self.kept_record = (token[1], value[0])
+            self.a_cert.setEnabled(integrations.certificates_available() and token[1] is self.session.result)
+            self.set_status(f"Kept as inspection record {value[0]}")
+        else:
+            self.last_certificate = value[0]
+            self.set_status(f"Certificate written: {value[0]}")
+
     def write_json(self, p: str) -> None:
         try:
             with open(p, "w", encoding="utf-8") as fh:
@@ -604,4 +659,5 @@ class MainWindow(QMainWindow):
             self.prefs.save_setup(self.session.setup)
         self.session.changed.disconnect(self._on_session)
         self.runner.wait(5000)
+        self.paper.wait(30000)
         super().closeEvent(event)

@@ -188,3 +188,36 @@ def test_training_log_needs_a_name_and_survives_a_damaged_line(rg_home):
     assert len(log.entries("Ana")) == 2
     s = log.summary("Ana")
     assert s["attempts"] == 2 and s["levels"]["starter"]["mean_percent"] == 0.0
+
+
+@pytest.mark.slow
+def test_lot_is_kept_in_the_records_and_certified(lot_page, qtbot, sample_dir, tmp_path):
+    pytest.importorskip("ringgauge.records.documents")
+    from ringgauge.records import RecordFilter, open_store
+
+    page = lot_page
+    page.session.update_setup(operator="J.V.")
+    page.open_folder(str(sample_dir))
+    qtbot.waitUntil(lambda: not page.running, timeout=20000)
+    store = str(tmp_path / "records.sqlite")
+    assert page.issue_certificates(str(tmp_path)) is False and "records first" in page.message.text()
+    assert page.keep_in_records(target=store)
+    qtbot.waitUntil(lambda: page.b_keep.isEnabled(), timeout=20000)
+    assert page.b_certs.isEnabled(), page.message.text()
+    assert [r.record_id is not None for r in page.lot.rows] == [True] * 4
+    with open_store(store) as st:
+        recs = st.find(RecordFilter(lot="images"))
+        assert len(recs) == 4 and {r.status for r in recs} == {"ok", "failed"}
+        assert {r.meta.operator for r in recs} == {"J.V."}
+    # keeping again adds nothing: a lot never holds the same image twice
+    ids = [r.record_id for r in page.lot.rows]
+    page.keep_in_records(target=store)
+    qtbot.waitUntil(lambda: page.b_keep.isEnabled(), timeout=20000)
+    assert [r.record_id for r in page.lot.rows] == ids
+    out = tmp_path / "certs"
+    out.mkdir()
+    assert page.issue_certificates(str(out), target=store)
+    qtbot.waitUntil(lambda: bool(page.kept_paths) or "cannot" in page.message.text(), timeout=60000)
+    names = sorted(p.name for p in out.iterdir())
+    assert len(names) == 3  # two measured lenses and the lot report; failed images get no certificate
+    assert all(n.endswith(".pdf") for n in names) and "Wrote 3 PDF files" in page.message.text()

@@ -193,3 +193,24 @@ def test_real_engine_measures_a_synthetic_lens(app, qtbot, rg_home, tmp_path):
     assert unit == "mm" and float(value) == pytest.approx(r.radius_mm, abs=float(U.split()[1]))
     w.bench.plots.draw_all()
     assert w.bench.plots.profile.has_data and w.bench.plots.rings.has_data
+
+
+@pytest.mark.slow
+def test_keep_a_result_and_issue_its_certificate(app, qtbot, fake_engine, sample_dir, rg_home, tmp_path):
+    pytest.importorskip("ringgauge.records.documents")
+    from ringgauge.records import open_store
+
+    w = make_window(qtbot, fake_engine, rg_home)
+    store = str(tmp_path / "records.sqlite")
+    assert w.issue_certificate(str(tmp_path)) is False and "records first" in w.bench.notice.text()
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    assert w.keep_result(target=store)
+    qtbot.waitUntil(lambda: w.kept_record is not None, timeout=20000)
+    assert w.a_cert.isEnabled() and "Kept as inspection record" in w.status.text()
+    with open_store(store) as st:
+        rec = st.get(w.kept_record[1])
+        assert rec.radius_mm == pytest.approx(1000.0) and rec.image_name == "lens-A01.png"
+    assert w.issue_certificate(str(tmp_path), target=store)
+    qtbot.waitUntil(lambda: w.last_certificate is not None, timeout=60000)
+    assert w.last_certificate.exists() and w.last_certificate.suffix == ".pdf"
