@@ -134,6 +134,9 @@ def test_kill_in_the_middle_then_resume(tmp_path):
         if proc.poll() is None:
             os.killpg(proc.pid, signal.SIGKILL)
             proc.wait()
+    con = sqlite3.connect(db)
+    assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"  # the file itself is sound after the kill
+    con.close()
     store = open_store(db)
     before = store.find(RecordFilter(lot="K1"))
     assert 4 <= len(before) < n, "the kill must land in the middle of the lot"

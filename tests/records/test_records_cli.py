@@ -194,3 +194,59 @@ def test_commands_against_postgresql(pg_url, tmp_path, capsys, monkeypatch, make
     assert code == 0
     code, out, _ = run(capsys, "certificate", "verify", "c.pdf")
     assert code == 0 and "identical to certificate" in out and "postgresql://" in out
+
+
+@pytest.mark.slow
+def test_batch_command_killed_and_resumed(tmp_path):
+    """The real command on real images: SIGKILL in the middle of the lot, run it again, nothing lost or doubled."""
+    import os
+    import signal
+    import sqlite3
+    import subprocess
+    import sys
+    import time
+
+    folder = tmp_path / "lot"
+    folder.mkdir()
+    n = 8
+    for i in range(n):
+        img = synth.newton_rings(900.0 + i, camera=synth.Camera(width=400, height=320, pixel_um=10.0), rng=i)
+        save_png(folder / f"K{i:03d}.png", img.image01)
+    db = tmp_path / "r.sqlite"
+    env = {**os.environ, "RINGGAUGE_HOME": str(tmp_path / "home")}
+    cmd = [sys.executable, "-m", "ringgauge", "batch", str(folder), "--lot", "K", "--source", "sodium-d",
+           "--pixel-size", "10", "--pixel-size-u", "0.01", "--db", str(db), "--workers", "2", "--quiet",
+           "--chart", str(tmp_path / "chart.png")]
+    proc = subprocess.Popen(cmd, env=env, cwd=tmp_path, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            start_new_session=True)
+    count = 0
+    try:
+        deadline = time.monotonic() + 120
+        while time.monotonic() < deadline and proc.poll() is None:
+            time.sleep(0.05)
+            try:
+                con = sqlite3.connect(db, timeout=5)
+                count = con.execute("SELECT COUNT(*) FROM inspection").fetchone()[0]
+                con.close()
+            except sqlite3.OperationalError:
+                count = 0
+            if count >= 2:
+                break
+        assert proc.poll() is None, "the lot finished before it could be interrupted"
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait(timeout=30)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.wait()
+    with open_store(db) as s:
+        before = [(r.id, r.image_sha256, r.content_sha256) for r in s.find()]
+    assert 2 <= len(before) < n
+    out = subprocess.run(cmd, env=env, cwd=tmp_path, capture_output=True, text=True, timeout=300)
+    assert out.returncode == 0, out.stderr
+    assert f"{n - len(before)} recorded now (0 failed), {len(before)} already recorded" in out.stdout
+    with open_store(db) as s:
+        after = s.find()
+        assert [(r.id, r.image_sha256, r.content_sha256) for r in after[: len(before)]] == before
+        assert len(after) == n and len({r.image_sha256 for r in after}) == n
+        assert all(r.status == "ok" and r.intact() for r in after)
