@@ -77,29 +77,40 @@ def plates_available() -> bool:
 
 
 def plate_ids() -> list[str]:
+    """Identifiers of the plates in service (retired plates are left out)."""
     mod = _module("ringgauge.form.plates")
-    if mod is None:
+    fn = getattr(mod, "load_register", None) if mod is not None else None
+    if not callable(fn):
         return []
-    for attr in ("plate_ids", "list_plates", "load_register", "register"):
-        fn = getattr(mod, attr, None)
-        if callable(fn):
-            out = fn()
-            if isinstance(out, dict):
-                return [str(k) for k in out]
-            return [p if isinstance(p, str) else str(getattr(p, "id", getattr(p, "plate_id", p))) for p in out]
-    return []
+    try:
+        plates = fn()
+    except RinggaugeError:
+        return []  # a damaged register: the panel offers none; 'ringgauge plates' names the problem
+    return [str(p.id) for p in plates if not getattr(p, "retired", None)]
 
 
 def plate_dict(plate_id: str) -> dict:
+    """What an analysis needs and records about a plate (``TestPlate.setup_dict()``)."""
+    mod = _module("ringgauge.form.plates")
+    fn = getattr(mod, "get_plate", None) if mod is not None else None
+    if not callable(fn):
+        raise InputError(f"test plate '{plate_id}' cannot be used: this build has no test-plate register")
+    p = fn(plate_id)
+    return p.setup_dict() if hasattr(p, "setup_dict") else p.to_dict()
+
+
+def plate_notes(plate_id: str) -> list[str]:
+    """One line about the plate and its warnings (overdue, retired) for the set-up panel."""
     mod = _module("ringgauge.form.plates")
     if mod is None:
-        raise InputError(f"test plate '{plate_id}' cannot be used: this build has no test-plate register")
-    for attr in ("get_plate", "plate", "lookup"):
-        fn = getattr(mod, attr, None)
-        if callable(fn):
-            p = fn(plate_id)
-            return p.to_dict() if hasattr(p, "to_dict") else dict(p)
-    raise InputError(f"test plate '{plate_id}' cannot be looked up in this build's register")
+        return []
+    p = mod.get_plate(plate_id)
+    lines = [f"Test plate {p.id}: {p.kind}, R = {p.radius_mm:g} mm (u = {p.radius_u_mm:g} mm), "
+             f"calibrated {p.calibrated}."]
+    warn = getattr(mod, "plate_warnings", None)
+    if callable(warn):
+        lines.extend(warn(p))
+    return lines
 
 
 # -- ISO 10110-5 tolerance strings ----------------------------------------------------------------------------

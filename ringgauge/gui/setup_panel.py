@@ -229,6 +229,16 @@ class SetupPanel(QWidget):
                 lines.extend(warnings)
             except RinggaugeError as exc:
                 lines.append(str(exc))
+        if s.test_plate:
+            try:
+                lines.extend(integrations.plate_notes(s.test_plate))
+            except RinggaugeError as exc:
+                lines.append(str(exc))
+        if s.tolerance:
+            try:
+                integrations.check_tolerance(s.tolerance)
+            except RinggaugeError as exc:
+                lines.append(f"Tolerance: {exc}")
         if s.source in SOURCES and SOURCES[s.source].hazard:
             lines.append("Caution: " + SOURCES[s.source].hazard)
         return "\n".join(lines)

@@ -134,3 +134,30 @@ def test_bench_profiles_fill_the_panel_and_the_setup(app, qtbot, fake_engine):
                                                              "Bench 2 camera")
     p.profile.setCurrentIndex(0)  # back to typed values
     assert s.setup.bench_profile == "" and p.pixel.isEnabled() and p.pixel.value() == pytest.approx(16.0)
+
+
+def test_test_plates_and_tolerance_in_the_panel(app, qtbot, fake_engine):
+    plates = pytest.importorskip("ringgauge.form.plates")
+    pytest.importorskip("ringgauge.form.tolerance")
+    plates.add_plate({"id": "TP-0412", "radius_mm": 51.68, "kind": "concave", "radius_u_mm": 0.002,
+                      "calibrated": "2020-01-15"})
+    plates.add_plate({"id": "TP-0007", "radius_mm": 30.0, "kind": "convex", "radius_u_mm": 0.002,
+                      "calibrated": "2026-06-01", "retired": "2026-09-01"})
+    s = BenchSession(fake_engine, SetupState(source="mercury-e", pixel_size_um=25.0, pixel_size_u_um=0.05))
+    p = SetupPanel(s)
+    qtbot.addWidget(p)
+    assert p.plate.findData("TP-0412") > 0 and p.plate.findData("TP-0007") < 0  # retired plates not offered
+    p.plate.setCurrentIndex(p.plate.findData("TP-0412"))
+    assert s.setup.test_plate == "TP-0412"
+    assert "R = 51.68 mm" in p.note.text() and "overdue" in p.note.text()
+    p.tolerance.setText("3/2(0.5")
+    p.tolerance.editingFinished.emit()
+    assert s.setup.tolerance == "3/2(0.5" and "Tolerance:" in p.note.text()
+    p.diameter.setValue(20.0)
+    with pytest.raises(Exception, match="tolerance '3/2\\(0.5'"):
+        s.setup.to_bench_setup()
+    p.tolerance.setText("3/2(0.5)")
+    p.tolerance.editingFinished.emit()
+    b = s.setup.to_bench_setup()
+    assert b.tolerance == "3/2(0.5)" and b.test_diameter_mm == 20.0
+    assert b.test_plate["id"] == "TP-0412" and b.test_plate["radius_mm"] == pytest.approx(51.68)
