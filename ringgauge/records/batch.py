@@ -15,6 +15,7 @@ import signal
 import sys
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, TextIO
@@ -156,8 +157,8 @@ def run_lot(
     Images the lot already holds (same SHA-256) are skipped; with ``retry_failed`` a failed one is analysed
     again and its new record supersedes the failed one. ``analyse_fn(path, setup) -> dict`` must be a
     module-level function (it is sent to worker processes). ``max_images`` stops after that many new records
-    (for trials). ``warnings`` (e.g. an overdue bench calibration) are added to every result. Returns counts; ``interrupted`` is set after Ctrl-C or SIGTERM (the records written so far
-    are kept).
+    (for trials). ``warnings`` (e.g. an overdue bench calibration) are added to every result. Returns counts;
+    ``interrupted`` is set after Ctrl-C or SIGTERM (the records written so far are kept).
     """
     if not meta.lot:
         raise InputError("a lot run needs a lot name (--lot)")
@@ -198,22 +199,61 @@ def run_lot(
     import multiprocessing
 
     ctx = multiprocessing.get_context("spawn")
-    pool = ProcessPoolExecutor(max_workers=min(n_workers, len(todo)), mp_context=ctx, initializer=_worker_init)
-    pending = {}
+
+    def new_pool(n: int) -> ProcessPoolExecutor:
+        return ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_worker_init)
+
+    pool = new_pool(min(n_workers, len(todo)))
+    pending: dict = {}
     queue = list(reversed(todo))
+    # Images in flight when a worker process crashed (a native crash takes the whole pool down) are analysed
+    # again one at a time at the end, so the crash is pinned on the image that causes it and no other.
+    suspects: list = []
+    serial = False
+
+    def submit(job) -> None:
+        nonlocal pool
+        try:
+            fut = pool.submit(_run_one, analyse_fn, job[0], setup)
+        except BrokenProcessPool:
+            pool.shutdown(wait=False, cancel_futures=True)
+            pool = new_pool(1 if serial else min(n_workers, len(todo)))
+            fut = pool.submit(_run_one, analyse_fn, job[0], setup)
+        pending[fut] = job
+
+    def collect(fut) -> None:
+        job = pending.pop(fut)
+        try:
+            result, failure = fut.result()
+        except BrokenProcessPool:
+            if not serial:
+                suspects.append(job)
+                return
+            result, failure = None, "the analysis process crashed on this image (it was tried on its own)"
+        except Exception as exc:  # noqa: BLE001 - anything else from the worker is this image's failure
+            result, failure = None, f"analysis process failed ({type(exc).__name__}: {exc})"
+        _record(store, run, meta, job, result, failure, serial_from_name, bar, warnings)
+
     try:
         try:
             # keep at most two images per worker in flight, so a stop loses little and memory stays flat
-            while queue or pending:
-                while queue and len(pending) < 2 * n_workers:
-                    path, sha, prior = queue.pop()
-                    pending[pool.submit(_run_one, analyse_fn, path, setup)] = (path, sha, prior)
+            while queue or pending or suspects:
+                if not queue and not pending and suspects and not serial:
+                    serial = True
+                    queue = list(reversed(suspects))
+                    suspects.clear()
+                limit = 1 if serial else 2 * n_workers
+                while queue and len(pending) < limit:
+                    submit(queue.pop())
+                if not pending:
+                    continue
                 finished, _ = wait(list(pending), return_when=FIRST_COMPLETED)
                 for fut in finished:
-                    _record(store, run, meta, pending.pop(fut), fut, serial_from_name, bar, warnings)
+                    collect(fut)
         except (KeyboardInterrupt, _Stop):
             run.interrupted = True
             queue.clear()
+            suspects.clear()
             for fut in list(pending):
                 if fut.cancel():
                     pending.pop(fut)
@@ -224,7 +264,8 @@ def run_lot(
             while pending:
                 finished, _ = wait(list(pending), return_when=FIRST_COMPLETED)
                 for fut in finished:
-                    _record(store, run, meta, pending.pop(fut), fut, serial_from_name, bar, warnings)
+                    collect(fut)
+            suspects.clear()
     finally:
         pool.shutdown(wait=not run.interrupted, cancel_futures=True)
         if old_term is not None:
@@ -241,13 +282,9 @@ def _main_thread() -> bool:
     return threading.current_thread() is threading.main_thread()
 
 
-def _record(store: Store, run: LotRun, meta: RecordMeta, job, fut, serial_from_name: bool, bar,
+def _record(store: Store, run: LotRun, meta: RecordMeta, job, result, failure, serial_from_name: bool, bar,
             warnings=()) -> None:
     path, sha, prior = job
-    try:
-        result, failure = fut.result()
-    except Exception as exc:  # noqa: BLE001 - a worker that died (killed, out of memory) is a failed image
-        result, failure = None, f"analysis process died ({type(exc).__name__}: {exc})"
     if failure is None and not isinstance(result, dict):
         result, failure = None, "analysis returned no result"
     if result is not None and warnings:

@@ -31,3 +31,11 @@ def fake_analyse(path: str, setup) -> dict:
     d["form"]["power_fringes"] = 1.0 + level
     d["verdict"]["overall"] = "pass" if level < 0.6 else "fail"
     return d
+
+
+def crashing_analyse(path: str, setup) -> dict:
+    """Like :func:`fake_analyse`, but a file named ``crash*`` kills its worker process outright, the way a
+    native-code crash would."""
+    if os.path.basename(path).startswith("crash"):
+        os._exit(139)
+    return fake_analyse(path, setup)

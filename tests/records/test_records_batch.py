@@ -211,3 +211,18 @@ def test_ctrl_c_or_term_stops_cleanly_and_resumes(tmp_path, sig):
     with open_store(db) as store:
         recs = store.find(RecordFilter(lot="K1", include_superseded=True))
     assert len(recs) == n and len({r.image_sha256 for r in recs}) == n
+
+
+def test_a_worker_crash_is_pinned_on_its_image(tmp_path):
+    from fakelab import crashing_analyse
+
+    paths = make_folder(tmp_path / "lot", 6)
+    paths[2].rename(tmp_path / "lot" / "crash002.png")
+    store = open_store(tmp_path / "r.sqlite")
+    run = run_lot(store, find_images(tmp_path / "lot"), default_setup(10.0), RecordMeta(lot="C"), workers=2,
+                  analyse_fn=crashing_analyse, progress=False)
+    recs = store.find(RecordFilter(lot="C"))
+    assert (run.recorded, run.failed) == (6, 1) and len(recs) == 6
+    failed = [r for r in recs if r.status == "failed"]
+    assert [r.image_name for r in failed] == ["crash002.png"] and "crashed" in failed[0].failure_reason
+    store.close()
