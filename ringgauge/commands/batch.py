@@ -104,11 +104,13 @@ def run(args) -> int:
 
 
 def _summary_text(run_, summary, chart, report) -> str:
+    from ..records.lot import verdict_sort_key
+
     lines = [
         f"lot {summary.lot}: {run_.images} image(s) in the folder — {run_.recorded} recorded now "
         f"({run_.failed} failed), {run_.skipped} already recorded; {run_.elapsed_s:.1f} s",
         f"  records in the lot: {summary.n_records} — "
-        + ", ".join(f"{k} {v}" for k, v in sorted(summary.counts.items())),
+        + ", ".join(f"{k} {summary.counts[k]}" for k in sorted(summary.counts, key=verdict_sort_key)),
     ]
     for sp in (summary.radius, summary.power):
         if sp.n:

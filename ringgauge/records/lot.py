@@ -21,6 +21,14 @@ import numpy as np
 
 from ..errors import InputError
 
+#: the order verdict counts are listed in
+VERDICT_ORDER = ("pass", "conditional pass", "conditional fail", "fail", "not evaluated", "analysis failed")
+
+
+def verdict_sort_key(v: str) -> tuple:
+    return (VERDICT_ORDER.index(v) if v in VERDICT_ORDER else len(VERDICT_ORDER), v)
+
+
 D2_N2 = 1.128  # d2 for subgroups of 2 (moving range of consecutive values)
 D4_N2 = 3.267  # D4 for subgroups of 2
 

@@ -280,6 +280,8 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
 def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
                        tolerance: str | None = None, approver: str | None = None) -> dict:
     """What a lot report says: every current record of the lot, the statistics and the control chart data."""
+    from ..records.lot import verdict_sort_key
+
     rows = []
     ks = set()
     for r in sorted(records, key=lambda r: r.id):
@@ -319,7 +321,8 @@ def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
         "tolerance": tolerance or ", ".join(sorted({(r.setup or {}).get("tolerance") for r in records
                                                     if (r.setup or {}).get("tolerance")})) or "not specified",
         "period": f"{first[:19].replace('T', ' ')} to {last[:19].replace('T', ' ')} UTC" if first else "—",
-        "counts": {k: str(s["counts"][k]) for k in sorted(s["counts"], key=_verdict_order)},
+        # a list, not a dict: the stored content's keys are sorted, and the verdicts have an order of their own
+        "counts": [[k, str(s["counts"][k])] for k in sorted(s["counts"], key=verdict_sort_key)],
         "k": "k = " + (", ".join(f"{k:g}" for k in sorted(ks)) or "2"),
         "n_records": str(s["n_records"]),
         "radius": spread_text(s["radius"]),
@@ -345,11 +348,6 @@ def _pm(value, U) -> str:
     if U is None or not math.isfinite(U) or U <= 0:
         return f"{value:.6g} (U not available)"
     return format_value(float(value), float(U), "").strip()
-
-
-def _verdict_order(v: str) -> tuple:
-    order = ["pass", "conditional pass", "conditional fail", "fail", "not evaluated", "analysis failed"]
-    return (order.index(v) if v in order else len(order), v)
 
 
 def _canonical_digest(items) -> str:
@@ -719,7 +717,7 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
          ("Inspected", c["period"]), ("Operators", c["operators"]), ("Records", c["n_records"])],
         st, [34 * mm, W - 34 * mm]))
     story.append(Paragraph("Summary", st["h2"]))
-    story.append(_grid_table(["Verdict", "Parts"], [[k, v] for k, v in c["counts"].items()], st,
+    story.append(_grid_table(["Verdict", "Parts"], [[k, v] for k, v in c["counts"]], st,
                              [W * 0.4, W * 0.15], zebra=False))
     story.append(Spacer(1, 4))
     story.append(_grid_table(
