@@ -90,13 +90,15 @@ def _value_u(value, U, unit: str) -> tuple[str, str]:
     return f"{v} {unit}".strip(), u.strip()
 
 
+# What each decision rule risks, in words a customer reads. Both figures follow from a normal distribution of
+# the measurand around the measured value [derived]; ILAC-G8:09/2019 describes these rules (from memory).
 RULE_NOTES = {
-    "simple": "Simple acceptance: a measured value inside the tolerance passes. With a value closer to a limit "
-              "than its expanded uncertainty the probability of a wrong decision can reach 50 % "
-              "(ILAC-G8:09/2019, from memory).",
+    "simple": "Simple acceptance: a measured value inside the tolerance passes. For a value closer to a limit "
+              "than its expanded uncertainty U, the probability of a wrong decision rises towards 50 % at the "
+              "limit itself.",
     "guard": "Guard-banded acceptance: a pass needs the value inside the tolerance by at least the guard band "
-             "(here the expanded uncertainty U); values within U of a limit are reported as conditional. "
-             "The risk of a false pass is then below about 2.5 % (ILAC-G8:09/2019, from memory).",
+             "(the expanded uncertainty U); values within U of a limit are reported as conditional. The "
+             "probability of a false pass is then at most about 2.3 % (normal distribution, k = 2).",
 }
 
 
