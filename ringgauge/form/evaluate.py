@@ -1,0 +1,491 @@
+"""Surface form against a test plate: the entry point :func:`evaluate_form` and its frozen result.
+
+Pipeline: clear aperture -> full-aperture gap fit (each frame) -> form terms over the test diameter with
+Monte Carlo uncertainties from the fit covariance -> sign (frames / press test) -> radius deviation against
+the plate -> tolerance verdict.
+
+Form terms over the test diameter (fringes; one fringe = lambda / 2 of surface height; ISO 10110-5 meanings):
+
+* power (A, sagitta deviation): the rho^2 coefficient of a least-squares fit of piston, tilt and rho^2 over
+  the test diameter — the PV of the best-fit sphere's departure;
+* irregularity (B): PV of what is left after that best-fit sphere; rms_irregularity (RMSi) its RMS;
+* rot_sym_irregularity (C): PV of the rotationally symmetric part of the irregularity (its projection on
+  even radial polynomials); rms_asymmetric (RMSa): RMS of the irregularity less that part;
+* rms_total (RMSt): RMS after piston and tilt;
+* astigmatism: difference between the principal meridians' power, with the axis of the meridian of larger
+  power magnitude (degrees from the image x axis toward y, i.e. clockwise as displayed with y down).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import AnalysisError, InputError
+from .aperture import Aperture, find_aperture
+from .fit import GapFit, finesse_coefficient, fit_gap
+from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxial, radius_budget
+from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
+from .tolerance import Tolerance, parse_tolerance
+
+MC_DRAWS = 400
+GLASS_INDEX = 1.52  # typical crown glass; sets the multiple-beam fringe shape (common practice, no source)
+
+FORM_TERMS = (
+    "power_fringes",
+    "astigmatism_fringes",
+    "irregularity_fringes",
+    "rot_sym_irregularity_fringes",
+    "rms_total_fringes",
+    "rms_irregularity_fringes",
+    "rms_asymmetric_fringes",
+    "pv_total_fringes",
+)
+
+
+def _disc_grid(k: float, n: int = 61):
+    """Points on a square grid inside the disc of radius k (aperture-normalised), and the same scaled to 1."""
+    t = np.linspace(-1, 1, n)
+    U, V = np.meshgrid(t, t)
+    m = U * U + V * V <= 1.0
+    return U[m] * k, V[m] * k, U[m], V[m]
+
+
+def _lsq(cols, w):
+    X = np.stack(cols, axis=1)
+    coef, *_ = np.linalg.lstsq(X, w, rcond=None)
+    return coef, w - X @ coef
+
+
+def form_terms(W: np.ndarray, u: np.ndarray, v: np.ndarray) -> dict:
+    """Form terms (fringes) of gap samples ``W`` at points (u, v) on the unit test disc (a regular grid)."""
+    one = np.ones_like(u)
+    r2 = u * u + v * v
+    _, wt = _lsq([one, u, v], W)
+    sph, wi = _lsq([one, u, v, r2], W)
+    ast, _ = _lsq([one, u, v, r2, u * u - v * v, 2 * u * v], W)
+    a1, a2 = ast[4], ast[5]
+    rot, _ = _lsq([one, r2, r2 * r2, r2**3], wi)
+    rot_part = np.stack([one, r2, r2 * r2, r2**3], axis=1) @ rot
+    wa = wi - rot_part
+    return {
+        "power_fringes": float(sph[3]),
+        "astigmatism_fringes": float(2 * math.hypot(a1, a2)),
+        "astigmatism_axis_deg": float(math.degrees(0.5 * math.atan2(a2, a1)) % 180.0),
+        "irregularity_fringes": float(np.ptp(wi)),
+        "rot_sym_irregularity_fringes": float(np.ptp(rot_part)),
+        "rms_total_fringes": float(np.sqrt(np.mean(wt * wt))),
+        "rms_irregularity_fringes": float(np.sqrt(np.mean(wi * wi))),
+        "rms_asymmetric_fringes": float(np.sqrt(np.mean(wa * wa))),
+        "pv_total_fringes": float(np.ptp(wt)),
+    }
+
+
+@dataclass(frozen=True)
+class FormResult:
+    """Surface form of one part against a test plate. ``to_dict()`` is the JSON the tool prints and keeps."""
+
+    wavelength_nm: float
+    wavelength_u_nm: float
+    medium_index: float
+    fringe_nm: float
+    terms: dict  # name -> value (fringes), magnitudes for power when the sign is unknown
+    terms_u: dict  # name -> standard uncertainty (fringes)
+    astigmatism_axis_deg: float
+    astigmatism_axis_u_deg: float | None
+    test_diameter_mm: float
+    test_diameter_source: str
+    aperture: Aperture
+    aperture_diameter_mm: float
+    masks: tuple[dict, ...]
+    masked_fraction: float
+    sign: SignResult
+    fits: tuple[GapFit, ...]
+    radius: dict | None
+    tolerance: Tolerance | None
+    verdict: dict
+    warnings: tuple[str, ...]
+    pixel_size_um: tuple[float, float]
+    elapsed_s: float
+    k: float = 2.0
+    notes: tuple[str, ...] = field(default_factory=tuple)
+    budget_rows: dict = field(default_factory=dict)  # term -> ((source, u in fringes), ...)
+
+    def value(self, name: str) -> float:
+        return self.terms[name]
+
+    def to_dict(self) -> dict:
+        fr = self.fringe_nm
+        d: dict = {
+            "method": "full-aperture fit of a gap model (Zernike terms, OSA/ANSI order, unnormalised) with "
+            "illumination and modulation terms; form terms per ISO 10110-5 over the test diameter",
+            "wavelength_nm": self.wavelength_nm,
+            "wavelength_u_nm": self.wavelength_u_nm,
+            "medium_index": self.medium_index,
+            "fringe_nm": fr,
+            "fringe_definition": "one fringe = λ/(2n) of surface height",
+            "k": self.k,
+            "uncertainty_note": "u = standard uncertainty (k = 1); U = k·u",
+        }
+        for name in FORM_TERMS:
+            v = self.terms[name]
+            u = self.terms_u.get(name)
+            d[name] = v
+            d[name.replace("_fringes", "_u_fringes")] = u
+            d[name.replace("_fringes", "_nm")] = v * fr
+            d[name.replace("_fringes", "_u_nm")] = None if u is None else _u_nm(v, u, fr, self.wavelength_u_nm,
+                                                                                  self.wavelength_nm)
+        d["power_sign"] = self.sign.to_dict()["sign"]
+        d["astigmatism_axis_deg"] = self.astigmatism_axis_deg
+        d["astigmatism_axis_u_deg"] = self.astigmatism_axis_u_deg
+        d["astigmatism_axis_convention"] = (
+            "meridian of larger power magnitude, degrees from the image x axis (columns) toward y (rows, down)"
+        )
+        d["flatness_pv_nm"] = self.terms["pv_total_fringes"] * fr
+        d["flatness_pv_u_nm"] = d["pv_total_u_nm"]
+        d["test_diameter_mm"] = self.test_diameter_mm
+        d["test_diameter_source"] = self.test_diameter_source
+        d["aperture"] = {
+            **self.aperture.to_dict(self.pixel_size_um),
+            "diameter_mm": self.aperture_diameter_mm,
+        }
+        d["uncertainty_budget"] = {
+            name: [{"source": src, "u_fringes": u, "u_nm": u * fr} for src, u in rows]
+            for name, rows in self.budget_rows.items()
+        }
+        d["masks"] = list(self.masks)
+        d["masked_fraction"] = self.masked_fraction
+        d["sign"] = self.sign.to_dict()
+        d["fit"] = [_fit_dict(f) for f in self.fits]
+        d["radius"] = self.radius
+        d["tolerance"] = None if self.tolerance is None else self.tolerance.to_dict()
+        d["verdict"] = self.verdict
+        d["warnings"] = list(self.warnings)
+        d["notes"] = list(self.notes)
+        d["elapsed_s"] = self.elapsed_s
+        return d
+
+
+def _u_nm(v, u, fr, u_lam, lam):
+    return math.hypot(u * fr, v * fr * (u_lam / lam))
+
+
+def _fit_dict(f: GapFit) -> dict:
+    u = None if f.covariance is None else np.sqrt(np.clip(np.diag(f.covariance), 0, None))
+    return {
+        "terms": list(f.names),
+        "coefficients_fringes": [float(c) for c in f.coeffs],
+        "coefficients_u_fringes": None if u is None else [float(x) for x in u],
+        "covariance_fringes2": None if f.covariance is None else f.covariance.tolist(),
+        "covariance_scaling": "reduced chi-square times a pixel-correlation factor",
+        "correlation_factor": f.correlation_factor,
+        "ndata": f.ndata,
+        "nvarys": f.nvarys,
+        "chisqr": f.chisqr,
+        "redchi": f.redchi,
+        "residual_rms": f.residual_rms,
+        "modulation": f.contrast,
+        "success": f.success,
+        "message": f.message,
+        "normalisation": {"centre_px": list(f.centre_px), "radius_px": f.radius_px, "aspect_y_over_x": f.aspect},
+        "notes": list(f.notes),
+    }
+
+
+def _masks(mask: np.ndarray | None, pixel_um, saturated: np.ndarray | None, frame_index: int) -> list[dict]:
+    from scipy import ndimage
+
+    out = []
+    for kind, m in (("dust or defect", mask), ("glare (saturated)", saturated)):
+        if m is None or not m.any():
+            continue
+        lab, n = ndimage.label(m)
+        objs = ndimage.find_objects(lab)
+        for i, sl in enumerate(objs[:200]):
+            ys, xs = np.nonzero(lab[sl] == i + 1)
+            out.append({
+                "kind": kind,
+                "frame": frame_index,
+                "centre_px": [float(xs.mean() + sl[1].start), float(ys.mean() + sl[0].start)],
+                "area_px": int(xs.size),
+                "area_mm2": float(xs.size * pixel_um[0] * pixel_um[1] * 1e-6),
+            })
+    return out
+
+
+def evaluate_form(frames, setup, *, progress=None) -> FormResult:
+    """Evaluate the surface form of a part on a test plate from one or more frames.
+
+    Parameters
+    ----------
+    frames : list of ringgauge.imaging.Frame
+        One frame, or several of the same part with the gap changed between them (for the sign).
+    setup : ringgauge.bench_setup.BenchSetup
+        Source, pixel scale, gap medium; form options ``test_diameter_mm``, ``tolerance``, ``test_plate``
+        (dict: id, radius_mm, radius_u_mm, kind, calibrated...), ``press_test``, ``decision_rule``;
+        ``extras["gap_change"]`` ("increasing" default) for frame sets.
+    progress : callable(str), optional
+    """
+    t0 = time.perf_counter()
+    if not frames:
+        raise InputError("no frames given")
+    say = progress or (lambda msg: None)
+    warnings: list[str] = []
+    notes: list[str] = []
+    tol = None
+    if setup.tolerance:
+        tol = setup.tolerance if isinstance(setup.tolerance, Tolerance) else parse_tolerance(setup.tolerance)
+    if setup.decision_rule not in ("simple", "guard-banded"):
+        raise InputError(f"decision rule must be 'simple' or 'guard-banded', got {setup.decision_rule!r}")
+    lam = setup.wavelength_nm
+    n = setup.medium_index
+    fr = lam / (2 * n)
+    px, py = setup.pixel_size_xy_um
+    aspect = py / px
+    shape0 = frames[0].data.shape
+    for f in frames[1:]:
+        if f.data.shape != shape0:
+            raise InputError(f"{f.name}: frame size {f.data.shape[::-1]} differs from the first frame's "
+                             f"{shape0[::-1]}; frames of one part must come from the same camera set-up")
+    say("finding the part's edge")
+    ap = find_aperture(frames[0].data, aspect=aspect)
+    warnings += list(ap.notes)
+    ap_diam_mm = 2 * ap.radius_px * px * 1e-3
+    # test diameter: the option, else the tolerance's, else the clear aperture
+    if setup.test_diameter_mm:
+        td, td_src = float(setup.test_diameter_mm), "given"
+    elif tol is not None and tol.test_diameter_mm:
+        td, td_src = float(tol.test_diameter_mm), "tolerance"
+    else:
+        td, td_src = ap_diam_mm, "clear aperture"
+    if td > ap_diam_mm * 1.005:
+        warnings.append(f"test diameter {td:.2f} mm is larger than the clear aperture found "
+                        f"({ap_diam_mm:.2f} mm); evaluated over the clear aperture")
+        td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
+    k_td = min(1.0, td / ap_diam_mm)
+    F = finesse_coefficient(GLASS_INDEX, n)
+    fits: list[GapFit] = []
+    masks: list[dict] = []
+    masked_px = 0
+    for i, fr_ in enumerate(frames):
+        say(f"frame {i + 1}/{len(frames)}: fitting the gap")
+        data = np.asarray(fr_.data, dtype=np.float64)
+        sat = data >= 0.999 if fr_.saturated_fraction > 0 else None
+        if sat is not None:
+            from scipy import ndimage
+
+            sat = ndimage.binary_dilation(sat, iterations=2)
+        try:
+            g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat, finesse=F,
+                        finesse_range=(finesse_coefficient(1.45, n), finesse_coefficient(1.90, n)) if i == 0 else None,
+                        progress=(lambda m, i=i: say(f"frame {i + 1}: {m}")))
+        except np.linalg.LinAlgError:
+            raise AnalysisError(f"{fr_.name}: the gap model could not be fitted (singular); check focus and "
+                                "that the part's whole face is in view") from None
+        fits.append(g)
+        masks += _masks(g.masked_px, (px, py), sat, i)
+        masked_px += int(g.masked_px.sum()) if g.masked_px is not None else 0
+        warnings += [f"{fr_.name}: {m}" for m in g.notes]
+    # form terms from the first frame's fit (the other frames only move the piston)
+    g = fits[0]
+    uu, vv, un, vn = _disc_grid(k_td)
+    Z = _basis(g, uu, vv)
+    W = g.coeffs @ Z
+    terms = form_terms(W, un, vn)
+    terms_u: dict = {}
+    axis_u = None
+    if g.covariance is not None:
+        rng = np.random.default_rng(12345)  # fixed: the same image always reports the same uncertainty
+        try:
+            draws = rng.multivariate_normal(g.coeffs, g.covariance, size=MC_DRAWS, method="eigh")
+        except (np.linalg.LinAlgError, ValueError):
+            draws = None
+        if draws is not None:
+            samp = [form_terms(d @ Z, un, vn) for d in draws]
+            for name in FORM_TERMS:
+                vals = np.array([s[name] for s in samp])
+                terms_u[name] = float(np.std(vals, ddof=1))
+            ax = np.array([s["astigmatism_axis_deg"] for s in samp])
+            dax = (ax - terms["astigmatism_axis_deg"] + 90) % 180 - 90
+            axis_u = float(np.std(dax, ddof=1))
+    else:
+        warnings.append("the fit covariance could not be estimated: uncertainties are not available")
+    # Type B: model choice (fringe shape for an unknown glass index, illumination model) and the aperture
+    # radius (the terms scale with the square of the normalisation radius for power-like terms)
+    budget_rows: dict = {name: [] for name in FORM_TERMS}
+    for name in FORM_TERMS:
+        if name in terms_u:
+            budget_rows[name].append(("fit (pixel noise)", terms_u[name]))
+    for label, ca in g.alternatives.items():
+        alt = form_terms(ca @ Z, un, vn)
+        for name in FORM_TERMS:
+            budget_rows[name].append((label, abs(alt[name] - terms[name]) / math.sqrt(3)))
+    rel_a = math.hypot(ap.radius_u_px, max(0.25, ap.edge_rms_px / 4)) / ap.radius_px
+    for name in FORM_TERMS:
+        budget_rows[name].append(("aperture radius", 2 * abs(terms[name]) * rel_a))
+    if terms_u:
+        for name in FORM_TERMS:
+            terms_u[name] = math.sqrt(sum(x * x for _, x in budget_rows[name]))
+    # sign
+    sign = UNKNOWN
+    if setup.press_test:
+        sign = sign_from_press(setup.press_test)
+    if len(fits) > 1:
+        pist = [f.coeffs[0] for f in fits]
+        upist = [math.sqrt(f.covariance[0, 0]) if f.covariance is not None else 0.05 for f in fits]
+        sf = sign_from_pistons(pist, upist, gap_change=(setup.extras or {}).get("gap_change", "increasing"))
+        pw = [f.coeffs[3] for f in fits]
+        if max(pw) - min(pw) > 0.1:
+            warnings.append("the frames differ in power by more than 0.1 fringe: did the part move or tilt?")
+        if sign.method == "press test" and sf.sign and sf.sign != sign.sign:
+            warnings.append("the press-test observation contradicts the frame sequence; the frames are used")
+        if sf.sign or sign.sign == 0:
+            sign = sf
+    if sign.sign == 0:
+        notes.append("power sign unknown: power is reported as a magnitude")
+    power_signed = terms["power_fringes"] * (sign.sign if sign.sign else 1)
+    terms["power_fringes"] = power_signed
+    # radius against the plate
+    radius = None
+    plate = setup.test_plate
+    if plate and plate.get("radius_mm") and math.isfinite(float(plate["radius_mm"])):
+        radius, rw = _radius_block(terms["power_fringes"], terms_u.get("power_fringes", 0.0), td,
+                                   k_td, ap, px, setup, plate, sign)
+        warnings += rw
+    verdict = _verdict(terms, terms_u, tol, lam, setup.decision_rule, sign)
+    if tol is not None and tol.wavelength_stated and abs(tol.wavelength_nm - lam) > 0.5:
+        notes.append(f"measured at {lam:g} nm; compared with the tolerance in fringes of {tol.wavelength_nm:g} nm")
+    return FormResult(
+        wavelength_nm=lam, wavelength_u_nm=setup.source.wavelength_u_nm, medium_index=n, fringe_nm=fr,
+        terms=terms, terms_u=terms_u, astigmatism_axis_deg=terms["astigmatism_axis_deg"],
+        astigmatism_axis_u_deg=axis_u, test_diameter_mm=float(td), test_diameter_source=td_src, aperture=ap,
+        aperture_diameter_mm=ap_diam_mm, masks=tuple(masks),
+        masked_fraction=float(masked_px / max(1, len(frames) * math.pi * ap.radius_px**2 / aspect)),
+        sign=sign, fits=tuple(fits), radius=radius, tolerance=tol, verdict=verdict,
+        warnings=tuple(dict.fromkeys(warnings)), pixel_size_um=(px, py),
+        elapsed_s=time.perf_counter() - t0, notes=tuple(notes),
+        budget_rows={k: tuple(v) for k, v in budget_rows.items()},
+    )
+
+
+def _basis(g: GapFit, u, v):
+    from .fit import gap_basis
+
+    return gap_basis(u, v, len(g.coeffs))
+
+
+def _radius_block(N, uN, D, k_td, ap, px, setup, plate, sign: SignResult):
+    warnings = []
+    R = float(plate["radius_mm"])
+    uR = float(plate.get("radius_u_mm") or 0.0)
+    lam = setup.wavelength_nm
+    n = setup.medium_index
+    if D / 2 >= R:
+        raise InputError(f"test diameter {D:g} mm does not fit on a plate of radius {R:g} mm")
+    # the test diameter's uncertainty: aperture radius fit and pixel scale
+    u_px = setup.pixel_size_u_um
+    uD = D * math.hypot(ap.radius_u_px / ap.radius_px, (u_px / px) if px else 0.0)
+    if u_px == 0:
+        warnings.append("pixel size uncertainty not given: the test diameter's uncertainty is incomplete")
+    kind = (plate.get("kind") or "").lower()
+    # geometric sign: gap growing to the edge (power > 0) means the surface is more curved than a concave
+    # plate (convex part: R_s = R_p - dR) or less curved than a convex plate (concave part: R_s = R_p + dR)
+    geo = {"concave": -1, "convex": 1}.get(kind, 0)
+    s = sign.sign * geo
+    absN = abs(N)
+    b_dr, b_rs, w = radius_budget(absN, uN, D, uD, R, uR, lam, setup.source.wavelength_u_nm, n=n,
+                                  sign=s if s else 1)
+    warnings += w
+    block = {
+        "plate": {k: plate.get(k) for k in ("id", "radius_mm", "radius_u_mm", "kind", "calibrated", "due")},
+        "power_fringes_used": N,
+        "test_diameter_mm": D,
+        "h_over_r": D / (2 * R),
+        "steep": D / (2 * R) > STEEP_LIMIT,
+        "delta_r_paraxial_mm": delta_r_paraxial(absN, D, R, lam, n),
+        "delta_r_normal_mm": delta_r_normal(absN, D, R, lam, n),
+        "delta_r_axial_mm": delta_r_axial(absN, D, R, lam, n),
+        "formula_used": "exact, gap along the axis: ΔR = Nλcosθ / (2(1 − cosθ)), sinθ = D/(2R)",
+        "delta_r_mm": b_dr.value if s else abs(b_dr.value),
+        "delta_r_u_mm": b_dr.u_c,
+        "delta_r_U_mm": b_dr.U,
+        "budget_delta_r": b_dr.to_dict(),
+        "k": b_dr.k,
+    }
+    if s:
+        block.update({
+            "surface_radius_mm": b_rs.value,
+            "surface_radius_u_mm": b_rs.u_c,
+            "surface_radius_U_mm": b_rs.U,
+            "budget_surface_radius": b_rs.to_dict(),
+        })
+    else:
+        why = "the power sign is unknown" if sign.sign == 0 else "the plate's kind (convex/concave) is not given"
+        block.update({
+            "surface_radius_mm": None,
+            "surface_radius_candidates_mm": [R - abs(b_dr.value), R + abs(b_dr.value)],
+            "surface_radius_note": f"{why}: the surface radius is one of the two candidates",
+        })
+    return block, warnings
+
+
+def _verdict(terms, terms_u, tol: Tolerance | None, lam, rule, sign: SignResult) -> dict:
+    desc = {
+        "simple": "simple acceptance: a term passes when the measured value is within the limit; results "
+        "within the expanded uncertainty U (k = 2) of the limit are marked conditional",
+        "guard-banded": "guard-banded acceptance: a term passes only when value + U is within the limit and "
+        "fails when value - U exceeds it; in between it is conditional and not accepted",
+    }[rule]
+    if tol is None:
+        return {"overall": "not evaluated", "terms": [], "decision_rule": desc,
+                "reason": "no tolerance given"}
+    scale = lam / tol.wavelength_nm  # measured fringes -> fringes of the tolerance's wavelength
+    rows = []
+    for name, limit in tol.limits().items():
+        v = abs(terms[name]) * scale
+        u = terms_u.get(name)
+        U = None if u is None else 2.0 * u * scale
+        if U is None:
+            state = "pass" if v <= limit else "fail"
+            note = "uncertainty not available"
+        elif rule == "simple":
+            if v <= limit:
+                state = "conditional pass" if v + U > limit else "pass"
+            else:
+                state = "conditional fail" if v - U <= limit else "fail"
+            note = ""
+        else:
+            if v + U <= limit:
+                state = "pass"
+            elif v - U > limit:
+                state = "fail"
+            else:
+                state = "conditional pass" if v <= limit else "conditional fail"
+            note = ""
+        rows.append({
+            "term": name.replace("_fringes", ""),
+            "value_fringes": v,
+            "U_fringes": U,
+            "limit_fringes": limit,
+            "wavelength_nm": tol.wavelength_nm,
+            "verdict": state,
+            "note": note,
+        })
+    order = ["fail", "conditional fail", "conditional pass", "pass"]
+    overall = "pass"
+    for st in order:
+        if any(r["verdict"] == st for r in rows):
+            overall = st
+            break
+    out = {"overall": overall, "terms": rows, "decision_rule": desc, "rule": rule}
+    if rule == "guard-banded" and overall.startswith("conditional"):
+        out["meaning"] = "under guard-banded acceptance a conditional result is not accepted"
+    elif overall.startswith("conditional"):
+        out["meaning"] = ("the result lies within the expanded uncertainty (k = 2, about 95 %) of a limit: "
+                          "conformity is neither proven nor disproven at that confidence")
+    if any(r["term"] == "power" for r in rows) and sign.sign == 0:
+        out["power_note"] = "power compared by magnitude (sign unknown)"
+    return out
