@@ -35,7 +35,7 @@ from scipy import ndimage
 from scipy.optimize import least_squares
 
 from ..errors import CalibrationError, InputError
-from .grating import _as_frame, _image_info
+from .grating import _as_frame, _image_info, _single_thread
 from .result import ScaleCalibration, assemble, derived, propagate
 
 MIN_RADIUS_PX = 20.0
@@ -148,6 +148,7 @@ def _fit_metric(points: np.ndarray, R_um: float, s0: float, centre0):
                         "residual_rms_um": math.sqrt(float(r @ r) / n), "neighbour_correlation": rho}
 
 
+@_single_thread
 def measure_disc(image, diameter_mm: float, diameter_u_mm: float | None = None, *,
                  target_id: str | None = None) -> ScaleCalibration:
     """Pixel scale along x and y (and squareness) from one image of a disc of certified diameter.

@@ -57,7 +57,7 @@ MIN_PEAK_RATIO = 12.0
 #: share of the flat-fielded image's variance the periodic model must explain
 MIN_EXPLAINED = 0.2
 #: points used by the least-squares refinement (a regular sub-grid of the pattern area)
-MAX_FIT_POINTS = 60_000
+MAX_FIT_POINTS = 40_000
 
 
 def _as_frame(image) -> Frame:
@@ -247,16 +247,29 @@ class _Model:
         return [2 * np.pi * (f[j, 0] * self.xs + f[j, 1] * self.ys) for j in range(self.ndir)]
 
     def design(self, theta):
+        """Columns: 1, x, y, then cos/sin of h * phase_j (h = 1..harmonics) per direction, then the grid's
+        sum and difference terms. Harmonics by the angle-addition recurrence (one cos/sin per direction)."""
         ph = self._phases(theta)
-        cols = [np.ones_like(self.xs), self.xs / self.scale, self.ys / self.scale]
+        n = self.xs.size
+        A = np.empty((n, self.nlin()))
+        A[:, 0] = 1.0
+        A[:, 1] = self.xs / self.scale
+        A[:, 2] = self.ys / self.scale
+        k = 3
+        cs = []
         for p in ph:
+            c1, s1 = np.cos(p), np.sin(p)
+            cs.append((c1, s1))
+            c, si = c1, s1
             for h in range(1, self.harmonics + 1):
-                cols += [np.cos(h * p), np.sin(h * p)]
+                A[:, k], A[:, k + 1] = c, si
+                c, si = c * c1 - si * s1, si * c1 + c * s1
+                k += 2
         if self.ndir == 2 and self.mixed:
-            for s in (1.0, -1.0):
-                q = ph[0] + s * ph[1]
-                cols += [np.cos(q), np.sin(q)]
-        return np.stack(cols, axis=1)
+            (c0, s0), (c1, s1) = cs
+            A[:, k], A[:, k + 1] = c0 * c1 - s0 * s1, s0 * c1 + c0 * s1  # phase_0 + phase_1
+            A[:, k + 2], A[:, k + 3] = c0 * c1 + s0 * s1, s0 * c1 - c0 * s1  # phase_0 - phase_1
+        return A
 
     def nlin(self) -> int:
         return 3 + 2 * self.harmonics * self.ndir + (4 if self.ndir == 2 and self.mixed else 0)
@@ -273,23 +286,20 @@ class _Model:
 
     def jacobian(self, theta, coef, A, M):
         """Jacobian of the projected residual, Kaufman's form: -(I - A (AᵀA)⁻¹ Aᵀ) dA/dtheta coef."""
-        ph = self._phases(theta)
         k = 3
         slope = []
-        for p in ph:
+        for _ in range(self.ndir):
             acc = np.zeros_like(self.xs)
             for h in range(1, self.harmonics + 1):
-                a, b = coef[k], coef[k + 1]
-                acc += h * (-a * np.sin(h * p) + b * np.cos(h * p))
+                # d/dphase of a cos(h phase) + b sin(h phase)
+                acc += h * (-coef[k] * A[:, k + 1] + coef[k + 1] * A[:, k])
                 k += 2
             slope.append(acc)
         if self.ndir == 2 and self.mixed:
-            for s in (1.0, -1.0):
-                q = ph[0] + s * ph[1]
-                c, d = coef[k], coef[k + 1]
-                t = -c * np.sin(q) + d * np.cos(q)
+            for sgn in (1.0, -1.0):
+                t = -coef[k] * A[:, k + 1] + coef[k + 1] * A[:, k]
                 slope[0] = slope[0] + t
-                slope[1] = slope[1] + s * t
+                slope[1] = slope[1] + sgn * t
                 k += 2
         D = np.empty((self.xs.size, 2 * self.ndir))
         for j in range(self.ndir):
@@ -366,11 +376,15 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     count = int(present.sum())
     if count < 200:
         raise CalibrationError("the line pattern covers too little of the image; fill more of the frame with it")
-    step = max(1, int(math.ceil(math.sqrt(count / MAX_FIT_POINTS))))
-    grid = np.zeros_like(present)
-    grid[::step, ::step] = True
-    pts = present & grid
-    xs, ys, zs = xx[pts] - cx, yy[pts] - cy, z[pts]
+    # A seeded random subset, not a regular sub-grid: a stride would alias the harmonics onto the fundamental.
+    idx_all = np.flatnonzero(present)
+    if count > MAX_FIT_POINTS:
+        idx_fit = np.sort(np.random.default_rng(20240613).choice(idx_all, MAX_FIT_POINTS, replace=False))
+    else:
+        idx_fit = idx_all
+    pts = np.zeros_like(present)
+    pts.flat[idx_fit] = True
+    xs, ys, zs = xx.flat[idx_fit] - cx, yy.flat[idx_fit] - cy, z.flat[idx_fit]
     model = _Model(xs, ys, zs, ndir, harmonics, mixed)
     theta0 = np.concatenate([np.asarray(f, float) for f in f0])
     keep = np.ones(xs.size, dtype=bool)
@@ -388,15 +402,28 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     n, p = r.size, theta.size + m.nlin()
     s2 = float(r @ r) / max(n - p, 1)
     try:
-        cov = np.linalg.inv(J.T @ J) * s2
+        JtJ_inv = np.linalg.inv(J.T @ J)
     except np.linalg.LinAlgError:
         raise CalibrationError("the line-pattern fit is degenerate; photograph more of the scale") from None
+    # Heteroscedasticity-consistent ("sandwich") covariance, with the small-sample factor n / (n - p): the
+    # noise is not uniform (shot noise follows the line pattern, damaged spots), so the classical s^2 (JᵀJ)^-1
+    # would be too optimistic. The larger of the two is kept.
+    cov_classic = JtJ_inv * s2
+    cov_hc = JtJ_inv @ ((J * (r * r)[:, None]).T @ J) @ JtJ_inv * (n / max(n - p, 1))
+    cov = cov_hc if np.trace(cov_hc) > np.trace(cov_classic) else cov_classic
+    # Residuals at every pattern pixel (in chunks) for their neighbour correlation. For a random subset of
+    # a fraction q of the pixels the variance inflation is about 1 + q (kappa - 1), kappa that of all pixels.
+    coef_fit = m.solve(theta)[1]
     res_img = np.zeros((H, W))
-    ok = np.zeros((H, W), dtype=bool)
-    idx = np.flatnonzero(pts)[keep]
-    res_img.flat[idx] = r
-    ok.flat[idx] = True
-    corr = _neighbour_corr(res_img[::step, ::step], ok[::step, ::step])
+    for c0 in range(0, idx_all.size, 50_000):
+        sl = idx_all[c0:c0 + 50_000]
+        sub = _Model(xx.flat[sl] - cx, yy.flat[sl] - cy, z.flat[sl], ndir, harmonics, mixed)
+        sub.scale = m.scale
+        res_img.flat[sl] = sub.z - sub.design(theta) @ coef_fit
+    s_rob = 1.4826 * float(np.median(np.abs(r - np.median(r))))
+    ok = present & (np.abs(res_img) <= 4.0 * max(s_rob, 1e-12))
+    kappa = _neighbour_corr(res_img, ok)
+    corr = 1.0 + (r.size / max(idx_all.size, 1)) * (kappa - 1.0)
     cov = cov * corr
     explained = 1.0 - float(r @ r) / max(float(((m.z - m.z.mean()) ** 2).sum()), 1e-30)
     if explained < MIN_EXPLAINED:
@@ -427,6 +454,7 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
         "explained_fraction": explained,
         "reduced_chi_square_scale": s2,
         "correlation_inflation": corr,
+        "neighbour_inflation_all_pixels": kappa,
         "refinement_shift_cycles_per_px": drift.max(),
     }
     return theta.reshape(ndir, 2), cov, info
@@ -498,6 +526,23 @@ def _default_pitch_u(P: float) -> float:
     return 0.001 * P / math.sqrt(3.0)
 
 
+def _single_thread(fn):
+    """Run with one BLAS thread: the fit's matrices are small and the bench PC is shared with other work."""
+    import functools
+
+    @functools.wraps(fn)
+    def wrapper(*a, **k):
+        try:
+            from threadpoolctl import threadpool_limits
+        except ImportError:  # pragma: no cover
+            return fn(*a, **k)
+        with threadpool_limits(1):
+            return fn(*a, **k)
+
+    return wrapper
+
+
+@_single_thread
 def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, kind: str = "auto",
                     target_id: str | None = None) -> ScaleCalibration:
     """Pixel scale from one image of a line scale, line grating, crossed grid or dot grid.
@@ -600,6 +645,7 @@ def _anisotropy_note(res: ScaleCalibration) -> ScaleCalibration:
     return replace(res, warnings=res.warnings + (note,))
 
 
+@_single_thread
 def measure_line_pair(image_a, image_b, pitch_um: float, pitch_u_um: float | None = None, *,
                       target_id: str | None = None) -> ScaleCalibration:
     """Pixel scale along x and y from one line scale photographed twice, turned by about 90° in between.

@@ -39,22 +39,17 @@ def _rng(rng) -> np.random.Generator:
 
 
 def _sample(fn, camera: Camera, offset_um=(0.0, 0.0), ss: int = 3) -> np.ndarray:
-    """Average ``fn(X_um, Y_um, footprint_um)`` over ``ss`` x ``ss`` sub-samples of every pixel."""
+    """``fn(X_um, Y_um, footprint_um)`` on a grid ``ss`` times finer than the pixels: shape (H ss, W ss)."""
     H, W = camera.height, camera.width
     sx = camera.pixel_um
     sy = camera.pixel_y_um or camera.pixel_um
     cx, cy = (W - 1) / 2, (H - 1) / 2
-    offs = (np.arange(ss) + 0.5) / ss - 0.5
     foot = max(sx, sy) / ss  # anti-aliasing ramp width of one sub-sample, µm
-    xs = np.arange(W, dtype=np.float64) - cx
-    ys = np.arange(H, dtype=np.float64) - cy
-    acc = np.zeros((H, W))
-    for dy in offs:
-        Y = ((ys + dy) * sy - offset_um[1])[:, None]
-        for dx in offs:
-            X = ((xs + dx) * sx - offset_um[0])[None, :]
-            acc += np.broadcast_to(fn(X, Y, foot), (H, W))
-    return acc / (ss * ss)
+    xs = (np.arange(W * ss) + 0.5) / ss - 0.5 - cx  # sub-sample centres in pixel units
+    ys = (np.arange(H * ss) + 0.5) / ss - 0.5 - cy
+    X = (xs * sx - offset_um[0])[None, :]
+    Y = (ys * sy - offset_um[1])[:, None]
+    return np.broadcast_to(fn(X, Y, foot), (H * ss, W * ss)).astype(np.float64)
 
 
 def _ramp(inside_um, foot_um):
@@ -62,27 +57,36 @@ def _ramp(inside_um, foot_um):
     return np.clip(inside_um / foot_um + 0.5, 0.0, 1.0)
 
 
-def _expose(transmission: np.ndarray, camera: Camera, lighting: Lighting, rng, dust_count: int = 0):
-    """Light, blur, noise and quantisation: the camera's view of a target of given transmission (0..1)."""
+def _expose(transmission_hi: np.ndarray, ss: int, camera: Camera, lighting: Lighting, rng, dust_count: int = 0):
+    """The camera's view of a target of given transmission (0..1), sampled ``ss`` times finer than the pixels.
+
+    As on a real bench, the light falls on the target and the lens blurs what it sees *before* the sensor
+    samples it: illumination and blur act on the fine grid, then each pixel integrates its ss x ss
+    sub-samples (100 % fill factor), then dust, shot and read noise and quantisation.
+    """
     g = _rng(rng)
-    H, W = transmission.shape
+    H, W = camera.height, camera.width
     cxl, cyl = lighting.centre if lighting.centre is not None else ((W - 1) / 2, (H - 1) / 2)
-    yy, xx = np.mgrid[0:H, 0:W].astype(np.float64)
+    xs = (np.arange(W * ss) + 0.5) / ss - 0.5
+    ys = (np.arange(H * ss) + 0.5) / ss - 0.5
+    xx, yy = xs[None, :], ys[:, None]
     rr2 = ((xx - cxl) ** 2 + (yy - cyl) ** 2) / (((W - 1) / 2) ** 2 + ((H - 1) / 2) ** 2)
     ang = np.deg2rad(lighting.gradient_angle_deg)
     lin = ((xx - (W - 1) / 2) * np.cos(ang) + (yy - (H - 1) / 2) * np.sin(ang)) / max(W, H)
     illum = np.clip((1.0 - lighting.falloff * rr2) * (1.0 + lighting.gradient * lin), 0.05, None)
-    intensity = (illum * transmission + lighting.stray) / (1.0 + lighting.stray) * camera.exposure
+    hi = (illum * transmission_hi + lighting.stray) / (1.0 + lighting.stray) * camera.exposure
+    if camera.blur_px > 0:
+        hi = ndimage.gaussian_filter(hi, camera.blur_px * ss, mode="nearest")
+    intensity = hi.reshape(H, ss, W, ss).mean(axis=(1, 3))
     specks = []
     if dust_count:
+        yy, xx = np.mgrid[0:H, 0:W].astype(np.float64)
         mask = np.zeros((H, W))
         for _ in range(dust_count):
             x0, y0, rad = g.uniform(0, W), g.uniform(0, H), g.uniform(2.0, 7.0)
             mask = np.maximum(mask, np.clip(rad - np.hypot(xx - x0, yy - y0) + 0.5, 0, 1))
             specks.append({"x": float(x0), "y": float(y0), "radius_px": float(rad)})
         intensity = intensity * (1 - 0.9 * mask)
-    if camera.blur_px > 0:
-        intensity = ndimage.gaussian_filter(intensity, camera.blur_px, mode="nearest")
     electrons = g.poisson(np.clip(intensity, 0, None) * camera.full_well_e).astype(np.float64)
     electrons += g.normal(0.0, camera.read_noise_e, size=electrons.shape)
     full = (1 << camera.bits) - 1
@@ -167,7 +171,7 @@ def line_grating(
         return 1.0 - contrast * _lines(u, v, foot, pitch_um, line_width * pitch_um, missing, damaged, length_um,
                                        long_every)
 
-    img, specks = _expose(_sample(fn, camera, offset_um), camera, lighting, g, dust)
+    img, specks = _expose(_sample(fn, camera, offset_um, 3), 3, camera, lighting, g, dust)
     return TargetImage(img, _truth("line_grating", camera, lighting, pitch_um=pitch_um, angle_deg=angle_deg,
                                    line_width=line_width, missing=missing, damaged=damaged, dust=specks))
 
@@ -199,7 +203,7 @@ def crossed_grid(
         b = _lines(v, u, foot, pitch_um, w, miss_v, [], None, 0)
         return (1.0 - contrast * a) * (1.0 - contrast * b)
 
-    img, specks = _expose(_sample(fn, camera, offset_um), camera, lighting, g, dust)
+    img, specks = _expose(_sample(fn, camera, offset_um, 3), 3, camera, lighting, g, dust)
     return TargetImage(img, _truth("crossed_grid", camera, lighting, pitch_um=pitch_um, angle_deg=angle_deg,
                                    line_width=line_width, missing=[miss_u, miss_v], dust=specks))
 
@@ -226,7 +230,7 @@ def dot_grid(
         dv = v - np.rint(v / pitch_um) * pitch_um
         return 1.0 - contrast * _ramp(r - np.hypot(du, dv), foot)
 
-    img, specks = _expose(_sample(fn, camera, offset_um), camera, lighting, g, dust)
+    img, specks = _expose(_sample(fn, camera, offset_um, 3), 3, camera, lighting, g, dust)
     return TargetImage(img, _truth("dot_grid", camera, lighting, pitch_um=pitch_um, angle_deg=angle_deg,
                                    dot_diameter=dot_diameter, dust=specks))
 
@@ -251,7 +255,7 @@ def disc(
         inside = _ramp(R - np.hypot(X - centre_um[0], Y - centre_um[1]), foot)
         return 1.0 - contrast * inside if dark else (1.0 - contrast) + contrast * inside
 
-    img, specks = _expose(_sample(fn, camera, ss=4), camera, lighting, g, dust)
+    img, specks = _expose(_sample(fn, camera, ss=4), 4, camera, lighting, g, dust)
     sx, sy = camera.pixel_um, camera.pixel_y_um or camera.pixel_um
     cpx = ((camera.width - 1) / 2 + centre_um[0] / sx, (camera.height - 1) / 2 + centre_um[1] / sy)
     return TargetImage(img, _truth("disc", camera, lighting, diameter_mm=diameter_mm, dark=dark,
