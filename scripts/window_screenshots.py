@@ -65,7 +65,14 @@ def main() -> int:
         pump(0.5)
         pix = QGuiApplication.primaryScreen().grabWindow(0)
         pix.save(str(OUT / name))
-        print("wrote", OUT / name, pix.width(), "x", pix.height())
+        try:  # a 256-colour palette keeps the files small; the screens use few colours
+            from PIL import Image
+
+            Image.open(OUT / name).convert("RGB").quantize(256, dither=Image.Dither.NONE).save(OUT / name,
+                                                                                              optimize=True)
+        except ImportError:
+            pass
+        print("wrote", OUT / name, pix.width(), "x", pix.height(), (OUT / name).stat().st_size // 1024, "kB")
 
     # 1. the bench: one lens analysed
     win.open_paths([str(lot / "KL2611-003.png")])

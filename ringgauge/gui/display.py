@@ -127,17 +127,17 @@ def overlay_from(d: dict | None, overrides: dict | None = None) -> Overlay:
             rad = _num(ap.get("radius_px")) or (dia / 2 if dia else None)
             if cc and rad:
                 ov.aperture = (float(cc[0]), float(cc[1]), rad, rad / aspect)
-        masks = _find(d.get("form"), "masked_regions", "masks")
+        masks = (d.get("form") or {}).get("masks") if isinstance(d.get("form"), dict) else None
         if isinstance(masks, list):
             for m in masks:
-                if isinstance(m, dict):
-                    x, y = _num(m.get("x_px", m.get("x"))), _num(m.get("y_px", m.get("y")))
-                    r = _num(m.get("radius_px", m.get("r_px")))
-                    if None not in (x, y, r):
-                        ov.masks.append((x, y, r))
-        axis = _num(_find(d.get("form"), "astigmatism_axis_deg", "astig_axis_deg", "axis_deg"))
-        if axis is not None:
-            ov.meridians = [(axis, "meridian 1"), (axis + 90.0, "meridian 2")]
+                if isinstance(m, dict) and m.get("centre_px") and _num(m.get("area_px")):
+                    x, y = float(m["centre_px"][0]), float(m["centre_px"][1])
+                    ov.masks.append((x, y, max(2.0, math.sqrt(float(m["area_px"]) / math.pi))))
+        form = d.get("form") if isinstance(d.get("form"), dict) else {}
+        axis = _num(form.get("astigmatism_axis_deg"))
+        if axis is not None and (_num(form.get("astigmatism_fringes")) or 0) > 0:
+            # the form evaluation counts the axis from +x toward +y (rows, down): clockwise on screen
+            ov.meridians = [(axis, "stronger meridian"), (axis + 90.0, "weaker meridian")]
     if overrides.get("centre_px") is not None:
         ov.centre = tuple(float(v) for v in overrides["centre_px"])  # type: ignore[assignment]
         ov.centre_by_hand = True
@@ -241,7 +241,7 @@ def value_rows(d: dict | None) -> list[ValueRow]:
             rows.append(ValueRow("Reduced chi-square", f"{redchi:.3g}", "—", "", "Rings"))
     form = d.get("form")
     if isinstance(form, dict):
-        rows.extend(_quantity_rows(form, "Surface form"))
+        rows.extend(form_rows(form))
     setup = d.get("setup") or {}
     if setup:
         lam, lamu = _num(setup.get("wavelength_nm")), _num(setup.get("wavelength_u_nm"))
@@ -261,9 +261,86 @@ def value_rows(d: dict | None) -> list[ValueRow]:
     return rows
 
 
+#: form terms as the form evaluation names them, with the labels the table shows (ISO 10110-5 letters)
+FORM_LABELS = (
+    ("power_fringes", "Power (A)"),
+    ("astigmatism_fringes", "Astigmatism"),
+    ("irregularity_fringes", "Irregularity (B)"),
+    ("rot_sym_irregularity_fringes", "Rot. symmetric irregularity (C)"),
+    ("rms_total_fringes", "RMSt"),
+    ("rms_irregularity_fringes", "RMSi"),
+    ("rms_asymmetric_fringes", "RMSa"),
+    ("pv_total_fringes", "PV after piston and tilt"),
+)
+
+
+def form_rows(form: dict) -> list[ValueRow]:
+    """Rows for a form result's ``to_dict()``: terms in fringes (U = k·u), power in nm, axis, sign, aperture,
+    masks and the radius deviation against the plate."""
+    g = "Surface form"
+    k = _num(form.get("k")) or 2.0
+    rows: list[ValueRow] = []
+    fr_nm = _num(form.get("fringe_nm"))
+    if fr_nm is not None:
+        rows.append(ValueRow("One fringe (λ/2n)", f"{fr_nm:.2f}", "—", "nm", g))
+    for key, label in FORM_LABELS:
+        v = _num(form.get(key))
+        if v is None:
+            continue
+        u = _num(form.get(key.replace("_fringes", "_u_fringes")))
+        a, b = _fmt_pair(v, None if u is None else k * u)
+        rows.append(ValueRow(label, a, b, "fringes", g))
+        if key in ("power_fringes", "irregularity_fringes"):
+            vn = _num(form.get(key.replace("_fringes", "_nm")))
+            un = _num(form.get(key.replace("_fringes", "_u_nm")))
+            if vn is not None:
+                a, b = _fmt_pair(vn, None if un is None else k * un)
+                rows.append(ValueRow(label + " in nm", a, b, "nm", g))
+    sign = form.get("sign") or {}
+    if sign:
+        rows.append(ValueRow("Power sign", str(sign.get("sign", "unknown")), "—", "", g))
+    ax = _num(form.get("astigmatism_axis_deg"))
+    if ax is not None:
+        au = _num(form.get("astigmatism_axis_u_deg"))
+        a, b = _fmt_pair(ax, None if au is None else k * au)
+        rows.append(ValueRow("Astigmatism axis", a, b, "°", g))
+    td = _num(form.get("test_diameter_mm"))
+    if td is not None:
+        rows.append(ValueRow("Test diameter", f"{td:g}", "—", "mm", g))
+    ap = form.get("aperture") or {}
+    ad, adu = _num(ap.get("diameter_mm")), _num(ap.get("diameter_u_mm"))
+    if ad is not None:
+        a, b = _fmt_pair(ad, None if adu is None else k * adu)
+        rows.append(ValueRow("Aperture diameter", a, b, "mm", g))
+    mf = _num(form.get("masked_fraction"))
+    if mf is not None:
+        rows.append(ValueRow("Masked (dust, glare)", f"{100 * mf:.1f}", "—", "%", g))
+    rad = form.get("radius") or {}
+    if rad:
+        gr = "Against the test plate"
+        plate = rad.get("plate") or {}
+        if plate.get("id"):
+            rows.append(ValueRow("Test plate", str(plate["id"]), "—", "", gr))
+        v, U = _num(rad.get("delta_r_mm")), _num(rad.get("delta_r_U_mm"))
+        if v is not None:
+            a, b = _fmt_pair(v, U)
+            rows.append(ValueRow("Radius deviation ΔR", a, b, "mm", gr))
+        v, U = _num(rad.get("surface_radius_mm")), _num(rad.get("surface_radius_U_mm"))
+        if v is not None:
+            a, b = _fmt_pair(v, U)
+            rows.append(ValueRow("Surface radius", a, b, "mm", gr))
+        elif rad.get("surface_radius_candidates_mm"):
+            c = rad["surface_radius_candidates_mm"]
+            rows.append(ValueRow("Surface radius (sign unknown)", f"{c[0]:.4f} or {c[1]:.4f}", "—", "mm", gr))
+    return rows
+
+
 def budget_rows(d: dict | None) -> list[list[str]]:
     """The uncertainty budget as table rows: quantity, estimate, u, distribution, c_i, contribution, share."""
     b = (d or {}).get("budget") or {}
+    if not b:
+        rad = (((d or {}).get("form") or {}).get("radius") or {})
+        b = rad.get("budget_surface_radius") or rad.get("budget_delta_r") or {}
     out = []
     unit = b.get("unit", "")
     for r in b.get("rows", []) or []:
@@ -312,15 +389,23 @@ def verdict_view(d: dict | None) -> VerdictView:
     terms = []
     for t in v.get("terms", []) or []:
         if isinstance(t, dict):
-            name = t.get("term") or t.get("name") or "term"
-            status = t.get("status") or t.get("verdict") or ""
-            val, lim, unit = _num(t.get("value")), _num(t.get("limit")), t.get("unit", "")
+            name = str(t.get("term") or t.get("name") or "term").replace("_", " ")
+            status = str(t.get("status") or t.get("verdict") or "").upper()
+            val = _num(t.get("value", t.get("value_fringes")))
+            lim = _num(t.get("limit", t.get("limit_fringes")))
+            U = _num(t.get("U", t.get("U_fringes")))
+            unit = t.get("unit") or ("fringes" if "value_fringes" in t else "")
             txt = f"{name}: {status}".strip(": ")
             if val is not None and lim is not None:
-                txt += f" ({val:.3g} {unit} against {lim:.3g} {unit})"
+                pm = f" ± {U:.2g}" if U is not None else ""
+                txt += f" ({val:.3g}{pm} {unit}, limit {lim:.3g} {unit})".replace("  ", " ")
             terms.append(txt)
         else:
             terms.append(str(t))
+    if v.get("meaning"):
+        expl = str(v["meaning"])
+    elif overall == "not evaluated" and v.get("reason"):
+        expl = str(v["reason"])
     return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms))
 
 
@@ -392,6 +477,10 @@ def ring_gap_map(d: dict | None, shape: tuple[int, int], *, step: int = 4) -> di
 
 def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
     """The surface-form map: the form result's own map when it has one, else the ring fit's gap."""
+    if form_obj is not None and getattr(form_obj, "fits", None):
+        m = _form_fit_map(form_obj, shape)
+        if m is not None:
+            return m
     if form_obj is not None:
         for attr in ("gap_map_nm", "height_map_nm", "map_nm"):
             m = getattr(form_obj, attr, None)
@@ -404,6 +493,29 @@ def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None
     if shape is None:
         return None
     return ring_gap_map(d, shape)
+
+
+def _form_fit_map(form_obj, shape, n: int = 161) -> dict | None:
+    """The form fit's gap less piston and tilt, in nm, over the fitted aperture (NaN outside)."""
+    try:
+        from ..form.fit import gap_basis
+    except ImportError:
+        return None
+    f = form_obj.fits[0]
+    coeffs = np.asarray(f.coeffs, dtype=float)
+    cx, cy = f.centre_px
+    r, aspect = float(f.radius_px), float(f.aspect or 1.0)
+    xs = np.linspace(cx - r, cx + r, n)
+    ys = np.linspace(cy - r / aspect, cy + r / aspect, n)
+    X, Y = np.meshgrid(xs, ys)
+    u, v = (X - cx) / r, (Y - cy) * aspect / r
+    inside = u * u + v * v <= 1.0
+    B = gap_basis(u[inside], v[inside], len(coeffs))
+    keep = np.array([name not in ("piston", "tilt_x", "tilt_y") for name in f.names[: len(coeffs)]])
+    gap = np.full(u.shape, np.nan)
+    gap[inside] = (coeffs[keep] @ B[keep]) * float(form_obj.fringe_nm)
+    return {"gap_nm": gap, "extent_px": (xs[0], xs[-1], ys[-1], ys[0]),
+            "title": "Surface form: fitted gap less piston and tilt"}
 
 
 def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24, sectors: int = 12) -> np.ndarray | None:

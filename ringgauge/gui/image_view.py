@@ -231,8 +231,8 @@ class ImageView(QGraphicsView):
             return
         for i, (ang, label) in enumerate(ov.meridians):
             t = math.radians(ang)
-            # image y runs down: an angle counted anticlockwise on screen is -y
-            dx, dy = math.cos(t) * length, -math.sin(t) * length
+            # angles count from +x toward +y (image rows run down), as the form evaluation states them
+            dx, dy = math.cos(t) * length, math.sin(t) * length
             pen = _pen(PURPLE if i == 0 else YELLOW, 2.0, Qt.PenStyle.DashDotLine)
             line = QGraphicsLineItem(cx - dx, cy - dy, cx + dx, cy + dy)
             line.setPen(pen)

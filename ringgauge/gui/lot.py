@@ -26,18 +26,16 @@ def _num(v) -> float | None:
 
 
 def _form_value(d: dict, *names: str) -> tuple[float | None, str]:
-    """A form quantity (value, unit) by any of its likely names, e.g. power / sagitta."""
+    """A form term (value, unit) by its name in the form evaluation's dict, e.g. ``power_fringes``."""
     form = d.get("form") or {}
     if not isinstance(form, dict):
         return None, ""
-    stack = [form]
-    while stack:
-        cur = stack.pop()
-        for k, v in cur.items():
-            if isinstance(v, dict):
-                if k in names and "value" in v:
-                    return _num(v.get("value")), str(v.get("unit", ""))
-                stack.append(v)
+    for n in names:
+        v = form.get(n)
+        if isinstance(v, dict) and "value" in v:
+            return _num(v.get("value")), str(v.get("unit", ""))
+        if _num(v) is not None:
+            return _num(v), "fringes" if n.endswith("_fringes") else ""
     return None, ""
 
 
@@ -71,8 +69,8 @@ COLUMNS = (
 def summarise(result) -> dict:
     """The lot table's values from a result (via its ``to_dict()``)."""
     d = result.to_dict() if hasattr(result, "to_dict") else dict(result)
-    power, _ = _form_value(d, "power", "sagitta", "power_fringes")
-    irr, _ = _form_value(d, "irregularity", "irregularity_fringes")
+    power, _ = _form_value(d, "power_fringes")
+    irr, _ = _form_value(d, "irregularity_fringes")
     v = verdict_view(d)
     return {
         "radius_mm": _num(d.get("radius_mm")),

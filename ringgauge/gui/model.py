@@ -220,9 +220,15 @@ class Job:
     cancelled: bool = False
 
     def run(self, progress: ProgressFn | None = None):
-        def report(fraction: float, message: str) -> None:
+        last = [0.0]
+
+        def report(fraction, message=None) -> None:
             if self.cancelled:
                 raise _Cancelled()
+            if message is None and isinstance(fraction, str):
+                # a step that reports only a message (no fraction): keep the last fraction
+                fraction, message = last[0], fraction
+            last[0] = float(fraction)
             if progress is not None:
                 progress(float(fraction), str(message))
 

@@ -133,9 +133,11 @@ def test_folder_watch_reports_new_files_once_they_stop_growing(tmp_path):
 def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     f = load_frame(sample_dir / "lens-A01.png")
     setup = SetupState(source="sodium-d", pixel_size_um=16.0).to_bench_setup()
-    verdict = {"overall": "conditional pass", "terms": [{"term": "power", "status": "pass", "value": 1.2,
-                                                          "limit": 3, "unit": "fringes"}],
-               "decision_rule": "simple acceptance"}
+    # the verdict dict as the form evaluation writes it
+    verdict = {"overall": "conditional pass", "terms": [{"term": "power", "verdict": "conditional pass",
+                                                          "value_fringes": 2.9, "U_fringes": 0.2,
+                                                          "limit_fringes": 3.0}],
+               "decision_rule": "simple acceptance", "meaning": "within U of a limit"}
     d = hand_result(f, setup, 1234.5, verdict=verdict).to_dict()
     rows = {r.label: r for r in display.value_rows(d)}
     R = rows["Radius of curvature R"]
@@ -145,7 +147,8 @@ def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     assert rows["Wavelength λ"].unit == "nm" and rows["Pixel size x"].unit == "µm"
     v = display.verdict_view(d)
     assert (v.word, v.tone, v.decision_rule) == ("CONDITIONAL PASS", "conditional", "simple acceptance")
-    assert "power: pass (1.2 fringes against 3 fringes)" in v.terms
+    assert v.terms == ("power: CONDITIONAL PASS (2.9 ± 0.2 fringes, limit 3 fringes)",)
+    assert v.explanation == "within U of a limit"
     for overall, word in (("pass", "PASS"), ("fail", "FAIL"), ("conditional fail", "CONDITIONAL FAIL")):
         assert display.verdict_view({"verdict": {"overall": overall}}).word == word
     ov = display.overlay_from(d, {"aperture_px": (10, 20, 30)})
@@ -212,3 +215,18 @@ def test_csv_never_written_for_an_empty_lot(tmp_path):
     with pytest.raises(InputError, match="empty"):
         Lot().export_csv(tmp_path / "x.csv")
     assert not os.path.exists(tmp_path / "x.csv")
+
+
+def test_job_progress_takes_fraction_and_message_or_a_message_alone(sample_dir):
+    seen = []
+
+    def engine(frames, setup, *, progress=None):
+        progress(0.4, "fitting")
+        progress("a step without a fraction")
+        return "done"
+
+    s = BenchSession(engine)
+    s.open_paths([sample_dir / "lens-A01.png"])
+    job = s.make_job()
+    assert job.run(lambda f, m: seen.append((f, m))) == "done"
+    assert seen == [(0.4, "fitting"), (0.4, "a step without a fraction")]

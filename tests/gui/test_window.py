@@ -214,3 +214,41 @@ def test_keep_a_result_and_issue_its_certificate(app, qtbot, fake_engine, sample
     assert w.issue_certificate(str(tmp_path), target=store)
     qtbot.waitUntil(lambda: w.last_certificate is not None, timeout=60000)
     assert w.last_certificate.exists() and w.last_certificate.suffix == ".pdf"
+
+
+@pytest.mark.slow
+def test_real_form_evaluation_gives_a_verdict_that_follows_the_tolerance(app, qtbot, rg_home, tmp_path):
+    pytest.importorskip("ringgauge.form.evaluate")
+    import cv2
+
+    from ringgauge import synth
+
+    # a part with 2 fringes of power and 0.6 fringe of astigmatism at 30° on a test plate (synthetic truth)
+    s = synth.test_plate_fringes(synth.SurfaceForm(power=2.0, astig=0.6, astig_axis_deg=30.0),
+                                 aperture_diameter_mm=20.0, camera=synth.Camera(width=320, height=320, pixel_um=75.0),
+                                 source="mercury-e", rng=5)
+    cv2.imwrite(str(tmp_path / "part.png"), s.image)
+    setup = SetupState(source="mercury-e", pixel_size_um=75.0, pixel_size_u_um=0.1, tolerance="3/2(0.5)",
+                       test_diameter_mm=20.0)
+    w = make_window(qtbot, None, rg_home, setup)
+    w.open_paths([str(tmp_path / "part.png")])
+    done = lambda: (analysed(w)() or w.session.error is not None)  # noqa: E731
+    qtbot.waitUntil(done, timeout=180000)
+    assert w.session.error is None
+    form = w.session.result.form.to_dict()
+    # astigmatism after the best-fit sphere is irregularity: 0.6 fringe of it fails B = 0.5
+    assert w.bench.results.banner.word.text() == "FAIL" and w.bench.results.banner.tone == "fail"
+    assert "irregularity: FAIL" in w.bench.results.banner.explain.text()
+    assert "Decision rule: simple acceptance" in w.bench.results.banner.rule.text()
+    value, U, unit = w.bench.results.value_of("Power (A)")
+    assert unit == "fringes" and float(value) == pytest.approx(form["power_fringes"], abs=1e-3)
+    assert abs(form["power_fringes"] - 2.0) < 0.1 and abs(form["astigmatism_fringes"] - 0.6) < 0.1
+    assert w.bench.view.layer_item_count("aperture") == 1 and w.bench.view.layer_item_count("meridians") == 4
+    w.bench.plots.draw_all()
+    assert w.bench.plots.form.has_data
+    # a looser drawing tolerance: the verdict follows
+    panel = w.bench.setup_panel
+    panel.tolerance.setText("3/3(1)")
+    panel.tolerance.editingFinished.emit()
+    qtbot.waitUntil(lambda: done() and w.session.result.setup.tolerance == "3/3(1)", timeout=180000)
+    assert w.bench.results.banner.word.text() == "PASS"
