@@ -67,6 +67,10 @@ def register(sub) -> None:
     q.add_argument("--result", metavar="FILE.json", help="a new result (JSON from 'ringgauge analyze --json')")
     q.set_defaults(func=run_supersede)
 
+    q = rs.add_parser("check", help="check every record's checksum (finds records altered outside ringgauge)")
+    filters(q)
+    q.set_defaults(func=run_check, include_superseded=True)
+
     q = rs.add_parser("lots", help="list the lots in the store with their record counts")
     add_db_argument(q)
     q.set_defaults(func=run_lots)
@@ -232,6 +236,20 @@ def run_supersede(args) -> int:
     what = ", ".join(f"{k} = {v}" for k, v in changes.items()) + (", new result" if result is not None else "")
     print(f"record {new.id} supersedes record {args.record_id} ({what.strip(', ')}); reason: {args.reason}")
     return 0
+
+
+def run_check(args) -> int:
+    from ..records import RecordFilter
+
+    flt = _filter(args)
+    with open_from_args(args) as store:
+        recs = store.find(RecordFilter(**{**flt.__dict__, "include_superseded": True}))
+        where = store.where
+    bad = [r for r in recs if not r.intact()]
+    for r in bad:
+        print(f"record {r.id}: ALTERED — its stored content no longer matches the checksum written with it")
+    print(f"{len(recs)} record(s) checked in {where}: {len(recs) - len(bad)} intact, {len(bad)} altered")
+    return 1 if bad else 0
 
 
 def run_lots(args) -> int:

@@ -115,8 +115,13 @@ class InspectionRecord:
                         self.failure_reason, self.supersedes, self.supersede_reason)
 
     def intact(self) -> bool:
-        """True when the stored fields still give the checksum written with them."""
-        return sha256_text(canonical_json(self.content())) == self.content_sha256
+        """True when the stored fields still give the checksum written with them, and the searchable copies
+        of result fields (verdict, radius, power) still agree with the stored result."""
+        if sha256_text(canonical_json(self.content())) != self.content_sha256:
+            return False
+        cols = _columns(self.result, self.setup)
+        return all(cols[k] == getattr(self, k) for k in ("verdict", "radius_mm", "radius_U_mm", "power_fringes",
+                                                         "power_U_fringes"))
 
     def to_dict(self, *, with_result: bool = True) -> dict:
         d = {

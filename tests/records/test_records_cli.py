@@ -250,3 +250,18 @@ def test_batch_command_killed_and_resumed(tmp_path):
         assert [(r.id, r.image_sha256, r.content_sha256) for r in after[: len(before)]] == before
         assert len(after) == n and len({r.image_sha256 for r in after}) == n
         assert all(r.status == "ok" and r.intact() for r in after)
+
+
+def test_check_finds_altered_records(db, capsys):
+    import sqlite3
+
+    code, out, _ = run(capsys, "records", "check", "--db", db)
+    assert code == 0 and "3 intact, 0 altered" in out
+    con = sqlite3.connect(db)
+    con.execute("DROP TRIGGER inspection_no_update")  # someone editing the file by hand
+    con.execute("UPDATE inspection SET serial = '999' WHERE id = 2")
+    con.execute("UPDATE inspection SET verdict = 'fail' WHERE id = 3")  # only the searchable copy
+    con.commit()
+    con.close()
+    code, out, _ = run(capsys, "records", "check", "--db", db)
+    assert code == 1 and "record 2: ALTERED" in out and "record 3: ALTERED" in out and "1 intact, 2 altered" in out
