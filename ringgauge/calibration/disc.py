@@ -36,7 +36,7 @@ from scipy.optimize import least_squares
 
 from ..errors import CalibrationError, InputError
 from .grating import _as_frame, _image_info, _single_thread
-from .result import ScaleCalibration, assemble, derived, propagate
+from .result import ScaleCalibration, assemble, check_plausible, derived, propagate
 
 MIN_RADIUS_PX = 20.0
 MIN_RAYS = 48
@@ -148,6 +148,34 @@ def _fit_metric(points: np.ndarray, R_um: float, s0: float, centre0):
                         "residual_rms_um": math.sqrt(float(r @ r) / n), "neighbour_correlation": rho}
 
 
+def disc_edge_points(image, levels=(0.25, 0.5, 0.75)):
+    """Sub-pixel edge points of the disc in the image at the given fractions of the edge step.
+
+    Returns ``({level: (N, 2) array of (x, y) px}, info)``; info holds the polarity, the rough centre and
+    radius (px), the number of rays and the median edge step. Raises CalibrationError when no disc is found.
+    """
+    frame = _as_frame(image)
+    data = frame.data.astype(np.float64)
+    polarity, reg, mask = _find_blob(data)
+    cy0, cx0 = reg.centroid
+    r_eq = math.sqrt(reg.area / math.pi)
+    n_rays = int(np.clip(2 * math.pi * r_eq / 1.5, 90, 1440))
+    angles = np.linspace(0, 2 * math.pi, n_rays, endpoint=False)
+    # boundary of the region along each ray
+    radii = np.arange(0.0, 2.0 * r_eq, 0.5)
+    xs = cx0 + radii[None, :] * np.cos(angles)[:, None]
+    ys = cy0 + radii[None, :] * np.sin(angles)[:, None]
+    inside = ndimage.map_coordinates(mask.astype(np.float64), [ys.ravel(), xs.ravel()], order=0,
+                                     mode="constant").reshape(xs.shape) > 0.5
+    first_out = np.argmin(inside, axis=1)
+    r_init = radii[np.where(first_out == 0, radii.size - 1, first_out)] - 0.25
+    coeffs = ndimage.spline_filter(data, order=3)
+    pts, step, _ = _edge_points(data, coeffs, (cx0, cy0), r_init, angles, levels)
+    info = {"polarity": polarity, "centre_px": (float(cx0), float(cy0)), "radius_px": r_eq, "rays": n_rays,
+            "edge_step": step}
+    return {q: v[0] for q, v in pts.items()}, info
+
+
 @_single_thread
 def measure_disc(image, diameter_mm: float, diameter_u_mm: float | None = None, *,
                  target_id: str | None = None) -> ScaleCalibration:
@@ -180,32 +208,15 @@ def measure_disc(image, diameter_mm: float, diameter_u_mm: float | None = None, 
     if not math.isfinite(uD) or uD < 0 or uD > 0.05 * D:
         raise InputError(f"diameter uncertainty must be between 0 and 5 % of the diameter, got {diameter_u_mm} mm")
     frame = _as_frame(image)
-    data = frame.data.astype(np.float64)
-    polarity, reg, mask = _find_blob(data)
-    cy0, cx0 = reg.centroid
-    r_eq = math.sqrt(reg.area / math.pi)
-    n_rays = int(np.clip(2 * math.pi * r_eq / 1.5, 90, 1440))
-    angles = np.linspace(0, 2 * math.pi, n_rays, endpoint=False)
-    # boundary of the region along each ray
-    radii = np.arange(0.0, 2.0 * r_eq, 0.5)
-    xs = cx0 + radii[None, :] * np.cos(angles)[:, None]
-    ys = cy0 + radii[None, :] * np.sin(angles)[:, None]
-    inside = ndimage.map_coordinates(mask.astype(np.float64), [ys.ravel(), xs.ravel()], order=0,
-                                     mode="constant").reshape(xs.shape) > 0.5
-    first_out = np.argmin(inside, axis=1)
-    r_init = radii[np.where(first_out == 0, radii.size - 1, first_out)] - 0.25
-    coeffs = ndimage.spline_filter(data, order=3)
-    pts, step, nrays_good = _edge_points(data, coeffs, (cx0, cy0), r_init, angles)
-    if pts[0.5][0].shape[0] < MIN_RAYS:
-        raise CalibrationError(
-            f"only {pts[0.5][0].shape[0]} edge points found around the disc; the edge must be sharp and show "
-            "clear contrast all round"
-        )
+    pts, found = disc_edge_points(frame)
+    polarity, (cx0, cy0), r_eq, n_rays, step = (found[k] for k in ("polarity", "centre_px", "radius_px", "rays",
+                                                                     "edge_step"))
     R_um = D * 1000.0 / 2.0
     s0 = R_um / r_eq
-    p50, cov, info = _fit_metric(pts[0.5][0], R_um, s0, (cx0, cy0))
-    p25, _, _ = _fit_metric(pts[0.25][0], R_um, s0, (cx0, cy0))
-    p75, _, _ = _fit_metric(pts[0.75][0], R_um, s0, (cx0, cy0))
+    check_plausible(s0, f"the disc diameter ({D:g} mm)")
+    p50, cov, info = _fit_metric(pts[0.5], R_um, s0, (cx0, cy0))
+    p25, _, _ = _fit_metric(pts[0.25], R_um, s0, (cx0, cy0))
+    p75, _, _ = _fit_metric(pts[0.75], R_um, s0, (cx0, cy0))
     G = p50[2:]
     fit_u = propagate(lambda g: derived(g), G, cov[2:, 2:])
     sx = math.sqrt(G[0])
@@ -214,7 +225,7 @@ def measure_disc(image, diameter_mm: float, diameter_u_mm: float | None = None, 
         warnings.append(
             f"the disc edge is ragged (residual {rms_px:.2f} px rms): dust, a chipped edge or a poor focus"
         )
-    coverage = pts[0.5][0].shape[0] / n_rays
+    coverage = pts[0.5].shape[0] / n_rays
     if coverage < 0.8:
         warnings.append(f"an edge was found on only {100 * coverage:.0f} % of the rays around the disc")
     details = {
