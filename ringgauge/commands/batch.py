@@ -70,7 +70,7 @@ def run(args) -> int:
         print(f"lot {meta.lot}: {len(images)} image(s) in {args.folder}; records store {store.where}", file=sys.stderr)
         run_ = run_lot(store, images, setup, meta, workers=args.workers, retry_failed=args.retry_failed,
                        progress=not args.quiet, warnings=warnings)
-        records = store.find(RecordFilter(lot=meta.lot))
+        records = store.find(RecordFilter(lot=meta.lot), with_result=False)
         limits = power_limits_from_tolerance(setup.tolerance)
         radius_limits = tuple(args.radius_limits) if args.radius_limits else None
         summary = summarise_lot(records, meta.lot, power_limits=limits, radius_limits=radius_limits)

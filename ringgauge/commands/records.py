@@ -101,7 +101,7 @@ def _verdict(r) -> str:
 
 def run_list(args) -> int:
     with open_from_args(args) as store:
-        recs = store.find(_filter(args))
+        recs = store.find(_filter(args), with_result=False)
     if args.json:
         json.dump([r.to_dict(with_result=False) for r in recs], sys.stdout, indent=2, ensure_ascii=False)
         sys.stdout.write("\n")

@@ -103,6 +103,8 @@ class InspectionRecord:
     supersede_reason: str | None
     content_sha256: str
     superseded_by: int | None = None
+    #: False when read without the full result (listings): ``result`` is then None even for a good record
+    has_result: bool = True
 
     @property
     def current(self) -> bool:
@@ -117,6 +119,8 @@ class InspectionRecord:
     def intact(self) -> bool:
         """True when the stored fields still give the checksum written with them, and the searchable copies
         of result fields (verdict, radius, power) still agree with the stored result."""
+        if not self.has_result:
+            raise ValueError("read the record with its result (find(..., with_result=True)) to check it")
         if sha256_text(canonical_json(self.content())) != self.content_sha256:
             return False
         cols = _columns(self.result, self.setup)
@@ -602,7 +606,9 @@ class Store:
             chain.append(self.get(chain[-1].superseded_by))
         return chain
 
-    def find(self, flt: RecordFilter = RecordFilter()) -> list[InspectionRecord]:
+    def find(self, flt: RecordFilter = RecordFilter(), *, with_result: bool = True) -> list[InspectionRecord]:
+        """Records matching ``flt``, oldest first. ``with_result=False`` leaves the (large) result JSON unread:
+        listings of thousands of records stay fast."""
         where, params = [], []
         for col in ("lot", "part", "operator", "verdict", "status", "serial", "image_sha256"):
             v = getattr(flt, col)
@@ -617,18 +623,18 @@ class Store:
             params.append(_iso_bound(flt.until, end=True))
         if not flt.include_superseded:
             where.append(_CURRENT)
-        sql = f"SELECT {_SELECT} FROM inspection i"
+        sql = f"SELECT {_SELECT if with_result else _SELECT_LIGHT} FROM inspection i"
         if where:
             sql += " WHERE " + " AND ".join(where)
         sql += " ORDER BY i.id"
         if flt.limit:
             sql += f" LIMIT {int(flt.limit)}"
-        return [_record(r) for r in self._read(sql, params)]
+        return [_record(r, with_result) for r in self._read(sql, params)]
 
     def done_in_lot(self, lot: str) -> dict[str, InspectionRecord]:
         """Current records of a lot by image checksum (what a resumed batch must not repeat)."""
         out: dict[str, InspectionRecord] = {}
-        for r in self.find(RecordFilter(lot=lot)):
+        for r in self.find(RecordFilter(lot=lot), with_result=False):
             if r.image_sha256:
                 out[r.image_sha256] = r
         return out
@@ -697,7 +703,10 @@ _SELECT = ", ".join(f"i.{c}" for c in _SELECT_COLS) + \
     ", (SELECT s.id FROM inspection s WHERE s.supersedes = i.id) AS superseded_by"
 
 
-def _record(row) -> InspectionRecord:
+_SELECT_LIGHT = _SELECT.replace("i.result_json", "NULL")
+
+
+def _record(row, with_result: bool = True) -> InspectionRecord:
     d = dict(zip(_SELECT_COLS + ("superseded_by",), row))
     meta = RecordMeta(**{k: d[k] for k in META_FIELDS}, temperature_c=d["temperature_c"], notes=d["notes"])
     return InspectionRecord(
@@ -712,6 +721,7 @@ def _record(row) -> InspectionRecord:
         supersedes=None if d["supersedes"] is None else int(d["supersedes"]),
         supersede_reason=d["supersede_reason"], content_sha256=d["content_sha256"],
         superseded_by=None if d["superseded_by"] is None else int(d["superseded_by"]),
+        has_result=with_result,
     )
 
 

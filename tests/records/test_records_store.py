@@ -175,3 +175,13 @@ def test_default_store_lives_in_ringgauge_home(tmp_path, monkeypatch, make_resul
     with open_store() as s:
         s.add(RecordMeta(), make_result())
     assert (tmp_path / "h" / "records.sqlite").exists()
+
+
+def test_light_listing_leaves_the_result_unread(store, make_result):
+    store.add(RecordMeta(lot="L"), make_result("1"))
+    (light,) = store.find(RecordFilter(lot="L"), with_result=False)
+    (full,) = store.find(RecordFilter(lot="L"))
+    assert light.result is None and not light.has_result and full.result is not None
+    assert (light.verdict, light.radius_mm, light.setup) == (full.verdict, full.radius_mm, full.setup)
+    with pytest.raises(ValueError, match="with its result"):
+        light.intact()
