@@ -93,14 +93,42 @@ def main() -> int:
     win.open_paths([str(lot / "KL2611-009.png")])
     shot("bench-bad-file.png")
 
-    # 4. the lot review
+    # 4. form against a test plate: a frame pair (gap grown by λ/8 in the second) gives the sign
+    from ringgauge.form import plates
+
+    plates.add_plate({"id": "TP-KL-07", "radius_mm": 51.68, "kind": "concave", "radius_u_mm": 0.002,
+                      "calibrated": "2026-05-12", "note": "bench 2 set"})
+    part = Path(home) / "part-KL2611-041"
+    part.mkdir()
+    for i, step in enumerate((0.0, 0.25)):
+        form = synth.SurfaceForm(power=1.7, astig=0.35, astig_axis_deg=25.0, zonal=0.1, piston=0.3 + step)
+        img = synth.test_plate_fringes(form, aperture_diameter_mm=20.0, source="mercury-e",
+                                       camera=synth.Camera(width=640, height=560, pixel_um=40.0), rng=41)
+        cv2.imwrite(str(part / f"frame-{'AB'[i]}.png"), img.image)
+    win.session.replace_setup(SetupState(source="mercury-e", pixel_size_um=40.0, pixel_size_u_um=0.05,
+                                         operator="J.V.", test_plate="TP-KL-07", tolerance="3/2(0.5)",
+                                         test_diameter_mm=20.0))
+    win.bench.setup_panel.reload_lists()
+    win.bench.setup_panel.refresh()
+    win.open_paths([str(part / "frame-A.png"), str(part / "frame-B.png")])
+    pump(300, lambda: win.session.result is not None or win.session.error is not None)
+    if win.session.error:
+        print("form analysis failed:", win.session.error)
+    win.bench.plots.setCurrentIndex(2)
+    win.bench.view.fit()
+    shot("bench-form-verdict.png")
+    win.bench.plots.setCurrentIndex(0)
+
+    # 5. the lot review (lenses on the optical flat again)
+    win.session.replace_setup(SetupState(source="sodium-d", pixel_size_um=9.8, pixel_size_u_um=0.01,
+                                         operator="J.V."))
     win.tabs.setCurrentWidget(win.lot)
     win.lot.open_folder(str(lot))
     pump(600, lambda: not win.lot.running)
     win.lot.select_row(2)
     shot("lot-review.png")
 
-    # 5. training: an exercise, a reading and its score
+    # 6. training: an exercise, a reading and its score
     win.tabs.setCurrentWidget(win.training)
     tp = win.training
     tp.trainee.setText("New starter 1")
@@ -116,7 +144,7 @@ def main() -> int:
     tp.score_reading()
     shot("training-scored.png")
 
-    # 6. help with the bench safety cautions
+    # 7. help with the bench safety cautions
     win.tabs.setCurrentWidget(win.bench)
     win.show_help()
     shot("help-safety.png")

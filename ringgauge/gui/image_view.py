@@ -240,7 +240,7 @@ class ImageView(QGraphicsView):
             txt = QGraphicsSimpleTextItem(label)
             txt.setBrush(QBrush(pen.color()))
             txt.setFlag(QGraphicsSimpleTextItem.GraphicsItemFlag.ItemIgnoresTransformations)
-            txt.setPos(cx + dx, cy + dy)
+            txt.setPos(cx + 0.55 * dx, cy + 0.55 * dy)
             g.addToGroup(txt)
 
     def _draw_centre(self, g, ov: Overlay) -> None:

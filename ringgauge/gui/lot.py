@@ -12,7 +12,7 @@ from typing import Any
 from ..errors import InputError, RinggaugeError
 from ..imaging import load_frame
 from .display import verdict_view
-from .model import Signal, image_files
+from .model import Signal, image_files, progress_adapter
 
 QUEUED, RUNNING, DONE, FAILED = "queued", "analysing", "done", "failed"
 
@@ -155,7 +155,7 @@ class Lot:
     def analyse_one(path: str, setup, analyse, progress=None):
         """What a worker runs for one row: load the frame and analyse it."""
         frame = load_frame(path)
-        return analyse([frame], setup, progress=progress)
+        return analyse([frame], setup, progress=progress_adapter(progress))
 
     def export_csv(self, target: str | os.PathLike) -> int:
         """Write every row to a CSV file (units in the headers); returns the number of rows written."""

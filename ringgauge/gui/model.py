@@ -208,6 +208,24 @@ class _Cancelled(Exception):
     pass
 
 
+def progress_adapter(progress: ProgressFn | None, cancelled: Callable[[], bool] | None = None):
+    """The callback handed to the engine: ``report(fraction, message)``, or ``report(message)`` from a step
+    that knows no fraction (the last fraction is kept). Raises the private cancel exception once
+    ``cancelled()`` turns true, so outdated work stops at its next report."""
+    last = [0.0]
+
+    def report(fraction, message=None) -> None:
+        if cancelled is not None and cancelled():
+            raise _Cancelled()
+        if message is None and isinstance(fraction, str):
+            fraction, message = last[0], fraction
+        last[0] = float(fraction)
+        if progress is not None:
+            progress(float(fraction), str(message))
+
+    return report
+
+
 @dataclass
 class Job:
     """A snapshot of one analysis: run it anywhere, hand the outcome back to the session."""
@@ -220,19 +238,8 @@ class Job:
     cancelled: bool = False
 
     def run(self, progress: ProgressFn | None = None):
-        last = [0.0]
-
-        def report(fraction, message=None) -> None:
-            if self.cancelled:
-                raise _Cancelled()
-            if message is None and isinstance(fraction, str):
-                # a step that reports only a message (no fraction): keep the last fraction
-                fraction, message = last[0], fraction
-            last[0] = float(fraction)
-            if progress is not None:
-                progress(float(fraction), str(message))
-
-        return self.analyse(list(self.frames), self.setup, progress=report)
+        return self.analyse(list(self.frames), self.setup,
+                            progress=progress_adapter(progress, lambda: self.cancelled))
 
 
 def default_analyse() -> AnalyseFn:

@@ -48,6 +48,7 @@ class VerdictBanner(QFrame):
         self.explain.setWordWrap(True)
         self.rule = QLabel()
         self.rule.setWordWrap(True)
+        self.rule.setObjectName("verdictRule")
         text.addWidget(self.word)
         text.addWidget(self.explain)
         text.addWidget(self.rule)
@@ -62,7 +63,8 @@ class VerdictBanner(QFrame):
         bg, fg = TONES[tone]
         self.setStyleSheet(f"#verdictBanner {{ background: {bg}; border-radius: 6px; }}"
                            f"#verdictBanner QLabel {{ color: {fg}; background: transparent; }}"
-                           "#verdictBanner QLabel#verdictWord { font-size: 22pt; font-weight: bold; }")
+                           "#verdictBanner QLabel#verdictWord { font-size: 22pt; font-weight: bold; }"
+                           "#verdictBanner QLabel#verdictRule { font-size: 9pt; }")
 
     def show_verdict(self, v: VerdictView) -> None:
         self.symbol.setText(v.symbol)

@@ -300,5 +300,5 @@ def _with_count_line(grey, ex: Exercise):
     cx, cy, r = ex.aperture_px
     y = int(round(cy))
     x0, x1 = int(round(cx)), int(round(cx + r))
-    rgb[y, x0:x1 + 1] = (86, 180, 233)
+    rgb[y - 1:y + 1, x0:x1 + 1] = (86, 180, 233)
     return np.ascontiguousarray(rgb)

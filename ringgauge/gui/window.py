@@ -116,7 +116,7 @@ class BenchPage(QWidget):
         right = QSplitter(Qt.Orientation.Vertical)
         right.addWidget(self.results)
         right.addWidget(self.plots)
-        right.setSizes([400, 330])
+        right.setSizes([480, 260])
         self.split = QSplitter(Qt.Orientation.Horizontal)
         self.split.addWidget(scroll)
         self.split.addWidget(middle)

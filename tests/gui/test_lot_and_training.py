@@ -221,3 +221,17 @@ def test_lot_is_kept_in_the_records_and_certified(lot_page, qtbot, sample_dir, t
     names = sorted(p.name for p in out.iterdir())
     assert len(names) == 3  # two measured lenses and the lot report; failed images get no certificate
     assert all(n.endswith(".pdf") for n in names) and "Wrote 3 PDF files" in page.message.text()
+
+
+def test_lot_rows_accept_an_engine_that_reports_messages_only(app, qtbot, sample_dir):
+    from gui_helpers import hand_result
+
+    def engine(frames, setup, *, progress=None):
+        progress("a step without a fraction")
+        return hand_result(frames[0], setup, 777.0)
+
+    page = LotPage(BenchSession(engine, SetupState(source="sodium-d", pixel_size_um=16.0)))
+    qtbot.addWidget(page)
+    page.open_folder(str(sample_dir))
+    qtbot.waitUntil(lambda: not page.running, timeout=20000)
+    assert [r.status for r in page.lot.rows] == [DONE, DONE]
