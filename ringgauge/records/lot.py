@@ -120,7 +120,7 @@ def capability(values: Iterable, lsl: float | None, usl: float | None, *, quanti
         raise InputError("process capability needs at least two measured values")
     mean = float(a.mean())
     sd = float(np.std(a, ddof=1))
-    if sd == 0:
+    if sd <= 1e-12 * max(1.0, abs(mean)):  # identical values (up to rounding in the mean)
         raise InputError(f"all {a.size} values of {quantity} are identical; capability is undefined")
     return capability_from(mean, sd, lsl, usl, n=int(a.size), quantity=quantity, unit=unit)
 

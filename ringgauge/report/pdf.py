@@ -308,7 +308,7 @@ def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
 
     caps = [{"quantity": c["quantity"], "limits": f"{_fmt(c['lsl'])} to {_fmt(c['usl'])} {c['unit']}",
              "n": str(c["n"]), "mean": f"{c['mean']:.4g} {c['unit']}", "s": f"{c['sd']:.3g} {c['unit']}",
-             "Cp": "—" if c["cp"] is None else f"{c['cp']:.2f}", "Cpk": f"{c['cpk']:.2f}"}
+             "Cp": "—" if c["cp"] is None else _index(c["cp"]), "Cpk": _index(c["cpk"])}
             for c in s["capability"]]
     first = min((r.created_utc for r in records), default="")
     last = max((r.created_utc for r in records), default="")
@@ -341,6 +341,11 @@ def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
         "approver": approver or shop.get("approver") or "",
         "record_checksums": _canonical_digest([r.content_sha256 for r in sorted(records, key=lambda r: r.id)]),
     }
+
+
+def _index(x: float) -> str:
+    """A capability index: two decimals, or three significant digits when very large."""
+    return f"{x:.2f}" if abs(x) < 100 else f"{x:.3g}"
 
 
 def _pm(value, U) -> str:

@@ -55,6 +55,7 @@ def test_one_sided_specification_has_only_cpk():
     ([1, 2], 3, 1, "must be above"),
     ([1], 0, 3, "at least two"),
     ([2, 2, 2], 0, 3, "identical"),
+    ([1000.2299999999999] * 999 + [1000.23], 990, 1010, "identical"),
 ])
 def test_capability_bad_input(vals, lsl, usl, msg):
     with pytest.raises(InputError, match=msg):
