@@ -114,3 +114,25 @@ def test_bench_add_list_show_edit_remove(capsys, home):
     assert len(P.get("Bench 5").history) == 1
     assert main(["bench", "remove", "Bench 5"]) == 0
     assert P.names() == []
+
+
+def test_analyze_with_a_calibrated_bench_names_it_and_uses_both_scales(tmp_path, capsys):
+    # one camera set-up (anisotropic pixels) photographs a grid, then a lens on a flat
+    from ringgauge.synth import newton_rings
+
+    cam = Camera(width=412, height=400, pixel_um=5.0, pixel_y_um=5.15, blur_px=0.8)
+    save_png(tmp_path / "grid.png", T.crossed_grid(100.0, angle_deg=7.0, camera=cam, rng=1).image01)
+    rings = newton_rings(150.0, camera=cam, source="sodium-d", rng=4)
+    save_png(tmp_path / "rings.png", rings.image01)
+    assert main(["calibrate", str(tmp_path / "grid.png"), "--grating-pitch", "100", "--pitch-u", "0.01",
+                 "--bench", "B5", "--source", "sodium-d"]) == 0
+    capsys.readouterr()
+    assert main(["analyze", str(tmp_path / "rings.png"), "--bench", "B5", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    prof = P.get("B5")
+    assert doc["setup"]["bench"] == "B5" and doc["setup"]["bench_calibrated"] == prof.calibrated
+    assert doc["setup"]["pixel_size_um"] == pytest.approx([prof.calibration["scale_x_um"],
+                                                           prof.calibration["scale_y_um"]])
+    assert doc["setup"]["source"]["key"] == "sodium-d"
+    assert abs(doc["radius_mm"] - 150.0) < doc["radius_U_mm"]  # truth from the generator
+    assert any("both scales are used" in w for w in doc["warnings"])
