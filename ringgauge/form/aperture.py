@@ -189,7 +189,7 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = 72
     # keep rays that meet a clear bright step (a dark fringe at the edge gives none) and place the point at
     # half height between the surround and the level just inside, which is symmetric under blur
     n = ds.size
-    step_in = 16  # 4 px inward
+    step_in = 8  # 2 px inward
     jj = np.clip(first - step_in, 0, n - 1)
     idx = np.nonzero(good & (first + step_in < n) & ok[np.arange(len(first)), jj])[0]
     level = prof[idx, first[idx] + step_in]

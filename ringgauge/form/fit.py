@@ -407,12 +407,61 @@ def fit_gap(
     )
 
 
-def _refine(prob: _Problem, p0, nw, max_nfev: int = 100):
-    """Joint least squares of all terms from the start vector ``p0`` (see :class:`_Problem`)."""
-    res = optimize.least_squares(
-        prob.full_residual, p0, jac=prob.full_jac, args=(nw,), method="lm", x_scale="jac", max_nfev=max_nfev
-    )
-    return res
+@dataclass
+class _LMResult:
+    x: np.ndarray
+    fun: np.ndarray
+    jac: np.ndarray
+    success: bool
+    message: str
+
+
+def _refine(prob: _Problem, p0, nw, max_nfev: int = 100) -> _LMResult:
+    """Joint least squares of all terms from the start vector ``p0`` (see :class:`_Problem`).
+
+    Levenberg-Marquardt with Marquardt's diagonal scaling, solved through the normal equations (the
+    Jacobian has a few dozen columns and tens of thousands of rows; BLAS makes J^T J cheap).
+    """
+    p = np.asarray(p0, dtype=float).copy()
+    r = prob.full_residual(p, nw)
+    cost = float(r @ r)
+    lam = 1e-3
+    J = prob.full_jac(p, nw)
+    nfev = 1
+    success, message = False, "iteration limit reached"
+    while nfev < max_nfev:
+        A = J.T @ J
+        g = J.T @ r
+        d = np.diag(A).copy()
+        d[d <= 0] = 1.0
+        improved = False
+        while nfev < max_nfev:
+            try:
+                step = np.linalg.solve(A + lam * np.diag(d), -g)
+            except np.linalg.LinAlgError:
+                lam *= 10
+                continue
+            p_new = p + step
+            r_new = prob.full_residual(p_new, nw)
+            nfev += 1
+            c_new = float(r_new @ r_new)
+            if c_new < cost:
+                rel = (cost - c_new) / max(cost, 1e-300)
+                p, r, cost = p_new, r_new, c_new
+                lam = max(lam / 5, 1e-9)
+                improved = True
+                break
+            lam *= 8
+            if lam > 1e10:
+                break
+        if not improved:
+            success, message = True, "no further decrease of the sum of squares"
+            break
+        J = prob.full_jac(p, nw)
+        if rel < 1e-10 or np.max(np.abs(step[:nw])) < 1e-7:
+            success, message = True, "converged (relative decrease below 1e-10 or step below 1e-7 fringe)"
+            break
+    return _LMResult(p, r, J, success, message)
 
 
 def _cost(res) -> float:
