@@ -20,12 +20,15 @@ from .imaging import Frame, load_frame
 from .result import AnalysisResult, ImageInfo
 from .rings.centre import gradient_centre
 from .rings.profile import dominant_period, s_profile
+from .rings.sectors import sector_scatter
 from .uncertainty import BudgetRow, make_budget
 
 Progress = Callable[[float, str], None]
 
 #: finest fringe period (pixels) still used: below it fringes are under-sampled and blur wipes them out
 MIN_PERIOD_PX = 3.0
+#: frame-edge band left out of the fits, pixels
+BORDER_PX = 3
 #: fewest rings for a radius
 MIN_RINGS = 4
 
@@ -109,6 +112,12 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     lam_px_over_n = lam_mm / px_mm / n
 
     valid = data < (1.0 - 0.5 / ((1 << frame.bit_depth) - 1))
+    # a thin band along the frame edge is left out: filtering and demosaicing in cameras (and blur in simulated
+    # images) are unreliable there
+    b = BORDER_PX if min(h, w) > 20 * BORDER_PX else 0
+    if b:
+        valid[:b, :] = valid[-b:, :] = False
+        valid[:, :b] = valid[:, -b:] = False
     if frame.saturated_fraction > 0.001:
         warnings.append(
             f"{100 * frame.saturated_fraction:.1f} % of pixels are saturated (left out); reduce exposure or lamp power"
@@ -186,10 +195,34 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         )
     if len(used) < 6:
         warnings.append(f"only {len(used)} rings used: the radius rests on few fringes")
-    R = n * fit.slope_mm2 / lam_mm
+    R_raw = n * fit.slope_mm2 / lam_mm
+    blur = estimate_blur(extrema, period_s, setup.fringe_kind)
+    # Blur (defocus, pixel integration) of a ring pattern with phase q s scales its apparent phase rate by
+    # 1 / (1 + a^2), a = 2 q sigma^2, so rings look slightly wider apart: R appears (1 + a^2) too long. sigma comes
+    # from the fall of fringe contrast with fringe frequency, which other causes (band width, stray light) also
+    # produce, so a^2 is an upper bound: correct by half of it and carry the other half as a rectangular term.
+    a2 = (2 * (2 * math.pi / period_s) * blur**2) ** 2
+    R = R_raw * (1 - a2 / 2)
+
+    progress(0.8, "repeating the fit in angular sectors")
+    sectors = sector_scatter(
+        data, centre, aspect=aspect, period_s=period_s, phase0=ff.phase0, s_min=s_min, s_max=r_lim**2, valid=valid,
+        kind=setup.fringe_kind, px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
+    )
+    if sectors is not None and sectors.ellipticity > max(3 * sectors.ellipticity_u, 0.002):
+        warnings.append(
+            f"the rings are elliptical: r² differs by {100 * sectors.ellipticity:.2f} % between the long axis "
+            f"({sectors.axis_deg:.0f}° from +x toward +y) and the short axis; astigmatism of the surface or unequal "
+            "pixel scales in x and y (calibrate both)"
+        )
 
     progress(0.9, "uncertainty budget")
-    budget = radius_budget(R, fit, setup, R_ff)
+    budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), sectors, blur_rel=a2 / 2, blur_px=blur)
+    if any(r.quantity.startswith("method agreement") for r in budget.rows):
+        warnings.append(
+            f"the ring fit (R = {R:.6g} mm) and the full-field fit (R = {R_ff:.6g} mm) disagree beyond their "
+            "statistical uncertainty; the difference is carried in the budget — check the image for distortion"
+        )
     if setup.pixel_size_u_um == 0:
         warnings.append(
             "pixel size given without uncertainty: the budget treats it as exact, yet it enters R squared; give "
@@ -198,7 +231,9 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     prof_dict = _profile_for_display(prof, px_mm)
     fullfield = {
         "method": "joint least-squares fit of the ring model to all pixels (variable projection)",
-        "radius_mm": R_ff,
+        "radius_mm": R_ff * (1 - a2 / 2),
+        "blur_sigma_px": blur,
+        "blur_correction_ppm": 1e6 * a2 / 2,
         "centre_px": [ff.x0, ff.y0],
         "centre_u_px": [float(cu[0]), float(cu[1])],
         "period_px2_per_fringe": period_s,
@@ -213,6 +248,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         **prof_dict,
         "extrema_r_px": [float(math.sqrt(e.s)) for e in extrema],
         "extrema_kind": [e.kind for e in extrema],
+        "sectors": None if sectors is None else sectors.to_dict(),
     }
     progress(1.0, "done")
     return AnalysisResult(
@@ -233,16 +269,42 @@ def _profile_for_display(prof, px_mm: float, max_points: int = 1500) -> dict:
     }
 
 
-def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float):
-    """GUM budget for R = n * slope / lambda, slope of r^2 (mm^2) against fringe order."""
+def estimate_blur(extrema, period_s: float, kind: str) -> float:
+    """Gaussian blur sigma (px) from the fall of ring contrast with local fringe frequency f = 2 r / P_s.
+
+    ln(contrast) = c0 - 2 pi^2 sigma^2 f^2 (the Gaussian MTF) fitted over the rings; 0 when contrast does not fall.
+    """
+    e = [x for x in extrema if x.kind == kind and x.contrast > 0]
+    if len(e) < 4:
+        return 0.0
+    f2 = np.array([4 * x.s / period_s**2 for x in e])
+    y = np.log(np.array([x.contrast for x in e]))
+    if np.ptp(f2) <= 0:
+        return 0.0
+    slope = np.polyfit(f2, y, 1)[0]
+    return float(math.sqrt(-slope / (2 * math.pi**2))) if slope < 0 else 0.0
+
+
+def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *, blur_rel=0.0, blur_px=0.0):
+    """GUM budget for R = n * slope / lambda, slope of r^2 (mm^2) against fringe order.
+
+    The Type A row takes the larger of the least-squares standard error of the slope and the standard error of
+    the mean of the sector slopes (which also sees illumination, dust and centre effects that vary around the
+    rings). The full-field estimate of R is a cross-check: when it disagrees with the ring fit by more than three
+    Type A uncertainties the difference enters the budget as a rectangular term.
+    """
     lam = setup.wavelength_nm
     n = setup.medium_index
     (px, py), (ux, uy) = setup.pixel_size_xy_um, setup.pixel_size_xy_u_um
+    c_slope = n / (lam * 1e-6) * (R / (n * fit.slope_mm2 / (lam * 1e-6)))
+    u_slope, dof, note = fit.slope_u_mm2, max(1, fit.ndata - 2), f"{fit.ndata} rings, reduced chi-square {fit.redchi:.2f}"
+    if sectors is not None and sectors.u_mean_slope_mm2 > u_slope:
+        u_slope, dof = sectors.u_mean_slope_mm2, sectors.dof
+        note = f"scatter of {sectors.n_sectors} sector fits (larger than the single-fit error, {note})"
     rows = [
         BudgetRow(
-            "slope of r² vs order (least squares)", fit.slope_mm2, "mm²/fringe", fit.slope_u_mm2, "normal (Type A)",
-            1.0, n / (lam * 1e-6), "1/mm", abs(n / (lam * 1e-6)) * fit.slope_u_mm2, dof=max(1, fit.ndata - 2),
-            note=f"{fit.ndata} rings, reduced chi-square {fit.redchi:.2f}",
+            "slope of r² vs order (ring positions)", fit.slope_mm2, "mm²/fringe", u_slope, "normal (Type A)", 1.0,
+            c_slope, "1/mm", c_slope * u_slope, dof=dof, note=note,
         ),
     ]
     if setup.pixel_size_y_um is None:
@@ -269,12 +331,21 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float):
             R / n * setup.medium_index_u,
         )
     )
-    half = abs(R - R_ff)
-    rows.append(
-        BudgetRow(
-            "method agreement (ring fit vs full-field fit)", R_ff, "mm", half / math.sqrt(3.0), "rectangular",
-            math.sqrt(3.0), 1.0, "", half / math.sqrt(3.0),
-            note="half-width = difference between the two estimates of R from the same image",
+    if blur_rel > 0:
+        rows.append(
+            BudgetRow(
+                "image blur (defocus) correction", -blur_rel, "relative", blur_rel / math.sqrt(3.0), "rectangular",
+                math.sqrt(3.0), R, "mm", R * blur_rel / math.sqrt(3.0),
+                note=f"blur sigma ≈ {blur_px:.2f} px from the contrast fall-off; R corrected by {1e6 * blur_rel:.1f} ppm",
+            )
         )
-    )
+    half = abs(R - R_ff)
+    if half > 3 * c_slope * u_slope:
+        rows.append(
+            BudgetRow(
+                "method agreement (ring fit vs full-field fit)", R_ff, "mm", half / math.sqrt(3.0), "rectangular",
+                math.sqrt(3.0), 1.0, "", half / math.sqrt(3.0),
+                note="half-width = difference between the two estimates of R from the same image",
+            )
+        )
     return make_budget("radius of curvature R", "mm", R, rows)

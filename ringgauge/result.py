@@ -61,7 +61,7 @@ class RingFit:
     """Weighted least squares of r^2 against fringe order: r^2 = slope * m + intercept.
 
     Covariance is scaled by the reduced chi-square (as lmfit does), so the slope's standard error reflects the
-    scatter actually seen; when chi-square is below 1 the unscaled (a priori) covariance is kept instead.
+    scatter actually seen; with fewer than 5 degrees of freedom it is only ever scaled up.
     """
 
     slope_mm2: float
@@ -89,7 +89,7 @@ class RingFit:
             "intercept_u_mm2": _f(self.intercept_u_mm2),
             "contact_offset_fringes": _f(self.intercept_fringes),
             "covariance": None if self.covariance is None else [[_f(v) for v in row] for row in self.covariance],
-            "covariance_scaling": "reduced chi-square (when > 1)",
+            "covariance_scaling": "reduced chi-square (never scaled down with fewer than 5 degrees of freedom)",
             "chisqr": _f(self.chisqr),
             "redchi": _f(self.redchi),
             "ndata": self.ndata,

@@ -20,6 +20,9 @@ from ..result import Ring, RingFit
 from ..rings.profile import SProfile
 
 
+LOCAL_TERMS = ("harmonic",)
+
+
 @dataclass(frozen=True)
 class Extremum:
     s: float  # px^2
@@ -34,68 +37,86 @@ def locate_extrema(prof: SProfile, period_s: float, phase0: float, *, s_min: flo
     """Locate dark and bright rings in an s-profile by local sinusoid fits one period wide.
 
     Around each predicted extremum s_m (from the fringe period and phase) the profile is fitted with
-    a + b (s - s_m) + c cos(2 pi (s - s_m) / P) + d sin(2 pi (s - s_m) / P), weighted by the pixel count of each
-    bin; the extremum lies where the fitted sinusoid's phase says. The linear term keeps a sloping envelope from
-    biasing the position. The standard uncertainty comes from the fit's covariance (azimuthal scatter of each bin
-    divided by its count, scaled by the residual chi-square when larger).
+    a + b x + c cos(2 pi x) + d sin(2 pi x) + second harmonic, x = (s - s_m) / P, weighted by the pixel count of
+    each bin; the ring lies where the fitted fundamental's phase says. The linear term keeps a sloping background
+    from biasing the position. The standard uncertainty comes from the fit's covariance (azimuthal scatter of each
+    bin divided by its count, scaled by the residual chi-square when larger). All windows are solved at once.
     """
-    good = prof.count > 0
-    s_all = prof.s[good]
-    y_all = prof.mean[good]
-    n_all = prof.count[good]
-    var_all = prof.var[good]
-    out: list[Extremum] = []
+    ds = prof.ds
+    nb = len(prof.s)
     # phase of the fundamental: I ~ A + M cos(2 pi s / P - phase0); dark where the cosine is -1
     # dark at 2 pi s/P - phase0 = pi (mod 2 pi) -> s = P (phase0 + pi)/(2 pi) + m P
     first_dark = period_s * ((phase0 + np.pi) / (2 * np.pi))
     m_lo = int(np.floor((s_min - first_dark) / period_s)) - 1
     m_hi = int(np.ceil((s_max - first_dark) / period_s)) + 1
-    for m in range(m_lo, m_hi + 1):
-        for kind, off in (("dark", 0.0), ("bright", 0.5)):
-            sc = first_dark + (m + off) * period_s
-            lo, hi = sc - 0.5 * period_s, sc + 0.5 * period_s
-            if lo < max(s_min, 0.0) or hi > s_max:
-                continue
-            sel = (s_all >= lo) & (s_all <= hi)
-            if sel.sum() < 8:
-                continue
-            ds = s_all[sel] - sc
-            y = y_all[sel]
-            wts = n_all[sel]
-            arg = 2 * np.pi * ds / period_s
-            X = np.stack([np.ones_like(ds), ds / period_s, np.cos(arg), np.sin(arg)], axis=1)
-            sw = np.sqrt(wts)
-            coef, *_ = np.linalg.lstsq(X * sw[:, None], y * sw, rcond=None)
-            a, b, c, d = coef
-            amp = np.hypot(c, d)
-            if amp <= 0:
-                continue
-            # fitted fundamental c cos(arg) + d sin(arg) = amp cos(arg - psi), psi = atan2(d, c)
-            psi = np.arctan2(d, c)
-            # dark: cos(arg - psi) = -1 -> arg = psi + pi ; bright: arg = psi
-            target = psi + np.pi if kind == "dark" else psi
-            target = (target + np.pi) % (2 * np.pi) - np.pi
-            shift = target / (2 * np.pi) * period_s
-            if abs(shift) > 0.3 * period_s:
-                continue  # the extremum is not where the fringe pattern says: doubtful ring
-            # uncertainty: per-bin variance of the mean = azimuthal var / count
-            res = y - X @ coef
-            w_in = wts / np.maximum(var_all[sel], 1e-12)
-            XtWX = (X * w_in[:, None]).T @ X
-            try:
-                cov = np.linalg.inv(XtWX)
-            except np.linalg.LinAlgError:
-                continue
-            chi2 = float(np.sum(res * res * w_in)) / max(1, len(y) - 4)
-            cov *= max(1.0, chi2)
-            # d(target)/d(c, d): psi = atan2(d, c) -> dpsi/dc = -d/amp^2, dpsi/dd = c/amp^2
-            gvec = np.array([0, 0, -d / amp**2, c / amp**2])
-            u_psi = float(np.sqrt(max(gvec @ cov @ gvec, 0.0)))
-            u_s = u_psi / (2 * np.pi) * period_s
-            order = (sc + shift - first_dark) / period_s  # relative order, ~ m or m + 1/2
-            out.append(
-                Extremum(float(sc + shift), u_s, kind, float(order), float(amp / max(abs(a), 1e-9)), int(wts.sum()))
+    half = np.arange(m_lo, m_hi + 1, dtype=np.float64)
+    cand = np.concatenate([first_dark + half * period_s, first_dark + (half + 0.5) * period_s])
+    kinds = np.array(["dark"] * len(half) + ["bright"] * len(half))
+    keep = (cand - 0.5 * period_s >= max(s_min, 0.0)) & (cand + 0.5 * period_s <= s_max)
+    cand, kinds = cand[keep], kinds[keep]
+    if len(cand) == 0:
+        return []
+    width = int(np.ceil(period_s / ds)) + 3
+    start = np.floor((cand - 0.5 * period_s) / ds).astype(np.int64) - 1
+    idx = start[:, None] + np.arange(width)[None, :]
+    inside = (idx >= 0) & (idx < nb)
+    idx_c = np.clip(idx, 0, nb - 1)
+    sb = prof.s[idx_c]
+    cnt = np.where(inside, prof.count[idx_c], 0.0)
+    dsx = sb - cand[:, None]
+    cnt = np.where(np.abs(dsx) <= 0.5 * period_s, cnt, 0.0)
+    y = np.where(cnt > 0, prof.mean[idx_c], 0.0)
+    var = np.where(cnt > 0, prof.var[idx_c], 1.0)
+    x = dsx / period_s
+    arg = 2 * np.pi * x
+    ca, sa = np.cos(arg), np.sin(arg)
+    cols = [np.ones_like(x), x, ca, sa]
+    if "slope" in LOCAL_TERMS:
+        cols += [x * ca, x * sa]
+    if "harmonic" in LOCAL_TERMS:
+        cols += [2 * ca * ca - 1, 2 * sa * ca]
+    X = np.stack(cols, axis=2)  # (n, width, p)
+    npar = X.shape[2]
+    nbins = (cnt > 0).sum(axis=1)
+    ok = nbins >= max(12, npar + 4)
+    Xw = X * cnt[:, :, None]
+    G = np.einsum("nwi,nwj->nij", Xw, X)
+    G[:, np.arange(npar), np.arange(npar)] += 1e-12
+    rhs = np.einsum("nwi,nw->ni", Xw, y)
+    out: list[Extremum] = []
+    try:
+        coef = np.linalg.solve(G, rhs[:, :, None])[:, :, 0]
+    except np.linalg.LinAlgError:
+        return out
+    res = y - np.einsum("nwi,ni->nw", X, coef)
+    w_in = np.where(cnt > 0, cnt / np.maximum(var, 1e-12), 0.0)
+    Gi = np.einsum("nwi,nw,nwj->nij", X, w_in, X)
+    Gi[:, np.arange(npar), np.arange(npar)] += 1e-300
+    chi2 = np.einsum("nw,nw,nw->n", res, res, w_in) / np.maximum(1, nbins - npar)
+    a, c, d = coef[:, 0], coef[:, 2], coef[:, 3]
+    amp = np.hypot(c, d)
+    psi = np.arctan2(d, c)
+    # fitted fundamental c cos(arg) + d sin(arg) = amp cos(arg - psi); dark: arg = psi + pi; bright: arg = psi
+    target = np.where(kinds == "dark", psi + np.pi, psi)
+    target = (target + np.pi) % (2 * np.pi) - np.pi
+    shift = target / (2 * np.pi) * period_s
+    for i in np.nonzero(ok & (amp > 0) & (np.abs(shift) <= 0.3 * period_s))[0]:
+        # (shift beyond 0.3 P: the extremum is not where the fringe pattern says — a doubtful ring, skipped)
+        try:
+            cov = np.linalg.inv(Gi[i]) * max(1.0, float(chi2[i]))
+        except np.linalg.LinAlgError:
+            continue
+        gvec = np.zeros(npar)
+        gvec[2:4] = (-d[i] / amp[i] ** 2, c[i] / amp[i] ** 2)
+        u_psi = float(np.sqrt(max(gvec @ cov @ gvec, 0.0)))
+        s_ext = float(cand[i] + shift[i])
+        out.append(
+            Extremum(
+                s_ext, u_psi / (2 * np.pi) * period_s, str(kinds[i]), float((s_ext - first_dark) / period_s),
+                float(amp[i] / max(abs(a[i]), 1e-9)), int(cnt[i].sum()),
             )
+        )
+    out.sort(key=lambda e: e.s)
     return out
 
 
@@ -141,7 +162,14 @@ def fit_orders(
     chisqr = float(np.sum(w * resid**2))
     dof = len(r2) - 2
     redchi = chisqr / dof if dof > 0 else np.nan
-    cov = cov0 * max(1.0, redchi) if dof > 0 else cov0
+    # Covariance scaled by the reduced chi-square (as lmfit does) when there are enough rings to estimate the
+    # scatter; with fewer than 5 degrees of freedom it is never scaled down.
+    if dof >= 5:
+        cov = cov0 * redchi
+    elif dof > 0:
+        cov = cov0 * max(1.0, redchi)
+    else:
+        cov = cov0
     slope, icpt = beta
     ring_objs = tuple(
         Ring(

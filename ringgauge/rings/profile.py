@@ -11,7 +11,7 @@ import numpy as np
 class SProfile:
     """Mean intensity in bins of s = r^2 (pixel units of x; y scaled by the aspect)."""
 
-    s: np.ndarray  # bin centres, px^2
+    s: np.ndarray  # mean s of the pixels in each bin, px^2
     mean: np.ndarray  # mean intensity per bin
     count: np.ndarray  # pixels per bin
     var: np.ndarray  # variance of the pixels in each bin (azimuthal scatter)
@@ -49,10 +49,13 @@ def s_profile(
     cnt = np.bincount(idx, minlength=nb).astype(np.float64)
     sm = np.bincount(idx, weights=v, minlength=nb)
     sq = np.bincount(idx, weights=v * v, minlength=nb)
+    ssum = np.bincount(idx, weights=s[ok], minlength=nb)
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = sm / cnt
         var = sq / cnt - mean**2
-    centres = (np.arange(nb) + 0.5) * ds
+        # the mean s of the pixels in each bin, not the bin centre: where rings are cut by the frame edge the
+        # pixels are not spread evenly over a bin
+        centres = np.where(cnt > 0, ssum / np.maximum(cnt, 1), (np.arange(nb) + 0.5) * ds)
     return SProfile(centres, mean, cnt, np.maximum(var, 0.0), ds)
 
 
@@ -93,3 +96,40 @@ def dominant_period(prof: SProfile, min_period: float | None = None) -> tuple[fl
     f = (i + off) * (freqs[1] - freqs[0])
     noise = np.median(spec[ib]) + 1e-300
     return float(1.0 / f), float(spec[i] / noise)
+
+
+def s_profiles_by_label(
+    data: np.ndarray,
+    centre: tuple[float, float],
+    labels: np.ndarray,
+    n_labels: int,
+    *,
+    aspect: float = 1.0,
+    s_max: float,
+    ds: float,
+    mask: np.ndarray | None = None,
+) -> list[SProfile]:
+    """One s-profile per label (e.g. angular sector), all in a single pass over the image."""
+    s = squared_radius(data.shape, centre, aspect)
+    nb = int(np.ceil(s_max / ds))
+    idx = (s / ds).astype(np.int64)
+    ok = (idx < nb) & (labels >= 0) & (labels < n_labels)
+    if mask is not None:
+        ok &= mask
+    comb = labels[ok].astype(np.int64) * nb + idx[ok]
+    v = data[ok].astype(np.float64)
+    size = n_labels * nb
+    cnt = np.bincount(comb, minlength=size).astype(np.float64).reshape(n_labels, nb)
+    sm = np.bincount(comb, weights=v, minlength=size).reshape(n_labels, nb)
+    sq = np.bincount(comb, weights=v * v, minlength=size).reshape(n_labels, nb)
+    ssum = np.bincount(comb, weights=s[ok], minlength=size).reshape(n_labels, nb)
+    out = []
+    nominal = (np.arange(nb) + 0.5) * ds
+    with np.errstate(invalid="ignore", divide="ignore"):
+        for k in range(n_labels):
+            c = cnt[k]
+            mean = sm[k] / c
+            var = np.maximum(sq[k] / c - mean**2, 0.0)
+            cen = np.where(c > 0, ssum[k] / np.maximum(c, 1), nominal)
+            out.append(SProfile(cen, mean, c, var, ds))
+    return out

@@ -1,0 +1,146 @@
+"""``ringgauge analyze``: measure one lens from its fringe image(s)."""
+
+from __future__ import annotations
+
+import argparse
+import importlib.util
+import json
+import sys
+
+from ..bench_setup import BenchSetup
+from ..errors import InputError
+from ..sources import SOURCES, custom_source, get_source
+
+
+def _float(text: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+
+
+def _has(mod: str) -> bool:
+    try:
+        return importlib.util.find_spec(mod) is not None
+    except ModuleNotFoundError:
+        return False
+
+
+def add_setup_arguments(p: argparse.ArgumentParser) -> None:
+    """Bench set-up options shared by ``analyze`` and ``batch``."""
+    g = p.add_argument_group("light source (one of)")
+    g.add_argument("--source", metavar="NAME", help=f"built-in lamp: {', '.join(SOURCES)} (see 'ringgauge sources')")
+    g.add_argument("--wavelength", type=_float, metavar="NM", help="wavelength in nm (standard air), e.g. 589.29")
+    g.add_argument("--wavelength-u", type=_float, metavar="NM", help="its standard uncertainty in nm")
+    g.add_argument("--bandwidth", type=_float, default=0.0, metavar="NM", help="FWHM of a broadband (LED) source, nm")
+    g = p.add_argument_group("pixel scale (one of)")
+    g.add_argument("--pixel-size", type=_float, metavar="UM", help="object-space pixel size, µm per pixel")
+    g.add_argument("--pixel-size-u", type=_float, default=0.0, metavar="UM", help="its standard uncertainty (k = 1), µm")
+    g.add_argument("--pixel-size-y", type=_float, metavar="UM", help="pixel size along rows if it differs from x, µm")
+    g.add_argument("--pixel-size-y-u", type=_float, metavar="UM", help="its standard uncertainty, µm")
+    g.add_argument("--bench", metavar="NAME", help="use a calibrated bench profile (see 'ringgauge calibrate')")
+    g = p.add_argument_group("gap and fringes")
+    g.add_argument("--medium-index", type=_float, default=1.0, metavar="N", help="refractive index of the gap (air 1.0)")
+    g.add_argument("--medium-index-u", type=_float, default=0.0, metavar="U", help="its standard uncertainty")
+    g.add_argument(
+        "--fringe-kind", choices=("dark", "bright"), default="dark",
+        help="rings counted as orders: dark (r² = mλR/n, default) or bright (r² = (m − ½)λR/n)",
+    )
+    g.add_argument(
+        "--mode", choices=("auto", "radius", "form"), default="auto",
+        help="radius: Newton's rings on an optical flat; form: against a test plate; auto (default) picks form "
+        "when a form option or several frames are given",
+    )
+    if _has("ringgauge.form.options"):
+        from ..form import options as form_options
+
+        form_options.add_arguments(p)
+
+
+def setup_from_args(args: argparse.Namespace) -> tuple[BenchSetup, list[str]]:
+    """Build the bench set-up from parsed options; returns it with any warnings (e.g. an overdue calibration)."""
+    warnings: list[str] = []
+    kw: dict = {}
+    if args.bench:
+        if not _has("ringgauge.calibration.profiles"):
+            raise InputError("bench profiles are not available in this installation")
+        from ..calibration import profiles
+
+        bkw, bw = profiles.setup_kwargs(args.bench)
+        kw.update(bkw)
+        warnings += bw
+        if args.pixel_size is not None:
+            raise InputError("give either --bench or --pixel-size, not both")
+    if args.source and args.wavelength is not None:
+        raise InputError("give either --source or --wavelength, not both")
+    if args.source:
+        kw["source"] = get_source(args.source)
+    elif args.wavelength is not None:
+        kw["source"] = custom_source(args.wavelength, args.wavelength_u, args.bandwidth)
+    if "source" not in kw:
+        raise InputError(f"name the light source: --source NAME ({', '.join(SOURCES)}) or --wavelength NM")
+    if not args.bench:
+        if args.pixel_size is None:
+            raise InputError("give the pixel scale: --pixel-size UM (µm per pixel) or --bench NAME (a calibrated profile)")
+        kw.update(
+            pixel_size_um=args.pixel_size, pixel_size_u_um=args.pixel_size_u,
+            pixel_size_y_um=args.pixel_size_y, pixel_size_y_u_um=args.pixel_size_y_u,
+        )
+    kw.setdefault("medium_index", args.medium_index)
+    if args.medium_index != 1.0:
+        kw["medium_index"] = args.medium_index
+    kw.update(medium_index_u=args.medium_index_u, fringe_kind=args.fringe_kind, extras={"mode": args.mode})
+    if _has("ringgauge.form.options"):
+        from ..form import options as form_options
+
+        fkw, fw = form_options.setup_kwargs(args)
+        kw.update(fkw)
+        warnings += fw
+    return BenchSetup(**kw), warnings
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "analyze",
+        help="measure a lens from its fringe image(s)",
+        description=(
+            "Measure a lens from a camera image of its interference rings. One image of a lens on an optical flat "
+            "gives the radius of curvature with its uncertainty budget; with a test diameter, tolerance or test "
+            "plate (or several frames with a changed gap) the surface form against a test plate is evaluated."
+        ),
+        epilog="Example: ringgauge analyze lens.png --source sodium-d --pixel-size 10 --pixel-size-u 0.01",
+    )
+    p.add_argument("images", nargs="+", metavar="IMAGE", help="image file(s): PNG, TIFF or JPEG, 8 or 16 bit")
+    add_setup_arguments(p)
+    o = p.add_argument_group("output")
+    o.add_argument("--json", action="store_true", help="print the full result as JSON instead of the text report")
+    o.add_argument("--out", metavar="FILE", help="also write the JSON result to FILE")
+    o.add_argument("--quiet", action="store_true", help="no progress messages on stderr")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from ..pipeline import analyse_files
+    from ..report.text import format_result
+
+    setup, warnings = setup_from_args(args)
+    progress = None
+    if not args.quiet and sys.stderr.isatty():
+        def progress(frac: float, msg: str) -> None:
+            print(f"\r  {100 * frac:3.0f}%  {msg:<50s}", end="", file=sys.stderr, flush=True)
+    result = analyse_files(args.images, setup, progress=progress)
+    if progress:
+        print("\r" + " " * 60 + "\r", end="", file=sys.stderr)
+    d = result.to_dict()
+    d["warnings"] = warnings + d["warnings"]
+    if args.out:
+        try:
+            with open(args.out, "w", encoding="utf-8") as fh:
+                json.dump(d, fh, indent=2, ensure_ascii=False)
+        except OSError as exc:
+            raise InputError(f"cannot write {args.out}: {exc.strerror or exc}") from None
+    if args.json:
+        print(json.dumps(d, indent=2, ensure_ascii=False))
+    else:
+        print(format_result(d))
+    return 0

@@ -1,0 +1,88 @@
+"""Sector profiles: the ring fit repeated in angular sectors about the centre.
+
+The scatter of the sector results measures what one azimuthally averaged profile hides: uneven illumination,
+dust, a centre error on rings cut by the frame edge, elliptical rings (astigmatism, or unequal pixel scales).
+It is used as the Type A uncertainty of the ring fit, and its cos 2θ part as a roundness check.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..fit.orders import fit_orders, locate_extrema
+from .profile import s_profiles_by_label
+
+
+@dataclass(frozen=True)
+class SectorScatter:
+    n_sectors: int
+    angles_deg: tuple[float, ...]  # sector mid-angles, measured from +x toward +y (image rows down)
+    slopes_mm2: tuple[float, ...]
+    rings: tuple[int, ...]
+    u_mean_slope_mm2: float  # standard uncertainty of the mean slope from the sector scatter
+    dof: int
+    ellipticity: float  # relative amplitude of the cos 2θ variation of the slope
+    ellipticity_u: float
+    axis_deg: float  # angle of the largest slope (longest ring axis)
+
+    def to_dict(self) -> dict:
+        return {
+            "n_sectors": self.n_sectors,
+            "angles_deg": list(self.angles_deg),
+            "slopes_mm2_per_fringe": list(self.slopes_mm2),
+            "rings": list(self.rings),
+            "u_mean_slope_mm2": self.u_mean_slope_mm2,
+            "dof": self.dof,
+            "ellipticity": self.ellipticity,
+            "ellipticity_u": self.ellipticity_u,
+            "long_axis_deg": self.axis_deg,
+        }
+
+
+def sector_scatter(
+    data, centre, *, aspect, period_s, phase0, s_min, s_max, valid, kind, px_mm, radius_guess_mm, lam_mm_over_n,
+    n_sectors: int = 8,
+) -> SectorScatter | None:
+    h, w = data.shape
+    yy, xx = np.mgrid[0:h, 0:w]
+    theta = np.arctan2(aspect * (yy - centre[1]), xx - centre[0])
+    sector = ((theta + np.pi) / (2 * np.pi) * n_sectors).astype(int) % n_sectors
+    slopes, angles, counts = [], [], []
+    ds = period_s / 24.0
+    profiles = s_profiles_by_label(data, centre, sector, n_sectors, aspect=aspect, s_max=s_max, ds=ds, mask=valid)
+    for k, prof in enumerate(profiles):
+        if prof.count.sum() < 500:
+            continue
+        ext = locate_extrema(prof, period_s, phase0, s_min=s_min, s_max=s_max)
+        fit = fit_orders(ext, kind=kind, px_mm=px_mm, radius_guess_mm=radius_guess_mm, lam_mm_over_n=lam_mm_over_n)
+        if not fit.success or fit.ndata < 4:
+            continue
+        slopes.append(fit.slope_mm2)
+        angles.append((k + 0.5) / n_sectors * 2 * np.pi - np.pi)
+        counts.append(fit.ndata)
+    if len(slopes) < 4:
+        return None
+    sl = np.array(slopes)
+    an = np.array(angles)
+    n = len(sl)
+    u_mean = float(np.std(sl, ddof=1) / np.sqrt(n))
+    # roundness: slope(θ) = a + b cos 2θ + c sin 2θ
+    X = np.stack([np.ones(n), np.cos(2 * an), np.sin(2 * an)], axis=1)
+    coef, *_ = np.linalg.lstsq(X, sl, rcond=None)
+    res = sl - X @ coef
+    dof = n - 3
+    if dof > 0:
+        s2 = float(res @ res / dof)
+        cov = np.linalg.inv(X.T @ X) * s2
+        amp = float(np.hypot(coef[1], coef[2]))
+        u_amp = float(np.sqrt(max(cov[1, 1], cov[2, 2])))
+    else:
+        amp, u_amp = float(np.hypot(coef[1], coef[2])), float("nan")
+    ell = amp / coef[0]
+    axis = float(np.degrees(0.5 * np.arctan2(coef[2], coef[1])))
+    return SectorScatter(
+        n, tuple(float(np.degrees(a)) for a in an), tuple(float(v) for v in sl), tuple(counts), u_mean, n - 1,
+        float(ell), float(u_amp / coef[0]), axis,
+    )
