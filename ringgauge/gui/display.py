@@ -397,8 +397,9 @@ def verdict_view(d: dict | None) -> VerdictView:
             unit = t.get("unit") or ("fringes" if "value_fringes" in t else "")
             txt = f"{name}: {status}".strip(": ")
             if val is not None and lim is not None:
-                pm = f" ± {U:.2g}" if U is not None else ""
-                txt += f" ({val:.3g}{pm} {unit}, limit {lim:.3g} {unit})".replace("  ", " ")
+                a, b = _fmt_pair(val, U) if U is not None else (f"{val:.3g}", "")
+                pm = f" {b}" if b.startswith("±") else ""
+                txt += f" ({a}{pm} {unit}, limit {lim:g} {unit})".replace("  ", " ")
             terms.append(txt)
         else:
             terms.append(str(t))

@@ -24,7 +24,7 @@ from PySide6.QtWidgets import (
 )
 
 from ..errors import RinggaugeError
-from . import integrations
+from . import display, integrations
 from .lot import COLUMNS, DONE, FAILED, QUEUED, RUNNING, Lot
 from .model import BenchSession, _Cancelled
 from .results_panel import ResultsPanel
@@ -67,8 +67,13 @@ class LotTableModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.DisplayRole:
             if key == "status":
                 return _STATUS_TEXT.get(v, v)
+            if key == "radius_mm" and isinstance(v, float):
+                # as many digits as the uncertainty supports (U to two significant digits)
+                return display._fmt_pair(v, self.lot.cell(index.row(), "radius_U_mm"))[0]
+            if key == "radius_U_mm" and isinstance(v, float):
+                return display._fmt_pair(v, v)[1].lstrip("± ")
             if isinstance(v, float):
-                return f"{v:.4f}" if key.startswith("radius") else f"{v:.2f}"
+                return f"{v:.3f}"
             return "" if v is None else str(v)
         if role == SORT_ROLE:
             if v is None:
@@ -330,6 +335,12 @@ class LotPage(QWidget):
                 verdicts[r.summary["verdict"]] = verdicts.get(r.summary["verdict"], 0) + 1
         vt = ", ".join(f"{k} {v}" for k, v in sorted(verdicts.items()))
         self.counts.setText(f"{c[DONE]} of {n} done, {c[FAILED]} failed" + (f" — {vt}" if vt else ""))
+        # value columns that no analysed row fills (e.g. power for lenses on a flat) are hidden
+        if c[DONE]:
+            keys = [k for k, _ in COLUMNS]
+            for key in ("radius_mm", "radius_U_mm", "power", "irregularity"):
+                empty = all(self.lot.cell(i, key) is None for i in range(n))
+                self.table.setColumnHidden(keys.index(key), empty)
 
     # -- selection ------------------------------------------------------------------------------------------------
     def _selected_row(self) -> int | None:

@@ -35,7 +35,11 @@ def test_lot_fills_from_a_folder(lot_page, qtbot, sample_dir):
     assert "no ring system" in page.lot.rows[2].message and "cannot decode" in page.lot.rows[3].message
     assert page.counts.text().startswith("2 of 4 done, 2 failed")
     col_r = [k for k, _ in COLUMNS].index("radius_mm")
-    assert page.model.data(page.model.index(0, col_r)) == "1000.0000"
+    # R to the digits its uncertainty supports: U = 0.20 mm (two significant digits)
+    assert page.model.data(page.model.index(0, col_r)) == "1000.00"
+    assert page.model.data(page.model.index(0, col_r + 1)) == "0.20"
+    col_p = [k for k, _ in COLUMNS].index("power")
+    assert page.table.isColumnHidden(col_p) and not page.table.isColumnHidden(col_r)
     assert page.message.text() == "Lot finished"
 
 
