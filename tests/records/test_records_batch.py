@@ -64,6 +64,7 @@ def test_lot_records_every_image_and_keeps_going(tmp_path):
     store.close()
 
 
+@pytest.mark.slow
 def test_retry_failed_supersedes_the_failure(tmp_path):
     make_folder(tmp_path / "lot", 3, bad=1)
     store = open_store(tmp_path / "r.sqlite")
@@ -156,6 +157,7 @@ def test_kill_in_the_middle_then_resume(tmp_path):
     store.close()
 
 
+@pytest.mark.slow
 @pytest.mark.postgres
 def test_lot_on_a_shared_postgresql_store(tmp_path, pg_url):
     """Two benches sharing one server: the second run of the lot finds every image already recorded."""
@@ -213,6 +215,7 @@ def test_ctrl_c_or_term_stops_cleanly_and_resumes(tmp_path, sig):
     assert len(recs) == n and len({r.image_sha256 for r in recs}) == n
 
 
+@pytest.mark.slow
 def test_a_worker_crash_is_pinned_on_its_image(tmp_path):
     from fakelab import crashing_analyse
 

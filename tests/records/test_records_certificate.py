@@ -138,6 +138,7 @@ def test_altered_copies_do_not_verify(stocked, tmp_path):
     other.close()
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("paper,size_pt", [("A4", (595.3, 841.9)), ("Letter", (612.0, 792.0))])
 def test_paper_sizes(stocked, tmp_path, paper, size_pt):
     store, rec = stocked
@@ -169,6 +170,7 @@ def test_missing_image_is_said_not_hidden(stocked, tmp_path):
     assert "Image not shown" in " ".join(text_of(path))
 
 
+@pytest.mark.slow
 def test_lot_report(tmp_path, make_result):
     store = open_store(tmp_path / "r.sqlite")
     rng = np.random.default_rng(11)
