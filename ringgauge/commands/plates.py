@@ -75,9 +75,11 @@ def run(args) -> int:
             print(f"warning: {w}")
         return 0
     if action == "list":
-        plates = [p for p in reg.load_register() if args.all or not p.retired]
+        every = reg.load_register()
+        plates = [p for p in every if args.all or not p.retired]
         if not plates:
-            print("no test plates in the register yet; add one with 'ringgauge plates add ID --radius ... '")
+            print("no test plates in service (retired ones: 'ringgauge plates list --all')" if every else
+                  "no test plates in the register yet; add one with 'ringgauge plates add ID --radius ... '")
             return 0
         print(f"{'id':14s} {'kind':8s} {'radius (u, k = 1)':28s} calibration")
         for pl in plates:

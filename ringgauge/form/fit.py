@@ -235,6 +235,7 @@ def fit_gap(
     aspect: float = 1.0,
     exclude: np.ndarray | None = None,
     inset: float = 0.985,
+    edge_px: float = 3.0,
     max_points: int = 20000,
     nterms: int = len(TERMS),
     finesse: float = 0.0,
@@ -253,8 +254,8 @@ def fit_gap(
         Pixel size y / pixel size x.
     exclude : (H, W) bool array, optional
         Pixels to leave out (glare, known defects).
-    inset : float
-        Fraction of the aperture radius used (the blurred edge is left out).
+    inset, edge_px : float
+        Fraction of the aperture radius used, and the least margin in pixels left out at the edge.
     max_points : int
         Pixels used per fit (a regular subsample); all pixels are used for the outlier pass.
     nterms : int
@@ -273,7 +274,10 @@ def fit_gap(
     """
     img = np.asarray(image, dtype=np.float64)
     u_all, v_all = normalised_coords(img.shape, centre_px, radius_px, aspect)
-    inside = (u_all**2 + v_all**2) <= inset**2
+    # leave out the blurred edge: a relative margin and at least ``edge_px`` pixels (the edge's blur
+    # darkens the last pixels and would bend the high radial terms)
+    r_use = min(inset, 1.0 - edge_px / radius_px)
+    inside = (u_all**2 + v_all**2) <= r_use**2
     if exclude is not None:
         inside &= ~exclude
     n_in = int(inside.sum())

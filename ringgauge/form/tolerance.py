@@ -140,7 +140,8 @@ def parse_tolerance(text: str) -> Tolerance:
         raise ToleranceSyntaxError("tolerance is empty; give it like 3/2(0.5)")
     raw = text.strip()
     s = _Scanner(raw)
-    s.expect("3/", "the code number '3/' at the start")
+    s.expect("3", "the code number '3/' at the start")
+    s.expect("/", "the code number '3/' at the start")
     A = s.number("the power tolerance A", allow_dash=True)
     B = C = None
     if s.take("("):
