@@ -7,8 +7,8 @@ Method
 2. Find the pattern's fundamental spatial frequency vector(s) f = (f_x, f_y) in cycles per pixel as the
    strongest peak(s) of the Hann-windowed, zero-padded 2-D FFT, interpolated between bins. A peak whose
    half or third also carries strong power is a harmonic and is replaced by that fundamental. For a crossed
-   grid or a dot grid the second direction is the strongest peak away from the first direction, and the pair
-   is reduced to the shortest basis of the reciprocal lattice (Lagrange-Gauss reduction).
+   grid or a dot grid the second direction is the strongest peak near the first turned by 90° with about the
+   same period; when half their sum and difference also carry power (a dot grid's diagonals), those are taken.
 3. Refine f by non-linear least squares of a periodic model -- a constant, a plane, and cosines and sines of
    the fundamental and its harmonics (plus the sum and difference terms of a grid) -- over the pixels where
    the pattern is present. The model is linear in its amplitudes, so only f is iterated (variable projection,
@@ -58,6 +58,9 @@ MIN_PEAK_RATIO = 12.0
 MIN_EXPLAINED = 0.2
 #: points used by the least-squares refinement (a regular sub-grid of the pattern area)
 MAX_FIT_POINTS = 40_000
+#: where a square grid's second line set is looked for: f1 turned by 90° within these tolerances
+GRID_ANGLE_TOL_DEG = 15.0
+GRID_PERIOD_TOL = 0.2
 
 
 def _as_frame(image) -> Frame:
@@ -115,15 +118,16 @@ class _Spectrum:
 
     def _refine(self, iy: int, ix: int):
         """Sub-bin peak position by a parabola through the log-magnitudes of the neighbours."""
-        lm = np.log(self.mag + 1e-30)
+        def lm(y, x):
+            return math.log(float(self.mag[y, x]) + 1e-30)
 
         def par(a, b, c):
             den = a - 2 * b + c
             return 0.0 if den >= 0 else 0.5 * (a - c) / den
 
         ny, nx = self.mag.shape
-        dy = par(lm[(iy - 1) % ny, ix], lm[iy, ix], lm[(iy + 1) % ny, ix])
-        dx = par(lm[iy, ix - 1], lm[iy, ix], lm[iy, ix + 1]) if 0 < ix < nx - 1 else 0.0
+        dy = par(lm((iy - 1) % ny, ix), lm(iy, ix), lm((iy + 1) % ny, ix))
+        dx = par(lm(iy, ix - 1), lm(iy, ix), lm(iy, ix + 1)) if 0 < ix < nx - 1 else 0.0
         fy = float(self.fy[iy, 0]) + dy / self.ny
         fx = float(self.fx[0, ix]) + dx / self.nx
         return np.array([fx, fy]), float(self.mag[iy, ix])
@@ -133,9 +137,14 @@ class _Spectrum:
         fx, fy = f
         if fx < 0:
             fx, fy = -fx, -fy
-        d = np.hypot((self.fx - fx) * self.nx, (self.fy - fy) * self.ny)
-        near = d <= radius_bins
-        return float(self.mag[near].max()) if near.any() else 0.0
+        best = 0.0
+        rb = int(math.ceil(radius_bins))
+        ix0, iy0 = int(round(fx * self.nx)), int(round(fy * self.ny))
+        for iy in range(iy0 - rb, iy0 + rb + 1):
+            for ix in range(max(0, ix0 - rb), min(self.mag.shape[1] - 1, ix0 + rb) + 1):
+                if math.hypot(ix - fx * self.nx, iy - fy * self.ny) <= radius_bins:
+                    best = max(best, float(self.mag[iy % self.ny, ix]))
+        return best
 
     def background(self, f) -> float:
         """Median magnitude over the annulus 0.5 |f| .. 1.5 |f|: the noise floor near the peak."""
@@ -143,12 +152,14 @@ class _Spectrum:
         ring = self.valid & (self.fr > 0.5 * r) & (self.fr < 1.5 * r)
         return float(np.median(self.mag[ring])) if ring.any() else float(np.median(self.mag[self.valid]))
 
-    def direction_mask(self, f, exclude_deg: float = 20.0):
-        """True away from the line through the origin along f (either sign), by more than ``exclude_deg``."""
+    def window_mask(self, f, angle_tol_deg: float, rel_radius_tol: float):
+        """True within ``angle_tol_deg`` of the direction of f (either sign) and within a relative radius
+        tolerance of |f|."""
         ang = np.degrees(np.arctan2(self.fy, self.fx))
         a0 = math.degrees(math.atan2(f[1], f[0]))
         dd = np.abs(((ang - a0) + 90.0) % 180.0 - 90.0)
-        return dd > exclude_deg
+        r = math.hypot(*f)
+        return (dd <= angle_tol_deg) & (self.fr >= r * (1 - rel_radius_tol)) & (self.fr <= r * (1 + rel_radius_tol))
 
 
 def _fundamental(spec: _Spectrum, f, amp):
@@ -173,23 +184,6 @@ def _canon(f) -> np.ndarray:
     return f
 
 
-def _reduce_pair(f1, f2):
-    """Lagrange-Gauss reduction: the shortest basis of the lattice spanned by f1 and f2."""
-    a, b = np.array(f1, float), np.array(f2, float)
-    if a @ a > b @ b:
-        a, b = b, a
-    for _ in range(20):
-        mu = round(float(a @ b) / float(a @ a))
-        if mu == 0:
-            break
-        b = b - mu * a
-        if b @ b < a @ a:
-            a, b = b, a
-        else:
-            break
-    return _canon(a), _canon(b)
-
-
 def find_frequencies(data: np.ndarray, kind: str = "auto"):
     """Fundamental frequency vector(s) of a periodic target from its FFT, cycles per pixel.
 
@@ -212,23 +206,34 @@ def find_frequencies(data: np.ndarray, kind: str = "auto"):
     info = {"peak_ratio": [ratio1]}
     if kind == "lines":
         return [_canon(f1)], info
-    pk2 = spec.peak(spec.direction_mask(f1))
-    found2 = False
+    # A square grid's second line set lies near f1 turned by 90° with about the same period (pixels that are
+    # not square or not perpendicular move it by a few per cent at most). Looking only there keeps the ends of
+    # a line scale's strip and its longer 5th / 10th marks from passing for a second line set.
+    f2 = None
+    pk2 = spec.peak(spec.window_mask(np.array([-f1[1], f1[0]]), GRID_ANGLE_TOL_DEG, GRID_PERIOD_TOL))
     if pk2 is not None:
-        f2, a2 = pk2
-        ratio2 = a2 / max(spec.background(f2), 1e-30)
-        found2 = ratio2 >= MIN_PEAK_RATIO and a2 >= 0.1 * a1
+        f2c, a2 = pk2
+        ratio2 = a2 / max(spec.background(f2c), 1e-30)
         info["second_peak_ratio"] = ratio2
-    if kind == "grid" and not found2:
-        raise CalibrationError(
-            "only one set of lines found, but a crossed grid was expected; for a line scale use --target lines"
-        )
-    if not found2:
+        if ratio2 >= MIN_PEAK_RATIO and a2 >= 0.15 * a1:
+            f2 = f2c
+    if f2 is None:
+        if kind == "grid":
+            raise CalibrationError(
+                "only one set of lines found, but a crossed grid was expected; for a line scale use --target lines"
+            )
         return [_canon(f1)], info
-    f2, a2 = _fundamental(spec, f2, a2)
-    f1, f2 = _reduce_pair(f1, f2)
+    # a dot grid's diagonal can outshine its rows: when half the sum and half the difference also carry power,
+    # those are the grid's fundamentals
+    h1, h2 = (f1 + f2) / 2, (f1 - f2) / 2
+    weakest = min(a1, a2)
+    if spec.value_near(h1) >= 0.35 * weakest and spec.value_near(h2) >= 0.35 * weakest:
+        found = [spec.peak(spec.window_mask(h, 5.0, 0.05)) for h in (h1, h2)]
+        if all(pk is not None for pk in found):
+            (f1, a1), (f2, a2) = found
+            info["diagonal_replaced"] = True
     info["peak_ratio"].append(a2 / max(spec.background(f2), 1e-30))
-    return [f1, f2], info
+    return [_canon(f1), _canon(f2)], info
 
 
 # ------------------------------------------------------------------------------------- least-squares refinement
@@ -327,7 +332,7 @@ class _Model:
             theta, r, coef, A, M = t_new, r_new, c_new, A_new, M_new
             cost = float(r @ r)
             J = self.jacobian(theta, coef, A, M)
-            if np.max(np.abs(lam * step)) * self.scale < 1e-9:
+            if np.max(np.abs(lam * step)) * self.scale < 1e-7:  # cycles across the field
                 break
         return theta, r, J
 
@@ -364,12 +369,16 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     yy, xx = np.mgrid[0:H, 0:W].astype(np.float64)
     cx, cy = (W - 1) / 2, (H - 1) / 2
     # where the pattern is present: local modulation at the fundamental(s)
-    amp = np.zeros((H, W))
+    # (on a grid coarsened by k: the amplitude map is smooth on the scale of a period)
+    k = max(1, int(period // 2))
+    Hk, Wk = H // k, W // k
+    amp_small = np.zeros((Hk, Wk))
     for f in f0:
         q = np.exp(-2j * np.pi * (f[0] * (xx - cx) + f[1] * (yy - cy))) * z
-        re = _smooth(q.real, 1.5 * period)
-        im = _smooth(q.imag, 1.5 * period)
-        amp += np.hypot(re, im)
+        qs = q[: Hk * k, : Wk * k].reshape(Hk, k, Wk, k).mean(axis=(1, 3))
+        amp_small += np.hypot(_smooth(qs.real, 1.5 * period / k), _smooth(qs.imag, 1.5 * period / k))
+    amp = np.zeros((H, W))
+    amp[: Hk * k, : Wk * k] = np.repeat(np.repeat(amp_small, k, axis=0), k, axis=1)
     edge = int(math.ceil(1.5 * period))
     present = amp > 0.25 * float(np.percentile(amp, 99))
     present[:edge], present[-edge:], present[:, :edge], present[:, -edge:] = False, False, False, False
@@ -413,15 +422,22 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     cov = cov_hc if np.trace(cov_hc) > np.trace(cov_classic) else cov_classic
     # Residuals at every pattern pixel (in chunks) for their neighbour correlation. For a random subset of
     # a fraction q of the pixels the variance inflation is about 1 + q (kappa - 1), kappa that of all pixels.
+    # (over a window of at most 384 x 384 px at the pattern's centre: plenty for a lag-1 correlation)
     coef_fit = m.solve(theta)[1]
     res_img = np.zeros((H, W))
-    for c0 in range(0, idx_all.size, 50_000):
-        sl = idx_all[c0:c0 + 50_000]
+    ry, rx = np.nonzero(present)
+    wy0 = max(0, int(np.median(ry)) - 192)
+    wx0 = max(0, int(np.median(rx)) - 192)
+    win = np.zeros_like(present)
+    win[wy0:wy0 + 384, wx0:wx0 + 384] = True
+    idx_win = np.flatnonzero(present & win)
+    for c0 in range(0, idx_win.size, 50_000):
+        sl = idx_win[c0:c0 + 50_000]
         sub = _Model(xx.flat[sl] - cx, yy.flat[sl] - cy, z.flat[sl], ndir, harmonics, mixed)
         sub.scale = m.scale
         res_img.flat[sl] = sub.z - sub.design(theta) @ coef_fit
     s_rob = 1.4826 * float(np.median(np.abs(r - np.median(r))))
-    ok = present & (np.abs(res_img) <= 4.0 * max(s_rob, 1e-12))
+    ok = present & win & (np.abs(res_img) <= 4.0 * max(s_rob, 1e-12))
     kappa = _neighbour_corr(res_img, ok)
     corr = 1.0 + (r.size / max(idx_all.size, 1)) * (kappa - 1.0)
     cov = cov * corr
