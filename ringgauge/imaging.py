@@ -166,6 +166,7 @@ def load_frame(path: str | os.PathLike) -> Frame:
     """
     import cv2
 
+    _quiet_opencv(cv2)
     p = Path(path)
     if not p.exists():
         raise ImageError(f"{p}: no such file; check the path")
@@ -190,6 +191,14 @@ def load_frame(path: str | os.PathLike) -> Frame:
         raw = raw.astype(np.float64)
     digest = hashlib.sha256(buf.tobytes()).hexdigest()
     return frame_from_array(raw, path=str(p), sha256=digest)
+
+
+def _quiet_opencv(cv2) -> None:
+    """OpenCV prints its own warnings for damaged files on stderr; ringgauge reports them in one line itself."""
+    try:
+        cv2.utils.logging.setLogLevel(cv2.utils.logging.LOG_LEVEL_ERROR)
+    except AttributeError:  # pragma: no cover - older OpenCV
+        pass
 
 
 def _read_tiff_fallback(p: Path):

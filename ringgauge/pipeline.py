@@ -33,8 +33,20 @@ BORDER_PX = 3
 MIN_RINGS = 4
 
 
-def _noop(fraction: float, message: str) -> None:  # pragma: no cover - trivial
+def _noop(*args) -> None:  # pragma: no cover - trivial
     pass
+
+
+def _adapt(progress: Progress) -> Callable:
+    """Accept both ``progress(fraction, message)`` and ``progress(message)`` from the analysis steps."""
+
+    def call(*args) -> None:
+        if len(args) == 1:
+            progress(float("nan"), str(args[0]))
+        else:
+            progress(float(args[0]), str(args[1]))
+
+    return call
 
 
 def image_info(frame: Frame) -> ImageInfo:
@@ -68,7 +80,7 @@ def analyse(frames: Frame | Sequence[Frame], setup: BenchSetup, *, progress: Pro
     # Small dense solves run fastest single-threaded; several BLAS threads fighting other processes (batch
     # workers, the window) slow them a hundredfold on a 2-core machine.
     with threadpool_limits(limits=1, user_api="blas"):
-        return _analyse(frames, setup, progress or _noop)
+        return _analyse(frames, setup, _adapt(progress) if progress else _noop)
 
 
 def _analyse(frames, setup: BenchSetup, progress: Progress) -> AnalysisResult:

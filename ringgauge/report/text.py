@@ -43,7 +43,14 @@ def format_result(d: dict) -> str:
     )
     px, py = st["pixel_size_um"]
     ux, uy = st["pixel_size_u_um"]
-    scale = f"{px:g} ± {ux:g} µm/px" if px == py else f"x {px:g} ± {ux:g}, y {py:g} ± {uy:g} µm/px"
+    def _scale(v, u):
+        return format_value(v, u, "µm/px") + " (k = 1)" if u else f"{v:g} µm/px (no uncertainty given)"
+
+    scale = (
+        _scale(px, ux)
+        if px == py
+        else f"x {_scale(px, ux)}, y {_scale(py, uy)}"
+    )
     bench = f" (bench profile '{st['bench']}', calibrated {st['bench_calibrated']})" if st.get("bench") else ""
     out.append(
         f"  source {st['source']['name']}: λ = {st['wavelength_nm']:.4f} nm (u {st['wavelength_u_nm']:.2g} nm); "
@@ -60,7 +67,9 @@ def format_result(d: dict) -> str:
         )
         cx, cy = d["centre_px"]
         ux_, uy_ = d["centre_u_px"]
-        out.append(f"  ring centre (x, y) = ({cx:.2f} ± {ux_:.2f}, {cy:.2f} ± {uy_:.2f}) px  [x = column, y = row, k = 1]")
+        out.append(
+            f"  ring centre (x, y) = ({cx:.3f} ± {ux_:.1g}, {cy:.3f} ± {uy_:.1g}) px  [x = column, y = row, k = 1]"
+        )
         out.append("")
         out.append(
             f"Fringe data: {fr['rings_used']} {st['fringe_kind']} rings from r = {fr['r_min_mm']:.4f} to "
