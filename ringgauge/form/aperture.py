@@ -113,8 +113,13 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
     # refine on the full-resolution gradient: the strongest brightness step along each ray near the circle
     hull_full = np.kron(hull, np.ones((step, step), dtype=bool))[:H, :W] if step > 1 else hull
-    circle = _refine_edge(img, circle, aspect, hull_full)
-    circle = _refine_edge(img, circle, aspect, hull_full, window=0.05)
+    circle, _ = _refine_edge(img, circle, aspect, hull_full)
+    circle, n_edge = _refine_edge(img, circle, aspect, hull_full, window=0.05)
+    if n_edge < 0.12 * EDGE_RAYS:  # under about 45 degrees of clear edge
+        raise AnalysisError(
+            "the part's round edge was not found (the fringe field has no clear circular boundary); show the "
+            "whole part with some plate around it, in focus"
+        )
     cx, cy, r, ucx, ucy, ur, rms = circle
     notes = []
     if cx - r < 0 or cy - r / aspect < 0 or cx + r > W - 1 or cy + r / aspect > H - 1:
@@ -155,7 +160,10 @@ def _fit_circle(xs, ys, aspect, x0=None):
     return cx, cyy / aspect, abs(rad), u[0], u[1] / aspect, u[2], rms
 
 
-def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = 720):
+EDGE_RAYS = 720
+
+
+def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = EDGE_RAYS):
     """Outline points where, walking each ray inward from the dim surround, the brightness first rises
     clearly above the surround level; then a robust circle through them.
 
@@ -166,7 +174,7 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = 72
     sm = ndimage.gaussian_filter(img, 1.0)
     outside = ~ndimage.binary_dilation(hull, iterations=3)
     if outside.sum() < 50:
-        return circle
+        return circle, 0
     vals = sm[outside]
     b0 = float(np.median(vals))
     s0 = float(1.4826 * np.median(np.abs(vals - b0)))
@@ -185,7 +193,7 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = 72
     first = np.argmax(above, axis=1)
     good = hit & (first > 0)
     if good.sum() < 20:
-        return circle
+        return circle, 0
     # keep rays that meet a clear bright step (a dark fringe at the edge gives none) and place the point at
     # half height between the surround and the level just inside, which is symmetric under blur
     n = ds.size
@@ -196,7 +204,7 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = 72
     strong = level - b0 > 0.4 * (inside_hi - b0)
     idx, level = idx[strong], level[strong]
     if idx.size < 20:
-        return circle
+        return circle, 0
     rb = np.empty(idx.size)
     for k, (i, L) in enumerate(zip(idx, level)):
         t = 0.5 * (b0 + L)
@@ -218,4 +226,4 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = 72
     if inl is None or inl.sum() < 20:
         inl = np.ones(len(px), dtype=bool)
     fit = _fit_circle(px[inl], py[inl], aspect, x0=(cx, cy, r))
-    return fit
+    return fit, int(inl.sum())
