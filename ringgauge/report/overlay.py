@@ -66,7 +66,7 @@ def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: s
     if isinstance(ap, dict) and ap.get("centre_px") and ap.get("diameter_px"):
         (ax_, ay_), d = ap["centre_px"], ap["diameter_px"]
         ax.add_patch(Ellipse((ax_, ay_), d, d * yscale, fill=False, lw=1.0, ec="#00a0ff", ls="--"))
-        td = setup.get("test_diameter_mm")
+        td = form.get("test_diameter_mm") or setup.get("test_diameter_mm")
         if td and px:
             dpx = td / (px * 1e-3)
             ax.add_patch(Ellipse((ax_, ay_), dpx, dpx * yscale, fill=False, lw=1.0, ec="#ffd000", ls=":"))
@@ -129,13 +129,14 @@ def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
 
 
 FORM_TERMS = (
-    ("power_fringes", "power_u_fringes", "power"),
+    ("power_fringes", "power_u_fringes", "power (A)"),
     ("astigmatism_fringes", "astigmatism_u_fringes", "astigmatism"),
-    ("irregularity_fringes", "irregularity_u_fringes", "irregularity"),
-    ("rsi_fringes", "rsi_u_fringes", "rot. sym. irregularity"),
+    ("irregularity_fringes", "irregularity_u_fringes", "irregularity (B)"),
+    ("rot_sym_irregularity_fringes", "rot_sym_irregularity_u_fringes", "rot. sym. irregularity (C)"),
     ("rms_total_fringes", "rms_total_u_fringes", "RMSt"),
     ("rms_irregularity_fringes", "rms_irregularity_u_fringes", "RMSi"),
     ("rms_asymmetric_fringes", "rms_asymmetric_u_fringes", "RMSa"),
+    ("pv_total_fringes", "pv_total_u_fringes", "PV total"),
 )
 
 

@@ -111,14 +111,43 @@ def _rule_note(rule: str | None) -> str:
     return ""
 
 
-def _results_rows(result: dict) -> list[dict]:
-    from .overlay import FORM_TERMS
+FORM_LABELS = {
+    "power": "Power (sagitta deviation, A)",
+    "astigmatism": "Astigmatism",
+    "irregularity": "Irregularity (B)",
+    "rot_sym_irregularity": "Rotationally symmetric irregularity (C)",
+    "rms_total": "RMSt",
+    "rms_irregularity": "RMSi",
+    "rms_asymmetric": "RMSa",
+    "pv_total": "PV of the form deviation",
+}
 
+
+def _num(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _row(quantity: str, value, U, unit: str, k) -> dict:
+    v, u = _value_u(value, U, unit)
+    return {"quantity": quantity, "value": v, "U": u, "k": _fmt(k)}
+
+
+def _form_terms(form: dict) -> list[str]:
+    """Form term names in the order a report lists them, then any other measured term (none dropped)."""
+    names = [t for t in FORM_LABELS if _num(form.get(f"{t}_fringes"))]
+    for key in sorted(form):
+        if key.endswith("_fringes") and "_u_" not in key.lower() and _num(form.get(key)):
+            t = key[: -len("_fringes")]
+            if t not in names and not t.lower().endswith("_u"):
+                names.append(t)
+    return names
+
+
+def _results_rows(result: dict) -> list[dict]:
     rows = []
     k = result.get("k") or 2.0
     if result.get("radius_mm") is not None:
-        v, u = _value_u(result["radius_mm"], result.get("radius_U_mm"), "mm")
-        rows.append({"quantity": "Radius of curvature R", "value": v, "U": u, "k": _fmt(k)})
+        rows.append(_row("Radius of curvature R", result["radius_mm"], result.get("radius_U_mm"), "mm", k))
     fr = result.get("fringes") or {}
     if fr.get("rings_used") is not None:
         rows.append({"quantity": "Rings used in the fit", "value": str(fr["rings_used"]), "U": "—", "k": "—"})
@@ -126,34 +155,49 @@ def _results_rows(result: dict) -> list[dict]:
         rows.append({"quantity": "Contact offset", "value": f"{fr['contact_offset_fringes']:.2f} fringes",
                      "U": "—", "k": "—"})
     form = result.get("form") or {}
-    if isinstance(form, dict):
-        for key, ukey, label in FORM_TERMS:
-            val = form.get(key)
-            if isinstance(val, (int, float)) and math.isfinite(val):
-                uu = form.get(ukey)
-                U = k * uu if isinstance(uu, (int, float)) else None
-                v, u = _value_u(val, U, "fringes")
-                rows.append({"quantity": label[0].upper() + label[1:], "value": v, "U": u, "k": _fmt(k)})
-        known = {name for term in FORM_TERMS for name in term[:2]}
-        units = (("_fringes", "fringes"), ("_nm", "nm"), ("_um", "µm"), ("_mm", "mm"))
-        for key in sorted(form):  # any other measured form quantity is printed too, never dropped
-            val = form.get(key)
-            unit = next((u for suffix, u in units if key.endswith(suffix)), None)
-            if (key in known or unit is None or "_u_" in key.lower() or key.lower().endswith("_u")
-                    or key.lower().startswith("u_") or isinstance(val, bool)
-                    or not isinstance(val, (int, float)) or not math.isfinite(val)):
-                continue
-            suffix = next(sfx for sfx, u in units if key.endswith(sfx))
-            uu = form.get(key[: -len(suffix)] + "_u" + suffix)
-            U = k * uu if isinstance(uu, (int, float)) else None
-            v, u = _value_u(val, U, unit)
-            name = key[: -len(suffix)].replace("_", " ")
-            rows.append({"quantity": name[0].upper() + name[1:], "value": v, "U": u, "k": _fmt(k)})
+    if not isinstance(form, dict):
+        return rows
+    k = form.get("k") or k
+    for t in _form_terms(form):
+        val, u = form[f"{t}_fringes"], form.get(f"{t}_u_fringes")
+        row = _row(FORM_LABELS.get(t, t.replace("_", " ").capitalize()), val, k * u if _num(u) else None,
+                   "fringes", k)
+        vnm, unm = form.get(f"{t}_nm"), form.get(f"{t}_u_nm")
+        if _num(vnm):  # ISO 10110-5 prefers nanometres; fringes are kept with their wavelength
+            nm_v, nm_u = _value_u(vnm, k * unm if _num(unm) else None, "nm")
+            row["value"] += f" = {nm_v}"
+            if nm_u not in ("—", "not available"):
+                row["U"] += f" = {nm_u}"
+        rows.append(row)
+    if form.get("power_sign") is not None:
+        meaning = (form.get("sign") or {}).get("meaning")
+        rows.append({"quantity": "Sign of power", "value": str(form["power_sign"]) + (f" ({meaning})" if meaning
+                                                                                    else ""), "U": "—", "k": "—"})
+    if _num(form.get("astigmatism_axis_deg")) and _num(form.get("astigmatism_fringes")):
+        ua = form.get("astigmatism_axis_u_deg")
+        rows.append({"quantity": "Astigmatism axis", "value": f"{form['astigmatism_axis_deg']:.1f}°",
+                     "U": f"{k * ua:.1f}°" if _num(ua) else "not available", "k": _fmt(k)})
+    if _num(form.get("test_diameter_mm")):
+        src = form.get("test_diameter_source")
+        rows.append({"quantity": "Test diameter used", "value": f"{form['test_diameter_mm']:.2f} mm"
+                     + (f" ({src})" if src else ""), "U": "—", "k": "—"})
+    rad = form.get("radius") if isinstance(form.get("radius"), dict) else None
+    if rad:
+        if _num(rad.get("delta_r_mm")):
+            rows.append(_row("Radius difference to the test plate ΔR", rad["delta_r_mm"], rad.get("delta_r_U_mm"),
+                             "mm", rad.get("k") or k))
+        if _num(rad.get("surface_radius_mm")):
+            rows.append(_row("Surface radius", rad["surface_radius_mm"], rad.get("surface_radius_U_mm"), "mm",
+                             rad.get("k") or k))
+        elif rad.get("surface_radius_candidates_mm"):
+            c = rad["surface_radius_candidates_mm"]
+            rows.append({"quantity": "Surface radius", "value": f"{c[0]:.4f} mm or {c[1]:.4f} mm",
+                         "U": "—", "k": "—"})
     return rows
 
 
-def _budget(result: dict) -> dict | None:
-    b = result.get("budget")
+def _budget_table(b: dict | None) -> dict | None:
+    """A GUM budget dict (``Budget.to_dict()``) as printed rows."""
     if not b or not b.get("rows"):
         return None
     rows = []
@@ -178,11 +222,66 @@ def _budget(result: dict) -> dict | None:
     }
 
 
+def _budgets(result: dict) -> list[dict]:
+    out = [_budget_table(result.get("budget"))]
+    rad = (result.get("form") or {}).get("radius") if isinstance(result.get("form"), dict) else None
+    if isinstance(rad, dict):
+        out.append(_budget_table(rad.get("budget_surface_radius") or rad.get("budget_delta_r")))
+    return [b for b in out if b]
+
+
+def _form_budget(result: dict) -> list[list[str]]:
+    """Per-term uncertainty contributions of the form evaluation: term, source, u in fringes and nm."""
+    form = result.get("form") if isinstance(result.get("form"), dict) else {}
+    rows = []
+    order = list(FORM_LABELS)
+    budget = form.get("uncertainty_budget") or {}
+
+    def rank(key: str) -> tuple:
+        t = key[: -len("_fringes")] if key.endswith("_fringes") else key
+        return (order.index(t) if t in order else len(order), key)
+
+    for key in sorted(budget, key=rank):
+        items = budget[key]
+        t = key[: -len("_fringes")] if key.endswith("_fringes") else key
+        label = FORM_LABELS.get(t, t.replace("_", " "))
+        for it in items or []:
+            rows.append([label, str(it.get("source", "")), f"{_g(it.get('u_fringes'), 2)} fringes",
+                         f"{_g(it.get('u_nm'), 2)} nm" if _num(it.get("u_nm")) else "—"])
+    return rows
+
+
+def _verdict_terms(verdict: dict) -> dict:
+    """The per-term verdicts as a table: {"header": [...], "rows": [[...], ...]}."""
+    header = ["Term", "Measured", "Limit", "λ of the tolerance", "Verdict", "Note"]
+    rows, other = [], []
+    for t in verdict.get("terms") or []:
+        if isinstance(t, dict) and _num(t.get("value_fringes")):
+            v, U = _value_u(t["value_fringes"], t.get("U_fringes"), "fringes")
+            name = str(t.get("term", ""))
+            rows.append([
+                FORM_LABELS.get(name, name),
+                v if U in ("—", "not available") else f"{v.replace(' fringes', '')} ± {U}",
+                f"{_fmt(t.get('limit_fringes'))} fringes",
+                f"{_fmt(t.get('wavelength_nm'))} nm" if t.get("wavelength_nm") else "—",
+                str(t.get("verdict", "")),
+                str(t.get("note") or ""),
+            ])
+        elif isinstance(t, dict):
+            other.append(", ".join(f"{k}: {_fmt(v)}" for k, v in t.items()))
+        else:
+            other.append(str(t))
+    rows += [[o, "", "", "", "", ""] for o in other]
+    return {"header": header, "rows": rows} if rows else {"header": [], "rows": []}
+
+
 def _method(result: dict) -> str:
     if result.get("form"):
+        form = result["form"] if isinstance(result["form"], dict) else {}
+        how = f" Evaluation: {form['method']}." if form.get("method") else ""
         return ("Interference fringes of the surface against a test plate under a monochromatic source "
                 "(one fringe = λ/2 of surface height). Form deviation evaluated over the test diameter and "
-                "reported in ISO 10110-5 terms (power / sagitta deviation, irregularity). Uncertainty "
+                f"reported in ISO 10110-5 terms (power / sagitta deviation, irregularity).{how} Uncertainty "
                 "evaluated per GUM (JCGM 100:2008).")
     fr = result.get("fringes") or {}
     how = f" ({fr['method']})" if fr.get("method") else ""
@@ -190,6 +289,24 @@ def _method(result: dict) -> str:
             f"and fitted by least squares as r² = (λR/n)·m + c against fringe order m{how}; the intercept "
             "absorbs a contact offset. R follows from the slope. Uncertainty evaluated per GUM "
             "(JCGM 100:2008).")
+
+
+def _plate_text(plate) -> str:
+    if not isinstance(plate, dict):
+        return str(plate) if plate else "none (optical flat, or not stated)"
+    parts = [f"{plate['id']}" if plate.get("id") else "entered by hand (not in the plate register)"]
+    if _num(plate.get("radius_mm")):
+        u = plate.get("radius_u_mm")
+        parts.append(f"certified radius {plate['radius_mm']:g} mm"
+                     + (f", standard uncertainty {u:g} mm" if _num(u) and u > 0 else ", uncertainty not given"))
+    if plate.get("kind"):
+        parts.append(str(plate["kind"]))
+    for key, label in (("certificate", "certificate"), ("calibrated", "calibrated"), ("due", "due")):
+        if plate.get(key):
+            parts.append(f"{label} {plate[key]}")
+    if plate.get("overdue"):
+        parts.append("CALIBRATION OVERDUE")
+    return ", ".join(parts)
 
 
 def certificate_content(record, shop: dict, *, approver: str | None = None) -> dict:
@@ -209,12 +326,8 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
     verdict = res.get("verdict") or {}
     if not isinstance(verdict, dict):
         verdict = {"overall": str(verdict)}
-    terms = []
-    for t in verdict.get("terms") or []:
-        if isinstance(t, dict):
-            terms.append({str(k): _fmt(v) for k, v in t.items()})
-        else:
-            terms.append({"term": str(t)})
+    form = res.get("form") if isinstance(res.get("form"), dict) else {}
+    tol = form.get("tolerance") if isinstance(form.get("tolerance"), dict) else {}
     plate = setup.get("test_plate")
     pixel_text = "—"
     if pix:
@@ -236,27 +349,35 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
         "customer": {"customer": m.customer or "—", "order": m.order_ref or "—"},
         "item": {"part": m.part or "—", "drawing": m.drawing or "—", "surface": m.surface or "—",
                  "serial": m.serial or "—", "lot": m.lot or "—"},
-        "specification": {
-            "tolerance": setup.get("tolerance") or "not specified",
-            "wavelength": f"{_fmt(setup.get('wavelength_nm'), 7)} nm" if setup.get("wavelength_nm") else "—",
-            "test diameter": f"{_fmt(setup.get('test_diameter_mm'))} mm" if setup.get("test_diameter_mm")
-            else "full clear aperture",
-            "fringes counted": setup.get("fringe_kind") or "—",
-            "gap medium index": _fmt(setup.get("medium_index")),
-        },
+        # lists of pairs, not dicts: stored content has its keys sorted, and the print order matters
+        "specification": [
+            ["Tolerance", (setup.get("tolerance") or "not specified")
+             + (f" (fringes of λ = {_fmt(tol['wavelength_nm'])} nm"
+                + (")" if tol.get("wavelength_stated") else ", the usual value when none is stated)")
+                if tol.get("wavelength_nm") else "")],
+            ["Test diameter", f"{_fmt(setup.get('test_diameter_mm'))} mm" if setup.get("test_diameter_mm")
+             else (f"{form['test_diameter_mm']:.2f} mm ({form.get('test_diameter_source') or 'measured'})"
+                   if _num(form.get("test_diameter_mm")) else "full clear aperture")],
+            ["Wavelength", f"{_fmt(setup.get('wavelength_nm'), 7)} nm" if setup.get("wavelength_nm") else "—"],
+            ["Gap medium index", _fmt(setup.get("medium_index"))],
+        ] + ([] if form else [["Fringes counted", setup.get("fringe_kind") or "—"]]),
+        "mode": "radius" if res.get("radius_mm") is not None or not form else "form",
         "method": _method(res),
         "dates": {"measured (UTC)": record.created_utc[:19].replace("T", " "),
                   "record": f"{record.id} ({record.uid})"},
         "results": _results_rows(res),
         "coverage": f"Expanded uncertainty U = k·u_c with coverage factor k = {_fmt(res.get('k') or 2.0)} "
                     "(coverage probability about 95 %).",
-        "budget": _budget(res),
+        "budgets": _budgets(res),
+        "form_budget": _form_budget(res),
         "decision": {"verdict": verdict.get("overall") or "not evaluated",
                      "rule": verdict.get("decision_rule") or setup.get("decision_rule") or "simple",
-                     "rule_note": _rule_note(verdict.get("decision_rule") or setup.get("decision_rule")),
-                     "terms": terms},
+                     "rule_note": _rule_note(verdict.get("rule") or verdict.get("decision_rule")
+                                             or setup.get("decision_rule")),
+                     "meaning": " ".join(str(verdict[k]) for k in ("meaning", "power_note") if verdict.get(k)),
+                     "terms": _verdict_terms(verdict)},
         "traceability": {
-            "test plate": plate if isinstance(plate, dict) else (plate or "none (optical flat or not stated)"),
+            "test plate": _plate_text(plate),
             "wavelength source": f"{src.get('name', '—')}, {_fmt(setup.get('wavelength_nm'), 7)} nm, "
                                  f"standard uncertainty {_fmt(setup.get('wavelength_u_nm'), 3)} nm; "
                                  f"{src.get('reference') or 'reference not stated'}",
@@ -608,8 +729,9 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
          ("Measured (UTC)", c["dates"]["measured (UTC)"]), ("Inspection record", c["dates"]["record"])],
         st, [34 * mm, W - 34 * mm]))
     story.append(Paragraph("Specification and method", st["h2"]))
-    story.append(_kv_table([(k[0].upper() + k[1:], v) for k, v in c["specification"].items()]
-                           + [("Method", c["method"])], st, [34 * mm, W - 34 * mm]))
+    spec = c["specification"]
+    spec = [(k[0].upper() + k[1:], v) for k, v in (spec.items() if isinstance(spec, dict) else spec)]
+    story.append(_kv_table(spec + [("Method", c["method"])], st, [34 * mm, W - 34 * mm]))
     story.append(Paragraph("Results", st["h2"]))
     story.append(_grid_table(["Quantity", "Value", "Expanded uncertainty U", "k"],
                              [[r["quantity"], r["value"], r["U"], r["k"]] for r in c["results"]],
@@ -625,15 +747,20 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
                                "made.", st["base"]))
     else:
         story.append(Paragraph(f"Decision rule: {_esc(d['rule'])}. {_esc(d['rule_note'])}", st["base"]))
-    if d["terms"]:
-        keys = list(dict.fromkeys(k for t in d["terms"] for k in t))
-        front = [k for k in ("term", "quantity", "name") if k in keys]
-        keys = front + [k for k in keys if k not in front]
+        if d.get("meaning"):
+            story.append(Paragraph(_esc(d["meaning"]), st["base"]))
+    terms = d.get("terms")
+    if isinstance(terms, list) and terms:  # content issued before terms became a table
+        keys = list(dict.fromkeys(k for t in terms for k in t))
+        terms = {"header": keys, "rows": [[t.get(k, "") for k in keys] for t in terms]}
+    if isinstance(terms, dict) and terms.get("rows"):
         story.append(Spacer(1, 3))
-        story.append(_grid_table(keys, [[t.get(k, "") for k in keys] for t in d["terms"]], st,
-                                 [W / len(keys)] * len(keys)))
-    if c.get("budget"):
-        b = c["budget"]
+        widths = [0.24, 0.2, 0.12, 0.14, 0.14, 0.16] if len(terms["header"]) == 6 else \
+            [1 / len(terms["header"])] * len(terms["header"])
+        story.append(_grid_table(terms["header"], terms["rows"], st, [W * x for x in widths]))
+    # older issued content kept one "budget"; a reprint lays it out as it was
+    budgets = c.get("budgets") if "budgets" in c else ([c["budget"]] if c.get("budget") else [])
+    for b in budgets:
         story.append(CondPageBreak(50 * mm))
         story.append(Paragraph(f"Uncertainty budget — {_esc(b['output'])} / {_esc(b['unit'])}", st["h2"]))
         story.append(_grid_table(
@@ -646,17 +773,29 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
             f"Combined standard uncertainty u_c = {_esc(b['u_c'])}; effective degrees of freedom "
             f"{_esc(b['dof_eff'])}; coverage factor k = {_esc(b['k'])}; expanded uncertainty U = {_esc(b['U'])} "
             f"({_esc(b['coverage'])}).", st["small"]))
+    if c.get("form_budget"):
+        story.append(CondPageBreak(50 * mm))
+        story.append(Paragraph("Uncertainty contributions to the form terms (standard uncertainties, k = 1)",
+                               st["h2"]))
+        story.append(_grid_table(["Term", "Source", "u / fringes", "u / nm"], c["form_budget"], st,
+                                 [W * 0.34, W * 0.34, W * 0.16, W * 0.16]))
+        story.append(Paragraph("Contributions are combined in quadrature for each term (GUM, uncorrelated "
+                               "inputs); U = k·u_c appears in the results table.", st["small"]))
     # figures
     with tempfile.TemporaryDirectory(prefix="rg-cert-") as tmp:
         figs = []
         if image01 is not None and result is not None:
             p = Path(tmp) / "overlay.jpg"
             overlay_png(image01, result, p, fmt="jpeg")
-            figs.append((_image_flowable(p, W * 0.49, 75 * mm), "Image with the fitted rings and centre"))
+            figs.append((_image_flowable(p, W * 0.49, 75 * mm),
+                         "Image with the clear aperture (dashed) and the test diameter (dotted)"
+                         if c.get("mode") == "form" else "Image with the fitted rings and centre"))
         if result is not None:
             p = Path(tmp) / "fit.png"
             if fit_plot_png(result, p):
-                figs.append((_image_flowable(p, W * 0.49, 75 * mm), "Fit behind the result"))
+                figs.append((_image_flowable(p, W * 0.49, 75 * mm),
+                             "Form terms with their expanded uncertainty" if c.get("mode") == "form"
+                             else "Fit behind the result: r² against fringe order, and residuals"))
         story.append(CondPageBreak(85 * mm))
         story.append(Paragraph("Image and fit", st["h2"]))
         if figs:
@@ -669,8 +808,7 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
         story.append(Paragraph("Traceability and conditions", st["h2"]))
         tr = c["traceability"]
         plate = tr["test plate"]
-        plate_txt = ", ".join(f"{k.replace('_', ' ')} {_fmt(v)}" for k, v in plate.items()) \
-            if isinstance(plate, dict) else str(plate)
+        plate_txt = _plate_text(plate) if isinstance(plate, dict) else str(plate)
         story.append(_kv_table(
             [("Test plate", plate_txt), ("Wavelength source", tr["wavelength source"]),
              ("Pixel scale", tr["pixel scale"]), ("Pixel-scale calibration", tr["pixel-scale calibration"]),

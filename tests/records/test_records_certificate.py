@@ -228,16 +228,57 @@ def test_shop_settings(tmp_path, monkeypatch):
         load_shop()
 
 
-def test_form_quantities_are_all_printed(make_result):
-    from ringgauge.report.pdf import _results_rows
+def form_result(make_result) -> dict:
+    """A test-plate result of the shape the form evaluation gives (key names as in ``FormResult.to_dict``;
+    invented values, not check values)."""
+    res = make_result("tp")
+    res.update(radius_mm=None, radius_u_mm=None, radius_U_mm=None, budget=None, fringes=None, centre_px=None)
+    fr = 273.037
+    form = {"method": "full-aperture gap-model fit", "wavelength_nm": 546.074, "fringe_nm": fr, "k": 2.0}
+    for t, v, u in (("power", 1.25, 0.05), ("astigmatism", 0.3, 0.02), ("irregularity", 0.21, 0.01),
+                    ("rot_sym_irregularity", 0.08, 0.01), ("rms_total", 0.3, 0.01), ("rms_irregularity", 0.04,
+                    0.002), ("rms_asymmetric", 0.03, 0.002), ("pv_total", 1.4, 0.06)):
+        form.update({f"{t}_fringes": v, f"{t}_u_fringes": u, f"{t}_nm": v * fr, f"{t}_u_nm": u * fr})
+    form.update(power_sign="+", sign={"sign": "+", "meaning": "centre contact"}, astigmatism_axis_deg=42.0,
+                astigmatism_axis_u_deg=1.5, test_diameter_mm=18.0, test_diameter_source="tolerance",
+                aperture={"centre_px": [160.0, 120.0], "diameter_px": 200.0},
+                uncertainty_budget={"power_fringes": [{"source": "fit (pixel noise)", "u_fringes": 0.01,
+                                                       "u_nm": 2.7}]},
+                radius={"delta_r_mm": -0.0105, "delta_r_U_mm": 0.0028, "surface_radius_mm": 49.9895,
+                        "surface_radius_U_mm": 0.0049, "k": 2.0},
+                tolerance={"text": "3/2(0.5)", "wavelength_nm": 546.07, "wavelength_stated": False})
+    res["form"] = form
+    res["verdict"] = {"overall": "conditional pass", "rule": "simple", "decision_rule": "simple acceptance",
+                      "meaning": "the result lies within U of a limit",
+                      "terms": [{"term": "power", "value_fringes": 1.25, "U_fringes": 0.1, "limit_fringes": 2.0,
+                                 "wavelength_nm": 546.07, "verdict": "pass", "note": ""},
+                                {"term": "irregularity", "value_fringes": 0.48, "U_fringes": 0.04,
+                                 "limit_fringes": 0.5, "wavelength_nm": 546.07, "verdict": "conditional pass",
+                                 "note": ""}]}
+    res["setup"]["test_plate"] = {"id": "TP-0117", "radius_mm": 50.0, "radius_u_mm": 0.002, "kind": "concave",
+                                  "calibrated": "2026-03-14", "due": "2027-03-14", "overdue": False}
+    return res
 
-    res = make_result()
-    res["radius_mm"] = None
-    res["form"].update(astigmatism_fringes=0.4, astigmatism_u_fringes=0.05, radius_difference_mm=0.012,
-                       radius_difference_u_mm=0.001, sag_deviation_nm=160.0, power_U_fringes=0.1)
-    rows = {r["quantity"]: (r["value"], r["U"]) for r in _results_rows(res)}
-    assert rows["Power"] == ("1.20 fringes", "0.10 fringes")
-    assert rows["Astigmatism"] == ("0.40 fringes", "0.10 fringes")
-    assert rows["Radius difference"] == ("0.0120 mm", "0.0020 mm")
-    assert rows["Sag deviation"][0] == "160 nm"
-    assert "Power U" not in rows and "Radius of curvature R" not in rows
+
+def test_form_certificate(tmp_path, make_result):
+    img = tmp_path / "tp.png"
+    yy, xx = np.mgrid[0:240, 0:320]
+    save_png(img, 0.5 + 0.4 * np.cos(((xx - 160.0) ** 2 + (yy - 120.0) ** 2) / 3000.0))
+    res = form_result(make_result)
+    res["image"].update(path=str(img), sha256=sha256_file(img), width=320, height=240)
+    store = open_store(tmp_path / "r.sqlite")
+    rec = store.add(RecordMeta(part="PCC-20-50", lot="L-0051", serial="0012", operator="A. Kestrel"), res)
+    doc, path, _ = issue_certificate(store, rec.id, tmp_path / "f.pdf", SHOP)
+    text = " ".join(text_of(path))
+    for s in ("Power (sagitta deviation, A)", "1.25 fringes = 341 nm", "0.10 fringes = 27 nm",
+              "Irregularity (B)", "Rotationally symmetric irregularity (C)", "RMSi", "PV of the form deviation",
+              "Sign of power", "centre contact", "Astigmatism axis", "42.0°", "3.0°",
+              "Radius difference to the test plate ΔR", "-0.0105 mm", "Surface radius", "49.9895 mm",
+              "3/2(0.5) (fringes of λ = 546.07 nm", "18.00 mm (tolerance)", "CONDITIONAL PASS", "within U of a limit",
+              "Limit", "0.5 fringes", "0.480 ± 0.040 fringes", "Uncertainty contributions to the form terms",
+              "fit (pixel noise)", "TP-0117, certified radius 50 mm, standard uncertainty 0.002 mm, concave",
+              "due 2027-03-14", "Image with the clear aperture", "Form terms with their expanded uncertainty"):
+        assert s in text, s
+    assert "Fringes counted" not in text and "Radius of curvature R" not in text
+    assert verify_pdf(path, store).ok
+    store.close()
