@@ -58,6 +58,8 @@ MIN_PEAK_RATIO = 12.0
 MIN_EXPLAINED = 0.2
 #: points used by the least-squares refinement (a regular sub-grid of the pattern area)
 MAX_FIT_POINTS = 40_000
+#: cross terms a phase_1 + b phase_2 of a grid's model (a grid of opaque lines is a product of two line sets)
+MIXED_ORDERS = ((1, 1), (1, -1), (2, 1), (2, -1), (1, 2), (1, -2), (2, 2), (2, -2))
 #: where a square grid's second line set is looked for: f1 turned by 90° within these tolerances
 GRID_ANGLE_TOL_DEG = 15.0
 GRID_PERIOD_TOL = 0.2
@@ -271,13 +273,14 @@ class _Model:
                 c, si = c * c1 - si * s1, si * c1 + c * s1
                 k += 2
         if self.ndir == 2 and self.mixed:
-            (c0, s0), (c1, s1) = cs
-            A[:, k], A[:, k + 1] = c0 * c1 - s0 * s1, s0 * c1 + c0 * s1  # phase_0 + phase_1
-            A[:, k + 2], A[:, k + 3] = c0 * c1 + s0 * s1, s0 * c1 - c0 * s1  # phase_0 - phase_1
+            for a, b in MIXED_ORDERS:
+                q = a * ph[0] + b * ph[1]
+                A[:, k], A[:, k + 1] = np.cos(q), np.sin(q)
+                k += 2
         return A
 
     def nlin(self) -> int:
-        return 3 + 2 * self.harmonics * self.ndir + (4 if self.ndir == 2 and self.mixed else 0)
+        return 3 + 2 * self.harmonics * self.ndir + (2 * len(MIXED_ORDERS) if self.ndir == 2 and self.mixed else 0)
 
     def solve(self, theta):
         """Amplitudes by linear least squares (normal equations: the columns are nearly orthogonal)."""
@@ -301,10 +304,10 @@ class _Model:
                 k += 2
             slope.append(acc)
         if self.ndir == 2 and self.mixed:
-            for sgn in (1.0, -1.0):
+            for a, b in MIXED_ORDERS:
                 t = -coef[k] * A[:, k + 1] + coef[k + 1] * A[:, k]
-                slope[0] = slope[0] + t
-                slope[1] = slope[1] + sgn * t
+                slope[0] = slope[0] + a * t
+                slope[1] = slope[1] + b * t
                 k += 2
         D = np.empty((self.xs.size, 2 * self.ndir))
         for j in range(self.ndir):
