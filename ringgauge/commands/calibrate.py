@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import argparse
 import json
 import sys
+import textwrap
 
 from ..errors import InputError
 from ..uncertainty import format_value
@@ -19,13 +21,13 @@ def register(sub) -> None:
     p = sub.add_parser(
         "calibrate",
         help="measure the pixel scale (µm per pixel) from a calibration target and save it as a bench profile",
-        description=(
+        description=textwrap.fill(
             "Measure the object-space pixel scale from a photograph of a calibration target taken at the same "
             "focus and magnification as the parts: a line scale (stage micrometer) or grating of known pitch, a "
             "crossed grid or dot grid, or a reference disc / ring gauge of certified diameter. Give two images of "
             "a line scale, turned by about 90° in between, to measure x and y separately. With --bench the "
             "result is saved as that bench profile (made if new; the previous calibration is kept in its "
-            "history) and 'ringgauge analyze --bench NAME' uses it."
+            "history) and 'ringgauge analyze --bench NAME' uses it.", 100
         ),
         epilog=(
             "examples:\n"
@@ -33,7 +35,7 @@ def register(sub) -> None:
             "  ringgauge calibrate scale_0.png scale_90.png --grating-pitch 100 --bench B2\n"
             "  ringgauge calibrate disc.png --disc-diameter 12.000 --diameter-u 0.002 --bench B2 --json"
         ),
-        formatter_class=__import__("argparse").RawDescriptionHelpFormatter,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("images", nargs="+", metavar="IMAGE", help="calibration image (two for a line scale turned 90°)")
     what = p.add_mutually_exclusive_group(required=True)
