@@ -71,7 +71,7 @@ def run(args) -> int:
         run_ = run_lot(store, images, setup, meta, workers=args.workers, retry_failed=args.retry_failed,
                        progress=not args.quiet, warnings=warnings)
         records = store.find(RecordFilter(lot=meta.lot), with_result=False)
-        limits = power_limits_from_tolerance(setup.tolerance)
+        limits = power_limits_from_tolerance(setup.tolerance, setup.wavelength_nm)
         radius_limits = tuple(args.radius_limits) if args.radius_limits else None
         summary = summarise_lot(records, meta.lot, power_limits=limits, radius_limits=radius_limits)
         chart = Path(args.chart) if args.chart else Path(f"{_safe(meta.lot)}-control-chart.png")
@@ -119,8 +119,8 @@ def _summary_text(run_, summary, chart, report) -> str:
             lines.append(f"  {sp.quantity}: mean {sp.mean:.{dig}g} {sp.unit}, standard deviation {sd} (n = {sp.n})")
     for c in summary.capabilities:
         cp = "—" if c.cp is None else f"{c.cp:.2f}"
-        lo = "—" if c.lsl is None else f"{c.lsl:g}"
-        hi = "—" if c.usl is None else f"{c.usl:g}"
+        lo = "—" if c.lsl is None else f"{c.lsl:.4g}"
+        hi = "—" if c.usl is None else f"{c.usl:.4g}"
         lines.append(f"  capability of {c.quantity} ({lo} to {hi} {c.unit}): Cp {cp}, Cpk {c.cpk:.2f}")
     for ch in summary.charts:
         flag = f"; {len(ch.out_of_limits)} point(s) outside the limits" if ch.out_of_limits else ""

@@ -7,7 +7,6 @@ grown), and any issued document can be reprinted by its number.
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
 from ..errors import InputError
@@ -15,17 +14,21 @@ from .lot import summarise_lot
 from .store import IssuedDocument, RecordFilter, Store
 
 
-def power_limits_from_tolerance(tolerance: str | None) -> tuple[float, float] | None:
-    """Power limits −A..+A in fringes from the ``3/A`` part of an ISO 10110-5 form tolerance (None if absent
-    or given as '-')."""
+def power_limits_from_tolerance(tolerance: str | None, wavelength_nm: float | None = None
+                                ) -> tuple[float, float] | None:
+    """Power limits −A..+A from an ISO 10110-5 form tolerance, in fringes of ``wavelength_nm`` (the lot's
+    measuring wavelength; the tolerance's own λ when None). None when no tolerance or A is given as '-'.
+
+    A tolerance in fringes of λ_t converts to fringes of the measuring λ as A·λ_t/λ (one fringe = λ/2 of
+    height)."""
     if not tolerance:
         return None
-    m = re.match(r"\s*3\s*/\s*([0-9]*\.?[0-9]+|-)", tolerance)
-    if not m:
-        raise InputError(f"tolerance {tolerance!r} does not start with '3/A' (ISO 10110-5), e.g. 3/2(0.5)")
-    if m.group(1) == "-":
+    from ..form.tolerance import parse_tolerance
+
+    tol = parse_tolerance(tolerance)
+    if tol.power is None:
         return None
-    a = float(m.group(1))
+    a = tol.power * (tol.wavelength_nm / wavelength_nm if wavelength_nm else 1.0)
     return (-a, a)
 
 
@@ -79,7 +82,7 @@ def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, pap
         raise InputError(f"lot {lot!r} has no records in {store.where}; run 'ringgauge batch' first")
     tol = tolerance or next(((r.setup or {}).get("tolerance") for r in records
                              if (r.setup or {}).get("tolerance")), None)
-    summary = summarise_lot(records, lot, power_limits=power_limits_from_tolerance(tol),
+    summary = summarise_lot(records, lot, power_limits=power_limits_from_tolerance(tol, _lot_wavelength(records)),
                             radius_limits=radius_limits)
     content = lot_report_content(records, summary, shop, tolerance=tol, approver=approver)
     doc = store.issue("lot report", content, lot=lot, prefix=shop.get("certificate_prefix") or "RG")
@@ -87,6 +90,16 @@ def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, pap
     if chart_out is not None and summary.charts:
         chart_png(summary.charts, chart_out, title=f"Lot {lot}")
     return doc, path
+
+
+def _lot_wavelength(records) -> float | None:
+    """The measuring wavelength shared by a lot's records (None when they differ or none is stored)."""
+    lams = {round(float((r.setup or {}).get("wavelength_nm")), 4) for r in records
+            if (r.setup or {}).get("wavelength_nm")}
+    if len(lams) > 1:
+        raise InputError(f"the lot's records were measured at different wavelengths ({', '.join(map(str, sorted(lams)))} "
+                         "nm); their power in fringes cannot be pooled")
+    return lams.pop() if lams else None
 
 
 def reprint(store: Store, number: str, out: str | Path, *, paper: str = "A4") -> tuple[IssuedDocument, Path]:

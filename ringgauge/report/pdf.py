@@ -427,7 +427,7 @@ def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
                 "sd": "—" if sp["sd"] is None else f"{sp['sd']:.3g} {sp['unit']}",
                 "range": f"{sp['minimum']:.{dig}g} to {sp['maximum']:.{dig}g} {sp['unit']}"}
 
-    caps = [{"quantity": c["quantity"], "limits": f"{_fmt(c['lsl'])} to {_fmt(c['usl'])} {c['unit']}",
+    caps = [{"quantity": c["quantity"], "limits": f"{_lim(c['lsl'])} to {_lim(c['usl'])} {c['unit']}",
              "n": str(c["n"]), "mean": f"{c['mean']:.4g} {c['unit']}", "s": f"{c['sd']:.3g} {c['unit']}",
              "Cp": "—" if c["cp"] is None else _index(c["cp"]), "Cpk": _index(c["cpk"])}
             for c in s["capability"]]
@@ -462,6 +462,11 @@ def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
         "approver": approver or shop.get("approver") or "",
         "record_checksums": _canonical_digest([r.content_sha256 for r in sorted(records, key=lambda r: r.id)]),
     }
+
+
+def _lim(x) -> str:
+    """A specification limit: four significant digits (a limit converted between wavelengths carries no more)."""
+    return "—" if x is None else f"{x:.4g}"
 
 
 def _index(x: float) -> str:

@@ -207,8 +207,15 @@ def test_power_limits_from_tolerance(tol, limits):
     assert power_limits_from_tolerance(tol) == limits
 
 
+def test_power_limits_convert_to_the_measuring_wavelength():
+    # one fringe = λ/2 of height: 2 fringes of 632.8 nm = 632.8 nm of height = 2 * 632.8 / 546.074 fringes at
+    # the mercury e-line [derived]
+    lo, hi = power_limits_from_tolerance("3/2(0.5); λ = 632.8", 546.074)
+    assert hi == pytest.approx(2 * 632.8 / 546.074) and lo == -hi
+
+
 def test_power_limits_bad_tolerance():
-    with pytest.raises(InputError, match="3/A"):
+    with pytest.raises(InputError, match="ISO 10110-5"):
         power_limits_from_tolerance("power 2")
 
 
