@@ -608,7 +608,8 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
                 f"only {n_periods:.1f} line periods across the image; at least {MIN_PERIODS} are needed -- use a "
                 "finer pitch or a lower magnification"
             )
-    target = {"kind": "line scale" if len(f) == 1 else ("dot grid" if kind == "dots" else "crossed grid"),
+    grid_kind = {"dots": "dot grid", "grid": "crossed grid"}.get(kind, "square grid")
+    target = {"kind": "line scale" if len(f) == 1 else grid_kind,
               "pitch_um": P, "pitch_u_um": uP, "id": target_id}
     ref = ("pitch", P, uP, "µm")
     images = (_image_info(frame),)
@@ -645,7 +646,7 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
               for j, v in enumerate(f)]
     details["light_blur_bound_rel"] = bounds
     light = _light_term(metric, theta, 2, bounds)
-    method = "dot-grid" if kind == "dots" else "crossed-grid"
+    method = {"dots": "dot-grid", "grid": "crossed-grid"}.get(kind, "square-grid")
     res = assemble(method, target, metric(theta), fit_u, ref, extra=[("uneven light through the blur", light,
                    LIGHT_NOTE)], images=images, details=details, warnings=warnings)
     return _anisotropy_note(res)

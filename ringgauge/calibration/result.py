@@ -30,6 +30,7 @@ METHOD_NAMES = {
     "line-scale": "line scale or line grating, one image (x and y assumed equal)",
     "line-scale-pair": "line scale photographed twice, turned by about 90° (x and y measured)",
     "crossed-grid": "crossed line grid (x, y and squareness measured)",
+    "square-grid": "square grid of lines or dots (x, y and squareness measured)",
     "dot-grid": "square dot grid (x, y and squareness measured)",
     "disc": "reference disc or ring gauge of certified diameter (x, y and squareness measured)",
 }

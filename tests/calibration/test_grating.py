@@ -61,7 +61,7 @@ def test_crossed_grid_gives_both_axes_and_squareness_under_rotation():
     for angle in (0.0, 17.0, 38.0):
         im = T.crossed_grid(30.0, angle_deg=angle, camera=Camera(pixel_um=sx, pixel_y_um=sy, **SMALL), rng=11)
         cal = measure_grating(im.image, 30.0, 0.0)
-        assert cal.method == "crossed-grid"
+        assert cal.method == "square-grid"  # found by itself ("auto")
         assert abs(cal.scale_x.value - sx) < 4 * cal.scale_x.u
         assert abs(cal.scale_y.value - sy) < 4 * cal.scale_y.u
         assert abs(cal.squareness.value) < 4 * cal.squareness.u + 1e-3
@@ -71,7 +71,8 @@ def test_crossed_grid_gives_both_axes_and_squareness_under_rotation():
 
 def test_isotropic_grid_is_not_flagged():
     im = T.crossed_grid(30.0, angle_deg=25.0, camera=Camera(pixel_um=1.8, **SMALL), rng=5)
-    cal = measure_grating(im.image, 30.0, 0.0)
+    cal = measure_grating(im.image, 30.0, 0.0, kind="grid")
+    assert cal.method == "crossed-grid"
     assert not cal.anisotropic
     assert abs(cal.scale_x.value - cal.scale_y.value) < 2 * cal.difference_u_um
 
