@@ -101,11 +101,11 @@ def main() -> int:
     part = Path(home) / "part-KL2611-041"
     part.mkdir()
     for i, step in enumerate((0.0, 0.25)):
-        form = synth.SurfaceForm(power=1.7, astig=0.35, astig_axis_deg=25.0, zonal=0.1, piston=0.3 + step)
+        form = synth.SurfaceForm(power=1.7, astig=0.35, astig_axis_deg=25.0, piston=0.3 + step)
         img = synth.test_plate_fringes(form, aperture_diameter_mm=20.0, source="mercury-e",
-                                       camera=synth.Camera(width=640, height=560, pixel_um=40.0), rng=41)
+                                       camera=synth.Camera(width=400, height=400, pixel_um=75.0), rng=41)
         cv2.imwrite(str(part / f"frame-{'AB'[i]}.png"), img.image)
-    win.session.replace_setup(SetupState(source="mercury-e", pixel_size_um=40.0, pixel_size_u_um=0.05,
+    win.session.replace_setup(SetupState(source="mercury-e", pixel_size_um=75.0, pixel_size_u_um=0.05,
                                          operator="J.V.", test_plate="TP-KL-07", tolerance="3/2(0.5)",
                                          test_diameter_mm=20.0))
     win.bench.setup_panel.reload_lists()
@@ -119,7 +119,8 @@ def main() -> int:
     shot("bench-form-verdict.png")
     win.bench.plots.setCurrentIndex(0)
 
-    # 5. the lot review (lenses on the optical flat again)
+    # 5. the lot review (lenses on the optical flat again; the bench keeps its last result meanwhile)
+    win.a_auto.trigger()  # automatic re-analysis off
     win.session.replace_setup(SetupState(source="sodium-d", pixel_size_um=9.8, pixel_size_u_um=0.01,
                                          operator="J.V."))
     win.tabs.setCurrentWidget(win.lot)

@@ -16,6 +16,7 @@ from PySide6.QtWidgets import (
     QGraphicsRectItem,
     QGraphicsScene,
     QGraphicsSimpleTextItem,
+    QGraphicsTextItem,
     QGraphicsView,
 )
 
@@ -237,10 +238,11 @@ class ImageView(QGraphicsView):
             line = QGraphicsLineItem(cx - dx, cy - dy, cx + dx, cy + dy)
             line.setPen(pen)
             g.addToGroup(line)
-            txt = QGraphicsSimpleTextItem(label)
-            txt.setBrush(QBrush(pen.color()))
-            txt.setFlag(QGraphicsSimpleTextItem.GraphicsItemFlag.ItemIgnoresTransformations)
-            txt.setPos(cx + 0.55 * dx, cy + 0.55 * dy)
+            txt = QGraphicsTextItem()
+            txt.setHtml(f"<span style='background-color: rgba(0, 0, 0, 170); color: {pen.color().name()};'>"
+                        f"&nbsp;{label}&nbsp;</span>")
+            txt.setFlag(QGraphicsTextItem.GraphicsItemFlag.ItemIgnoresTransformations)
+            txt.setPos(cx + 0.4 * dx, cy + 0.4 * dy)
             g.addToGroup(txt)
 
     def _draw_centre(self, g, ov: Overlay) -> None:

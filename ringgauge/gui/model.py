@@ -219,9 +219,14 @@ def progress_adapter(progress: ProgressFn | None, cancelled: Callable[[], bool] 
             raise _Cancelled()
         if message is None and isinstance(fraction, str):
             fraction, message = last[0], fraction
-        last[0] = float(fraction)
+        try:
+            f = float(fraction)
+        except (TypeError, ValueError):
+            f = last[0]
+        f = min(max(f, 0.0), 1.0) if math.isfinite(f) else last[0]  # a bar never jumps to NaN or past 100 %
+        last[0] = f
         if progress is not None:
-            progress(float(fraction), str(message))
+            progress(f, str(message))
 
     return report
 

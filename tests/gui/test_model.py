@@ -223,10 +223,13 @@ def test_job_progress_takes_fraction_and_message_or_a_message_alone(sample_dir):
     def engine(frames, setup, *, progress=None):
         progress(0.4, "fitting")
         progress("a step without a fraction")
+        progress(float("nan"), "a broken fraction")
+        progress(7.0, "too far")
         return "done"
 
     s = BenchSession(engine)
     s.open_paths([sample_dir / "lens-A01.png"])
     job = s.make_job()
     assert job.run(lambda f, m: seen.append((f, m))) == "done"
-    assert seen == [(0.4, "fitting"), (0.4, "a step without a fraction")]
+    assert seen == [(0.4, "fitting"), (0.4, "a step without a fraction"), (0.4, "a broken fraction"),
+                    (1.0, "too far")]
