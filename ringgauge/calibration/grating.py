@@ -63,6 +63,7 @@ MIXED_ORDERS = ((1, 1), (1, -1), (2, 1), (2, -1), (1, 2), (1, -2), (2, 2), (2, -
 #: where a square grid's second line set is looked for: f1 turned by 90° within these tolerances
 GRID_ANGLE_TOL_DEG = 15.0
 GRID_PERIOD_TOL = 0.2
+GRID_MIN_RELATIVE = 0.3
 
 
 def _as_frame(image) -> Frame:
@@ -217,7 +218,10 @@ def find_frequencies(data: np.ndarray, kind: str = "auto"):
         f2c, a2 = pk2
         ratio2 = a2 / max(spec.background(f2c), 1e-30)
         info["second_peak_ratio"] = ratio2
-        if ratio2 >= MIN_PEAK_RATIO and a2 >= 0.15 * a1:
+        info["second_peak_relative"] = a2 / a1
+        # a grid's two line sets are alike, so their peaks are of similar height; a line scale's base line or
+        # numerals put a ridge, not a comparable peak, across the first direction
+        if ratio2 >= MIN_PEAK_RATIO and a2 >= GRID_MIN_RELATIVE * a1:
             f2 = f2c
     if f2 is None:
         if kind == "grid":

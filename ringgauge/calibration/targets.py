@@ -133,6 +133,7 @@ def line_grating(
     contrast: float = 0.85,
     length_um: float | None = None,
     long_every: int = 0,
+    base_line: bool = False,
     missing_lines: int = 0,
     damaged_lines: int = 0,
     camera: Camera = Camera(width=640, height=512, pixel_um=1.0, blur_px=0.8),
@@ -153,6 +154,9 @@ def line_grating(
         Line length (a stage micrometer's strip); None = lines across the whole field.
     long_every : int
         Every n-th line is 1.5 times longer (the 5th / 10th division marks of a micrometer); needs length_um.
+    base_line : bool
+        A long line across the divisions at one end of the strip, as many stage micrometers have; needs
+        length_um.
     missing_lines, damaged_lines : int
         How many lines are missing entirely / have a gap, chosen at random.
     rng : {numpy.random.Generator, int}, optional
@@ -168,8 +172,10 @@ def line_grating(
 
     def fn(X, Y, foot):
         u, v = _rotated(X, Y, angle_deg)
-        return 1.0 - contrast * _lines(u, v, foot, pitch_um, line_width * pitch_um, missing, damaged, length_um,
-                                       long_every)
+        op = _lines(u, v, foot, pitch_um, line_width * pitch_um, missing, damaged, length_um, long_every)
+        if base_line and length_um is not None:
+            op = np.maximum(op, _ramp(line_width * pitch_um / 2 - np.abs(v + 0.5 * length_um), foot))
+        return 1.0 - contrast * op
 
     img, specks = _expose(_sample(fn, camera, offset_um, 3), 3, camera, lighting, g, dust)
     return TargetImage(img, _truth("line_grating", camera, lighting, pitch_um=pitch_um, angle_deg=angle_deg,

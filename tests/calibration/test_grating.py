@@ -211,12 +211,12 @@ def test_too_few_periods_are_refused():
 
 
 def test_micrometer_strip_with_long_marks_is_not_taken_for_a_grid():
-    # The strip's ends and its longer 10th marks put power off the line direction; only a peak near f1 turned by
+    # The strip's ends, its base line and its longer 10th marks put power off the line direction; only a peak near f1 turned by
     # 90° with the same period counts as a second line set. Scale along the normal at 33° with s_x != s_y:
     # sqrt((s_x cos a)^2 + (s_y sin a)^2) (derived: f = A^T n / P).
     cam = Camera(width=640, height=512, pixel_um=3.0, pixel_y_um=3.01, blur_px=1.2)
     im = T.line_grating(10.0, angle_deg=33.0, length_um=800.0, long_every=10, missing_lines=2, damaged_lines=2,
-                        camera=cam, rng=1)
+                        base_line=True, camera=cam, rng=1)
     cal = measure_grating(im.image, 10.0, 0.0)
     assert cal.method == "line-scale"
     a = math.radians(33.0)
