@@ -9,6 +9,7 @@ import math
 import time
 from collections.abc import Callable, Sequence
 
+import cv2
 import numpy as np
 from threadpoolctl import threadpool_limits
 
@@ -19,7 +20,7 @@ from .fit.orders import fit_orders, locate_extrema
 from .imaging import Frame, load_frame
 from .result import AnalysisResult, ImageInfo
 from .rings.centre import gradient_centre
-from .rings.profile import dominant_period, s_profile
+from .rings.profile import dominant_period, s_profile, s_profiles_by_label, sector_labels
 from .rings.sectors import sector_scatter
 from .uncertainty import BudgetRow, make_budget
 
@@ -29,6 +30,8 @@ Progress = Callable[[float, str], None]
 MIN_PERIOD_PX = 3.0
 #: frame-edge band left out of the fits, pixels
 BORDER_PX = 3
+#: angular sectors for the scatter (Type A) and roundness check
+N_SECTORS = 8
 #: fewest rings for a radius
 MIN_RINGS = 4
 
@@ -144,8 +147,14 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         rnear = math.hypot(min(max(c0.x, 0), w - 1) - c0.x, aspect * (min(max(c0.y, 0), h - 1) - c0.y))
 
     progress(0.15, "measuring the fringe period")
-    prof0 = s_profile(data, (c0.x, c0.y), aspect=aspect, s_max=rfar**2, ds=max(rfar / 2.0, 1.0), mask=valid)
+    # the fringe period from the area-averaged working image (fast; it only seeds the fit)
+    sc = c0.scale
+    small = c0.small
+    vs = cv2.resize(valid.astype(np.uint8), (small.shape[1], small.shape[0]), interpolation=cv2.INTER_NEAREST) > 0
+    cs = ((c0.x - 0.5 * (sc - 1)) / sc, (c0.y - 0.5 * (sc - 1)) / sc)
+    prof0 = s_profile(small, cs, aspect=aspect, s_max=(rfar / sc) ** 2, ds=max(rfar / sc / 2.0, 1.0), mask=vs)
     period_s, snr = dominant_period(prof0, min_period=None)
+    period_s *= sc * sc
     if not math.isfinite(period_s) or snr < 12.0:
         raise AnalysisError(
             "no ring system found (no regular fringe spacing around any centre); check that the image shows "
@@ -193,7 +202,10 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
 
     progress(0.7, "locating rings and fitting r² against order")
     ds = period_s / 24.0
-    prof = s_profile(data, centre, aspect=aspect, s_max=r_lim**2, ds=ds, mask=valid)
+    labels = sector_labels(data.shape, centre, aspect, N_SECTORS)
+    sector_profiles, prof = s_profiles_by_label(
+        data, centre, labels, N_SECTORS, aspect=aspect, s_max=r_lim**2, ds=ds, mask=valid
+    )
     s_min = max(rnear**2, 0.0)
     extrema = locate_extrema(prof, period_s, ff.phase0, s_min=s_min, s_max=r_lim**2)
     R_ff = 2 * math.pi / (lam_px_over_n * ff.q) * px_mm
@@ -218,8 +230,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
 
     progress(0.8, "repeating the fit in angular sectors")
     sectors = sector_scatter(
-        data, centre, aspect=aspect, period_s=period_s, phase0=ff.phase0, s_min=s_min, s_max=r_lim**2, valid=valid,
-        kind=setup.fringe_kind, px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
+        sector_profiles, period_s=period_s, phase0=ff.phase0, s_min=s_min, s_max=r_lim**2, kind=setup.fringe_kind,
+        px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
     )
     if sectors is not None and sectors.ellipticity > max(3 * sectors.ellipticity_u, 0.002):
         warnings.append(

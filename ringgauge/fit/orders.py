@@ -100,20 +100,26 @@ def locate_extrema(prof: SProfile, period_s: float, phase0: float, *, s_min: flo
     target = np.where(kinds == "dark", psi + np.pi, psi)
     target = (target + np.pi) % (2 * np.pi) - np.pi
     shift = target / (2 * np.pi) * period_s
-    for i in np.nonzero(ok & (amp > 0) & (np.abs(shift) <= 0.3 * period_s))[0]:
-        # (shift beyond 0.3 P: the extremum is not where the fringe pattern says — a doubtful ring, skipped)
-        try:
-            cov = np.linalg.inv(Gi[i]) * max(1.0, float(chi2[i]))
-        except np.linalg.LinAlgError:
-            continue
-        gvec = np.zeros(npar)
-        gvec[2:4] = (-d[i] / amp[i] ** 2, c[i] / amp[i] ** 2)
-        u_psi = float(np.sqrt(max(gvec @ cov @ gvec, 0.0)))
-        s_ext = float(cand[i] + shift[i])
+    # (a shift beyond 0.3 P means the extremum is not where the fringe pattern says: a doubtful ring, skipped)
+    good = np.nonzero(ok & (amp > 0) & (np.abs(shift) <= 0.3 * period_s))[0]
+    if len(good) == 0:
+        return out
+    try:
+        cov = np.linalg.inv(Gi[good]) * np.maximum(1.0, chi2[good])[:, None, None]
+    except np.linalg.LinAlgError:
+        return out
+    ag = amp[good]
+    g2, g3 = -d[good] / ag**2, c[good] / ag**2  # d psi / d c, d psi / d d
+    var_psi = g2 * g2 * cov[:, 2, 2] + 2 * g2 * g3 * cov[:, 2, 3] + g3 * g3 * cov[:, 3, 3]
+    u_s = np.sqrt(np.maximum(var_psi, 0.0)) / (2 * np.pi) * period_s
+    s_ext = cand[good] + shift[good]
+    contrast = ag / np.maximum(np.abs(a[good]), 1e-9)
+    wsum = cnt[good].sum(axis=1)
+    for j, i in enumerate(good):
         out.append(
             Extremum(
-                s_ext, u_psi / (2 * np.pi) * period_s, str(kinds[i]), float((s_ext - first_dark) / period_s),
-                float(amp[i] / max(abs(a[i]), 1e-9)), int(cnt[i].sum()),
+                float(s_ext[j]), float(u_s[j]), str(kinds[i]), float((s_ext[j] - first_dark) / period_s),
+                float(contrast[j]), int(wsum[j]),
             )
         )
     out.sort(key=lambda e: e.s)

@@ -29,6 +29,7 @@ class CentreEstimate:
     scale: float  # pixels of the original image per pixel of the working image
     conditioning: float  # smallest/largest eigenvalue of the normal matrix: ~0 for straight fringes
     inlier_fraction: float
+    small: np.ndarray | None = None  # the area-averaged working image the estimate was made on
 
 
 def working_image(data: np.ndarray, max_side: int = 512) -> tuple[np.ndarray, float]:
@@ -120,4 +121,4 @@ def gradient_centre(
     # pixel-centre convention: working pixel i covers original [i*s - 0.5, (i+1)*s - 0.5)
     x = x + 0.5 * (scale - 1.0)
     y = y + 0.5 * (scale - 1.0)
-    return CentreEstimate(float(x), float(y), float(scale), cond, inl)
+    return CentreEstimate(float(x), float(y), float(scale), cond, inl, small)

@@ -98,6 +98,15 @@ def dominant_period(prof: SProfile, min_period: float | None = None) -> tuple[fl
     return float(1.0 / f), float(spec[i] / noise)
 
 
+def sector_labels(shape, centre, aspect: float, n_sectors: int) -> np.ndarray:
+    """Angular sector (0 .. n-1) of every pixel about ``centre``, angles from +x toward +y."""
+    h, w = shape
+    ys = aspect * (np.arange(h, dtype=np.float64) - centre[1])
+    xs = np.arange(w, dtype=np.float64) - centre[0]
+    theta = np.arctan2(ys[:, None], xs[None, :])
+    return (((theta + np.pi) / (2 * np.pi)) * n_sectors).astype(np.int64) % n_sectors
+
+
 def s_profiles_by_label(
     data: np.ndarray,
     centre: tuple[float, float],
@@ -108,28 +117,44 @@ def s_profiles_by_label(
     s_max: float,
     ds: float,
     mask: np.ndarray | None = None,
-) -> list[SProfile]:
-    """One s-profile per label (e.g. angular sector), all in a single pass over the image."""
-    s = squared_radius(data.shape, centre, aspect)
+) -> tuple[list[SProfile], SProfile]:
+    """One s-profile per label (e.g. angular sector) and their total, all in a single pass over the image.
+
+    Only the bounding box of the disc s <= s_max is read.
+    """
+    h, w = data.shape
+    r = np.sqrt(s_max)
+    x0, x1 = max(0, int(np.floor(centre[0] - r))), min(w, int(np.ceil(centre[0] + r)) + 1)
+    y0, y1 = max(0, int(np.floor(centre[1] - r / aspect))), min(h, int(np.ceil(centre[1] + r / aspect)) + 1)
+    if x1 <= x0 or y1 <= y0:
+        empty = SProfile(np.zeros(0), np.zeros(0), np.zeros(0), np.zeros(0), ds)
+        return [empty] * n_labels, empty
+    sub = data[y0:y1, x0:x1]
+    lab = labels[y0:y1, x0:x1]
+    s = squared_radius(sub.shape, (centre[0] - x0, centre[1] - y0), aspect)
     nb = int(np.ceil(s_max / ds))
     idx = (s / ds).astype(np.int64)
-    ok = (idx < nb) & (labels >= 0) & (labels < n_labels)
+    ok = idx < nb
     if mask is not None:
-        ok &= mask
-    comb = labels[ok].astype(np.int64) * nb + idx[ok]
-    v = data[ok].astype(np.float64)
+        ok &= mask[y0:y1, x0:x1]
+    comb = lab[ok] * nb + idx[ok]
+    v = sub[ok].astype(np.float64)
     size = n_labels * nb
-    cnt = np.bincount(comb, minlength=size).astype(np.float64).reshape(n_labels, nb)
-    sm = np.bincount(comb, weights=v, minlength=size).reshape(n_labels, nb)
-    sq = np.bincount(comb, weights=v * v, minlength=size).reshape(n_labels, nb)
-    ssum = np.bincount(comb, weights=s[ok], minlength=size).reshape(n_labels, nb)
-    out = []
+    raw = [
+        np.bincount(comb, minlength=size).astype(np.float64).reshape(n_labels, nb),
+        np.bincount(comb, weights=v, minlength=size).reshape(n_labels, nb),
+        np.bincount(comb, weights=v * v, minlength=size).reshape(n_labels, nb),
+        np.bincount(comb, weights=s[ok], minlength=size).reshape(n_labels, nb),
+    ]
     nominal = (np.arange(nb) + 0.5) * ds
-    with np.errstate(invalid="ignore", divide="ignore"):
-        for k in range(n_labels):
-            c = cnt[k]
-            mean = sm[k] / c
-            var = np.maximum(sq[k] / c - mean**2, 0.0)
-            cen = np.where(c > 0, ssum[k] / np.maximum(c, 1), nominal)
-            out.append(SProfile(cen, mean, c, var, ds))
-    return out
+
+    def make(c, sm, sq, ssum):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean = sm / c
+            var = np.maximum(sq / c - mean**2, 0.0)
+            cen = np.where(c > 0, ssum / np.maximum(c, 1), nominal)
+        return SProfile(cen, mean, c, var, ds)
+
+    per = [make(*(a[k] for a in raw)) for k in range(n_labels)]
+    total = make(*(a.sum(axis=0) for a in raw))
+    return per, total

@@ -12,7 +12,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..fit.orders import fit_orders, locate_extrema
-from .profile import s_profiles_by_label
 
 
 @dataclass(frozen=True)
@@ -42,16 +41,11 @@ class SectorScatter:
 
 
 def sector_scatter(
-    data, centre, *, aspect, period_s, phase0, s_min, s_max, valid, kind, px_mm, radius_guess_mm, lam_mm_over_n,
-    n_sectors: int = 8,
+    profiles, *, period_s, phase0, s_min, s_max, kind, px_mm, radius_guess_mm, lam_mm_over_n,
 ) -> SectorScatter | None:
-    h, w = data.shape
-    yy, xx = np.mgrid[0:h, 0:w]
-    theta = np.arctan2(aspect * (yy - centre[1]), xx - centre[0])
-    sector = ((theta + np.pi) / (2 * np.pi) * n_sectors).astype(int) % n_sectors
+    """Fit r^2 against order in each sector profile (from :func:`s_profiles_by_label`) and summarise the scatter."""
+    n_sectors = len(profiles)
     slopes, angles, counts = [], [], []
-    ds = period_s / 24.0
-    profiles = s_profiles_by_label(data, centre, sector, n_sectors, aspect=aspect, s_max=s_max, ds=ds, mask=valid)
     for k, prof in enumerate(profiles):
         if prof.count.sum() < 500:
             continue
