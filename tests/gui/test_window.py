@@ -252,3 +252,50 @@ def test_real_form_evaluation_gives_a_verdict_that_follows_the_tolerance(app, qt
     panel.tolerance.editingFinished.emit()
     qtbot.waitUntil(lambda: done() and w.session.result.setup.tolerance == "3/3(1)", timeout=180000)
     assert w.bench.results.banner.word.text() == "PASS"
+
+
+def test_the_window_stays_responsive_while_the_engine_works(app, qtbot, sample_dir, rg_home):
+    import time
+
+    from PySide6.QtCore import QTimer
+
+    from gui_helpers import hand_result
+
+    def slow(frames, setup, *, progress=None):
+        for i in range(10):
+            time.sleep(0.15)
+            progress((i + 1) / 10, f"step {i + 1}")
+        return hand_result(frames[0], setup, 900.0)
+
+    w = make_window(qtbot, slow, rg_home)
+    ticks = []
+    timer = QTimer()
+    timer.timeout.connect(lambda: ticks.append(time.perf_counter()))
+    timer.start(50)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(lambda: w.session.busy, timeout=5000)
+    qtbot.waitUntil(lambda: w.progress.value() >= 50, timeout=10000)
+    assert w.bench.results.banner.word.text() == "ANALYSING"
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    timer.stop()
+    gaps = [b - a for a, b in zip(ticks, ticks[1:])]
+    # the event loop kept turning: no pause near the 1.5 s the engine took
+    assert len(ticks) > 15 and max(gaps) < 0.5
+
+
+def test_single_key_shortcuts_do_not_steal_typing(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    op = w.bench.setup_panel.operator
+    op.setFocus()
+    qtbot.waitUntil(op.hasFocus, timeout=2000)
+    qtbot.keyClicks(op, "AC1R")
+    assert op.text() == "AC1R"
+    assert w.bench.view.mode == "look" and not w.residual_on and w.layer_actions["rings"].isChecked()
+    w.bench.view.setFocus()
+    qtbot.waitUntil(w.bench.view.hasFocus, timeout=2000)
+    qtbot.keyClick(w.bench.view, Qt.Key.Key_C)
+    assert w.bench.view.mode == "centre"
+    qtbot.keyClick(w.bench.view, Qt.Key.Key_Escape)
+    assert w.bench.view.mode == "look"
