@@ -662,7 +662,7 @@ def _anisotropy_note(res: ScaleCalibration) -> ScaleCalibration:
     from dataclasses import replace
 
     note = (
-        f"x and y scales differ ({res.scale_x.value:.5g} vs {res.scale_y.value:.5g} µm/px, more than twice the "
+        f"x and y scales differ ({res.scale_x.value:.5f} vs {res.scale_y.value:.5f} µm/px, more than twice the "
         f"uncertainty of the difference {res.difference_u_um:.2g} µm/px): anisotropic pixels or a tilted "
         "camera; both scales will be used"
     )

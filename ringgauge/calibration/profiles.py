@@ -400,7 +400,7 @@ def profile_warnings(prof: BenchProfile, today: dt.date | None = None) -> list[s
         out.append(f"bench '{prof.name}': pixel scale along y was not measured; x and y are taken as equal")
     if prof.anisotropic():
         out.append(
-            f"bench '{prof.name}': x and y pixel scales differ ({sx:.5g} vs {sy:.5g} µm/px) by more than their "
+            f"bench '{prof.name}': x and y pixel scales differ ({sx:.5f} vs {sy:.5f} µm/px) by more than their "
             "uncertainty (anisotropic pixels or a tilted camera); both scales are used"
         )
     return out
