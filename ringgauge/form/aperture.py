@@ -225,5 +225,24 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = ED
     _, inl = ransac(pts, CircleModel, min_samples=3, residual_threshold=1.0, max_trials=300, rng=rng)
     if inl is None or inl.sum() < 20:
         inl = np.ones(len(px), dtype=bool)
+    # a dark fringe along much of the edge can make a fringe contour the larger consensus; the part's edge
+    # is the outermost circle: prefer a consistent set of points outside the first circle
+    for _ in range(2):
+        f0 = _fit_circle(px[inl], py[inl], aspect, x0=(cx, cy, r))
+        d = np.hypot(px - f0[0], (py - f0[1]) * aspect) - f0[2]
+        out = d > 1.5
+        if out.sum() < max(20, 0.3 * inl.sum()):
+            break
+        _, inl2 = ransac(pts[out], CircleModel, min_samples=3, residual_threshold=1.0, max_trials=300, rng=rng)
+        if inl2 is None or inl2.sum() < max(20, 0.3 * inl.sum()):
+            break
+        idx_out = np.nonzero(out)[0][inl2]
+        f1 = _fit_circle(px[idx_out], py[idx_out], aspect, x0=f0[:3])
+        d1 = np.hypot(px[inl] - f1[0], (py[inl] - f1[1]) * aspect) - f1[2]
+        if np.median(d1) > -1.0:  # the new circle does not enclose the first set: not an outer edge
+            break
+        new = np.zeros_like(inl)
+        new[idx_out] = True
+        inl = new
     fit = _fit_circle(px[inl], py[inl], aspect, x0=(cx, cy, r))
     return fit, int(inl.sum())

@@ -199,9 +199,18 @@ class _Problem:
         lin, X = self.linear(c, m)
         return X @ lin - self.y
 
+    def _penalty_weight(self):
+        if not hasattr(self, "_kappa"):
+            self._kappa = float(np.sqrt(self.y.size) * max(np.std(self.y), 1e-6))
+        return self._kappa
+
     def full_residual(self, p, nw):
+        """Residuals, plus one row that keeps the modulation physical (|m0| <= 1: intensity cannot go
+        below the stray level); the row is zero inside that range."""
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
-        return self.design(c, m) @ lin - self.y
+        r = self.design(c, m) @ lin - self.y
+        pen = self._penalty_weight() * max(0.0, abs(m[0]) - 1.0)
+        return np.append(r, pen)
 
     def full_jac(self, p, nw):
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
@@ -211,7 +220,11 @@ class _Problem:
         X = np.vstack([np.ones_like(cs), self.PL * (1.0 + M * cs)])
         Jw = self.Z[:nw] * (2 * np.pi * L * M * self.dshape(ph))
         Jm = self.PM * (L * cs)
-        return np.vstack([Jw, Jm, X]).T
+        J = np.vstack([Jw, Jm, X]).T
+        row = np.zeros((1, J.shape[1]))
+        if abs(m[0]) > 1.0:
+            row[0, nw] = self._penalty_weight() * np.sign(m[0])
+        return np.vstack([J, row])
 
     def start(self, c, m=(-0.8, 0.0, 0.0)):
         m = np.asarray(m, dtype=float)
@@ -325,7 +338,7 @@ def fit_gap(
     if progress:
         progress("looking for dust and defects")
     full = _Problem(u_all[inside], v_all[inside], img[inside], finesse=finesse)
-    r = full.full_residual(p, nw)
+    r = full.full_residual(p, nw)[:-1]
     sig = 1.4826 * np.median(np.abs(r - np.median(r)))
     bad = np.zeros_like(inside)
     bad[inside] = np.abs(r) > max(4.5 * sig, 1e-6)
@@ -335,7 +348,7 @@ def fit_gap(
     prob = _Problem(u_all[sel2], v_all[sel2], img[sel2], finesse=finesse)
     res = _refine(prob, p, nw, max_nfev=200)
     p = res.x
-    r = res.fun
+    r = res.fun[:-1]  # without the modulation row
     ndata, nvarys = r.size, p.size
     chisqr = float(np.sum(r * r))
     redchi = chisqr / max(1, ndata - nvarys)
@@ -572,7 +585,7 @@ def _correlation_factor(img, mask, p, nw, stride, u_all, v_all, finesse):
     m = mask[box]
     tmp = _Problem(u_all[box][m], v_all[box][m], img[box][m], finesse=finesse)
     r = np.zeros(m.shape)
-    r[m] = tmp.full_residual(p, nw)
+    r[m] = tmp.full_residual(p, nw)[:-1]
     rv = r[m]
     var = float(np.mean(rv * rv))
     if var <= 0:
