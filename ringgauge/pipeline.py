@@ -20,7 +20,7 @@ from .fit.orders import fit_orders, locate_extrema
 from .imaging import Frame, load_frame
 from .result import AnalysisResult, ImageInfo
 from .rings.centre import gradient_centre
-from .rings.profile import dominant_period, s_profile, s_profiles_by_label, sector_labels
+from .rings.profile import dominant_period, s_profile, s_profiles_by_label
 from .rings.sectors import sector_scatter
 from .uncertainty import BudgetRow, make_budget
 
@@ -202,9 +202,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
 
     progress(0.7, "locating rings and fitting r² against order")
     ds = period_s / 24.0
-    labels = sector_labels(data.shape, centre, aspect, N_SECTORS)
     sector_profiles, prof = s_profiles_by_label(
-        data, centre, labels, N_SECTORS, aspect=aspect, s_max=r_lim**2, ds=ds, mask=valid
+        data, centre, None, N_SECTORS, aspect=aspect, s_max=r_lim**2, ds=ds, mask=valid
     )
     s_min = max(rnear**2, 0.0)
     extrema = locate_extrema(prof, period_s, ff.phase0, s_min=s_min, s_max=r_lim**2)

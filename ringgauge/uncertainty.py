@@ -83,7 +83,7 @@ class Budget:
 def make_budget(output: str, unit: str, value: float, rows: list[BudgetRow], *, notes=()) -> Budget:
     """Combine rows (root sum of squares), effective degrees of freedom by Welch-Satterthwaite, and the
     coverage factor for about 95 % (k = 2 for many degrees of freedom, else Student t)."""
-    from scipy import stats
+    from scipy.special import stdtrit  # Student t quantile; lighter to import than scipy.stats
 
     uc2 = sum(r.contribution**2 for r in rows)
     uc = math.sqrt(uc2)
@@ -92,7 +92,7 @@ def make_budget(output: str, unit: str, value: float, rows: list[BudgetRow], *, 
     if math.isinf(dof) or dof > 100:
         k = 2.0
     else:
-        k = float(stats.t.ppf(0.97725, dof))
+        k = float(stdtrit(dof, 0.97725))
     out = tuple(
         BudgetRow(**{**asdict(r), "share": (r.contribution**2 / uc2) if uc2 > 0 else 0.0}) for r in rows
     )

@@ -101,16 +101,17 @@ def dominant_period(prof: SProfile, min_period: float | None = None) -> tuple[fl
 def sector_labels(shape, centre, aspect: float, n_sectors: int) -> np.ndarray:
     """Angular sector (0 .. n-1) of every pixel about ``centre``, angles from +x toward +y."""
     h, w = shape
-    ys = aspect * (np.arange(h, dtype=np.float64) - centre[1])
-    xs = np.arange(w, dtype=np.float64) - centre[0]
+    ys = (aspect * (np.arange(h) - centre[1])).astype(np.float32)
+    xs = (np.arange(w) - centre[0]).astype(np.float32)
     theta = np.arctan2(ys[:, None], xs[None, :])
-    return (((theta + np.pi) / (2 * np.pi)) * n_sectors).astype(np.int64) % n_sectors
+    lab = ((theta + np.float32(np.pi)) * np.float32(n_sectors / (2 * np.pi))).astype(np.int64)
+    return lab % n_sectors
 
 
 def s_profiles_by_label(
     data: np.ndarray,
     centre: tuple[float, float],
-    labels: np.ndarray,
+    labels: np.ndarray | None,
     n_labels: int,
     *,
     aspect: float = 1.0,
@@ -118,9 +119,10 @@ def s_profiles_by_label(
     ds: float,
     mask: np.ndarray | None = None,
 ) -> tuple[list[SProfile], SProfile]:
-    """One s-profile per label (e.g. angular sector) and their total, all in a single pass over the image.
+    """One s-profile per label and their total, all in a single pass over the image.
 
-    Only the bounding box of the disc s <= s_max is read.
+    ``labels=None`` means ``n_labels`` equal angular sectors about the centre. Only the bounding box of the disc
+    s <= s_max is read.
     """
     h, w = data.shape
     r = np.sqrt(s_max)
@@ -130,7 +132,10 @@ def s_profiles_by_label(
         empty = SProfile(np.zeros(0), np.zeros(0), np.zeros(0), np.zeros(0), ds)
         return [empty] * n_labels, empty
     sub = data[y0:y1, x0:x1]
-    lab = labels[y0:y1, x0:x1]
+    if labels is None:
+        lab = sector_labels(sub.shape, (centre[0] - x0, centre[1] - y0), aspect, n_labels)
+    else:
+        lab = labels[y0:y1, x0:x1]
     s = squared_radius(sub.shape, (centre[0] - x0, centre[1] - y0), aspect)
     nb = int(np.ceil(s_max / ds))
     idx = (s / ds).astype(np.int64)
