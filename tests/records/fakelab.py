@@ -16,7 +16,7 @@ from ringgauge.imaging import load_frame
 
 
 def fake_analyse(path: str, setup) -> dict:
-    from conftest import _BASE  # the hand-made result shape shared with the store tests
+    from records_sample import _BASE  # the hand-made result shape shared with the store tests
 
     delay = float(os.environ.get("RG_TEST_DELAY_S", "0"))
     if delay:
