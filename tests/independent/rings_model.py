@@ -22,7 +22,7 @@ import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import ndimage
+from scipy import ndimage, signal
 
 # Sodium D2 / D1 standard air wavelengths, NIST ASD; D2 about twice as bright as D1 (HyperPhysics).
 NA_D2_NM, NA_D1_NM = 588.9950, 589.5924
@@ -69,6 +69,12 @@ class Scene:
     read_noise_e: float = 8.0
     bits: int = 8  # 8, 12 or 16
     colour_gains: tuple[float, float, float] | None = None  # (blue, green, red) channel gains; None = grey
+    psf: str = "gaussian"  # "gaussian" (sigma = blur_px) or "disc" (defocus: uniform disc of radius blur_px)
+    gamma: float = 1.0  # camera tone curve: code = full scale * (signal / full well) ** (1 / gamma)
+    defect_fraction: float = 0.0  # fraction of pixels stuck at full scale (hot) or at zero (dead), half each
+    mottle: float = 0.0  # relative rms of a smooth random illumination texture (diffuser, dirty optics)
+    mottle_len_px: float = 25.0  # its correlation length
+    mottle_seed: int = 0
 
     @property
     def full_scale(self) -> int:
@@ -209,17 +215,42 @@ def render_noiseless(scene: Scene) -> np.ndarray:
             if d.kind == "glint":
                 _apply_disc(img, xf, yf[rows], d, lambda v, d=d: v + d.strength)
         fine[rows] = img
-    if scene.blur_px > 0:
+    if scene.blur_px > 0 and scene.psf == "gaussian":
         fine = ndimage.gaussian_filter(fine, sigma=scene.blur_px * scene.oversample, mode="reflect", truncate=3.5)
+    elif scene.blur_px > 0 and scene.psf == "disc":
+        rad = scene.blur_px * scene.oversample
+        k = int(math.ceil(rad))
+        yy, xx = np.mgrid[-k : k + 1, -k : k + 1]
+        # disc of radius rad, edge pixels weighted by a 4x4 sub-sampled coverage
+        sub = (np.arange(4) + 0.5) / 4 - 0.5
+        cover = np.zeros(xx.shape)
+        for a in sub:
+            for b in sub:
+                cover += (xx + a) ** 2 + (yy + b) ** 2 <= rad * rad
+        kern = (cover / cover.sum()).astype(np.float32)
+        fine = signal.oaconvolve(np.pad(fine, k, mode="reflect"), kern, mode="valid").astype(np.float32)
+    elif scene.blur_px > 0:
+        raise ValueError(f"unknown PSF {scene.psf!r}")
     os_ = scene.oversample
-    return fine.reshape(H, os_, W, os_).mean(axis=(1, 3), dtype=np.float64)
+    out = fine.reshape(H, os_, W, os_).mean(axis=(1, 3), dtype=np.float64)
+    if scene.mottle > 0:
+        g = np.random.default_rng(scene.mottle_seed).normal(size=out.shape)
+        tex = ndimage.gaussian_filter(g, scene.mottle_len_px, mode="wrap")
+        out *= 1.0 + scene.mottle * tex / tex.std()
+    return out
 
 
 def _expose(intensity: np.ndarray, scene: Scene, rng: np.random.Generator) -> np.ndarray:
     e = rng.poisson(np.clip(intensity, 0, None) * scene.full_well_e).astype(np.float64)
     e += rng.normal(0.0, scene.read_noise_e, size=e.shape)
-    codes = np.rint(e / scene.full_well_e * scene.full_scale)
-    codes = np.clip(codes, 0, scene.full_scale)
+    v = np.clip(e / scene.full_well_e, 0.0, 1.0)
+    if scene.gamma != 1.0:
+        v = v ** (1.0 / scene.gamma)
+    codes = np.rint(v * scene.full_scale)
+    if scene.defect_fraction > 0:
+        idx = rng.choice(codes.size, size=int(scene.defect_fraction * codes.size), replace=False)
+        codes.flat[idx[: idx.size // 2]] = scene.full_scale
+        codes.flat[idx[idx.size // 2 :]] = 0
     return codes.astype(np.uint8 if scene.bits <= 8 else np.uint16)
 
 
