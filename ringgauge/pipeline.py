@@ -105,7 +105,12 @@ def _analyse(frames, setup: BenchSetup, progress: Progress) -> AnalysisResult:
             frames=tuple(image_info(f) for f in frames),
         )
     res = analyse_rings(frames[0], setup, progress=progress)
-    return AnalysisResult(**{**res.__dict__, "elapsed_s": time.perf_counter() - t0})
+    extra = ()
+    if len(frames) > 1:
+        extra = (f"radius mode reads one frame: only {frames[0].name} was used, {len(frames) - 1} more ignored",)
+    return AnalysisResult(
+        **{**res.__dict__, "elapsed_s": time.perf_counter() - t0, "warnings": res.warnings + extra}
+    )
 
 
 def analyse_files(paths: Sequence[str], setup: BenchSetup, *, progress: Progress | None = None) -> AnalysisResult:
@@ -165,8 +170,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     n_fringes = (r_lim**2 - rnear**2) / period_s
     if n_fringes < MIN_RINGS - 0.5:
         raise AnalysisError(
-            f"only about {max(n_fringes, 0):.1f} rings are resolved; need at least {MIN_RINGS}: use a longer radius "
-            "of curvature test set-up, a finer pixel scale, or the test-plate form mode"
+            f"only about {max(n_fringes, 0):.1f} rings are resolved in the image; need at least {MIN_RINGS}: widen "
+            "the field of view, or measure the surface against a test plate (form mode: --test-diameter)"
         )
     if r_lim < rfar * 0.98:
         warnings.append(
