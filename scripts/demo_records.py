@@ -6,7 +6,9 @@ The scenario is invented: the Fernhill Optical Workshop inspects lot L-0042 of p
 (part PCX-25-1000, nominal radius 1000 mm ± 0.5 %) for the Harbour Optics Guild. When LOT_FOLDER is not
 given, ``sample_images/lot-L0042`` is used if it holds images; otherwise a small lot is generated with the
 synthetic interferogram model (seeded, so every run makes the same images). A ``lot.json`` in the folder may
-give the bench set-up (``source``, ``pixel_size_um``, ``pixel_size_u_um``) and the lot details.
+give the bench set-up (``source``, ``pixel_size_um``, ``pixel_size_u_um``, ``medium_index``), the lot details
+(``lot``, ``part``, ``drawing``, ``surface``, ``operator``, ``customer``, ``order``, ``temperature_c``) and
+``radius_limits_mm`` for the capability figures.
 """
 
 from __future__ import annotations
@@ -101,6 +103,8 @@ def main() -> int:
             "--order", lot["order"], "--temperature", str(lot["temperature_c"]), "--source", lot["source"],
             "--pixel-size", str(lot["pixel_size_um"]), "--pixel-size-u", str(lot["pixel_size_u_um"]),
             "--chart", str(out / f"{lot['lot']}-control-chart.png")]
+    if lot.get("medium_index") is not None:
+        args += ["--medium-index", str(lot["medium_index"])]
     if lot.get("radius_limits_mm"):
         args += ["--radius-limits", *(str(x) for x in lot["radius_limits_mm"])]
     run(args)
