@@ -262,9 +262,9 @@ def test_the_window_stays_responsive_while_the_engine_works(app, qtbot, sample_d
     from gui_helpers import hand_result
 
     def slow(frames, setup, *, progress=None):
-        for i in range(10):
+        for i in range(20):
             time.sleep(0.15)
-            progress((i + 1) / 10, f"step {i + 1}")
+            progress((i + 1) / 20, f"step {i + 1}")
         return hand_result(frames[0], setup, 900.0)
 
     w = make_window(qtbot, slow, rg_home)
@@ -276,11 +276,15 @@ def test_the_window_stays_responsive_while_the_engine_works(app, qtbot, sample_d
     qtbot.waitUntil(lambda: w.session.busy, timeout=5000)
     qtbot.waitUntil(lambda: w.progress.value() >= 50, timeout=10000)
     assert w.bench.results.banner.word.text() == "ANALYSING"
-    qtbot.waitUntil(analysed(w), timeout=10000)
+    done_at = []
+    w.session.changed.connect(lambda what: done_at.append(time.perf_counter()) if what == "result" else None)
+    qtbot.waitUntil(analysed(w), timeout=20000)
     timer.stop()
-    gaps = [b - a for a, b in zip(ticks, ticks[1:])]
-    # the event loop kept turning: no pause near the 1.5 s the engine took
-    assert len(ticks) > 15 and max(gaps) < 0.5
+    during = [t for t in ticks if t < done_at[0]]
+    gaps = [b - a for a, b in zip(during, during[1:])]
+    # the event loop kept turning while the engine worked for 3 s: a blocked GUI thread would show one gap of
+    # about 3 s; the bound leaves room for a heavily shared machine
+    assert len(during) > 15 and max(gaps) < 1.0
 
 
 def test_single_key_shortcuts_do_not_steal_typing(app, qtbot, fake_engine, sample_dir, rg_home):
