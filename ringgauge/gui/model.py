@@ -84,7 +84,9 @@ class SetupState:
     test_plate: str = ""  # id in the test-plate register; "" = none (radius against an optical flat)
     tolerance: str = ""  # ISO 10110-5 form tolerance, e.g. "3/2(0.5)"
     test_diameter_mm: float | None = None
-    decision_rule: str = "simple"
+    decision_rule: str = "simple"  # "simple" or "guard-banded"
+    press_test: str = ""  # "", "rings-spread" or "rings-shrink": what the rings did when the part was pressed
+    gap_change: str = "increasing"  # how the gap changed from frame to frame in a frame set
     operator: str = ""
 
     def to_dict(self) -> dict:
@@ -152,6 +154,9 @@ class SetupState:
             extras["operator"] = self.operator.strip()
         if overrides is not None:
             extras.update(overrides.as_extras())
+        if self.gap_change not in ("increasing", "decreasing"):
+            raise InputError(f"gap change must be 'increasing' or 'decreasing', got {self.gap_change!r}")
+        extras["gap_change"] = self.gap_change
         plate = integrations.plate_dict(self.test_plate) if self.test_plate else None
         tol = self.tolerance.strip() or None
         if tol:
@@ -170,6 +175,7 @@ class SetupState:
             tolerance=tol,
             test_plate=plate,
             decision_rule=self.decision_rule or "simple",
+            press_test=self.press_test or None,
             extras=extras,
             **kw,
         )

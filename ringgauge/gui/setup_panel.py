@@ -103,6 +103,24 @@ class SetupPanel(QWidget):
         self.diameter = _spin(0, 1000, 2, 0.5, " mm", "Test diameter over which the form is evaluated, mm")
         self.diameter.setSpecialValueText("not set")
         f.addRow("Test diameter", self.diameter)
+        self.rule = QComboBox()
+        self.rule.addItem("Simple acceptance", "simple")
+        self.rule.addItem("Guard-banded", "guard-banded")
+        self.rule.setToolTip("Simple: pass when the value is within the limit (near the limit: conditional). "
+                             "Guard-banded: pass only when value + U is within the limit.")
+        f.addRow("Decision rule", self.rule)
+        self.press = QComboBox()
+        self.press.addItem("not done", "")
+        self.press.addItem("rings spread outward", "rings-spread")
+        self.press.addItem("rings shrink inward", "rings-shrink")
+        self.press.setToolTip("What the rings did when the part was pressed gently at its centre; gives the "
+                              "sign of power from one frame")
+        f.addRow("Press test", self.press)
+        self.gap = QComboBox()
+        self.gap.addItem("gap grows frame to frame", "increasing")
+        self.gap.addItem("gap shrinks frame to frame", "decreasing")
+        self.gap.setToolTip("For a frame set: how the gap changed between the frames (gives the sign of power)")
+        f.addRow("Frame set", self.gap)
         lay.addWidget(g)
 
         # who ----------------------------------------------------------------------------------------------------
@@ -113,7 +131,7 @@ class SetupPanel(QWidget):
         f.addRow("Operator", self.operator)
         lay.addWidget(g)
 
-        for combo in (self.source, self.profile, self.medium, self.kind, self.plate):
+        for combo in (self.source, self.profile, self.medium, self.kind, self.plate, self.rule, self.press, self.gap):
             # keep the panel narrow; the open list shows the full names
             combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
             combo.setMinimumContentsLength(16)
@@ -130,6 +148,8 @@ class SetupPanel(QWidget):
         self.medium.currentIndexChanged.connect(self._edited)
         self.kind.currentIndexChanged.connect(self._edited)
         self.plate.currentIndexChanged.connect(self._edited)
+        for combo in (self.rule, self.press, self.gap):
+            combo.currentIndexChanged.connect(self._edited)
         for s in (self.wavelength, self.wavelength_u, self.pixel, self.pixel_u, self.index, self.index_u,
                   self.diameter):
             s.valueChanged.connect(self._edited)
@@ -213,6 +233,9 @@ class SetupPanel(QWidget):
             self.index_u.setEnabled(cm)
             self._select(self.kind, s.fringe_kind)
             self._select(self.plate, s.test_plate)
+            self._select(self.rule, s.decision_rule)
+            self._select(self.press, s.press_test)
+            self._select(self.gap, s.gap_change)
             if self.tolerance.text() != s.tolerance:
                 self.tolerance.setText(s.tolerance)
             self.diameter.setValue(s.test_diameter_mm or 0.0)
@@ -251,6 +274,9 @@ class SetupPanel(QWidget):
             "medium": self.medium.currentData(),
             "fringe_kind": self.kind.currentData(),
             "test_plate": self.plate.currentData() or "",
+            "decision_rule": self.rule.currentData(),
+            "press_test": self.press.currentData() or "",
+            "gap_change": self.gap.currentData(),
             "tolerance": self.tolerance.text().strip(),
             "test_diameter_mm": self.diameter.value() or None,
             "operator": self.operator.text().strip(),

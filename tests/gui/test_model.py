@@ -38,7 +38,8 @@ def test_setup_to_bench_setup_media_sources_and_messages():
     with pytest.raises(InputError, match="test diameter"):
         SetupState(tolerance="3/2(0.5)").to_bench_setup()
     ov = Overrides(centre_px=(10.0, 20.0))
-    assert SetupState(operator=" ab ").to_bench_setup(overrides=ov).extras == {"operator": "ab", "centre_px": (10.0, 20.0)}
+    assert SetupState(operator=" ab ").to_bench_setup(overrides=ov).extras == {
+        "operator": "ab", "centre_px": (10.0, 20.0), "gap_change": "increasing"}
 
 
 # -- session -----------------------------------------------------------------------------------------------------------

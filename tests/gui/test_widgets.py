@@ -161,3 +161,18 @@ def test_test_plates_and_tolerance_in_the_panel(app, qtbot, fake_engine):
     b = s.setup.to_bench_setup()
     assert b.tolerance == "3/2(0.5)" and b.test_diameter_mm == 20.0
     assert b.test_plate["id"] == "TP-0412" and b.test_plate["radius_mm"] == pytest.approx(51.68)
+
+
+def test_decision_rule_and_sign_evidence_both_ways(panel):
+    s = panel.session
+    s.update_setup(decision_rule="guard-banded", press_test="rings-spread", gap_change="decreasing")
+    assert (panel.rule.currentData(), panel.press.currentData(), panel.gap.currentData()) == (
+        "guard-banded", "rings-spread", "decreasing")
+    panel.rule.setCurrentIndex(panel.rule.findData("simple"))
+    panel.press.setCurrentIndex(panel.press.findData(""))
+    panel.gap.setCurrentIndex(panel.gap.findData("increasing"))
+    assert (s.setup.decision_rule, s.setup.press_test, s.setup.gap_change) == ("simple", "", "increasing")
+    panel.press.setCurrentIndex(panel.press.findData("rings-shrink"))
+    b = s.setup.to_bench_setup()
+    assert b.press_test == "rings-shrink" and b.extras["gap_change"] == "increasing"
+    assert b.decision_rule == "simple"
