@@ -417,16 +417,7 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     theta, r, J = m.fit(theta)
     n, p = r.size, theta.size + m.nlin()
     s2 = float(r @ r) / max(n - p, 1)
-    try:
-        JtJ_inv = np.linalg.inv(J.T @ J)
-    except np.linalg.LinAlgError:
-        raise CalibrationError("the line-pattern fit is degenerate; photograph more of the scale") from None
-    # Heteroscedasticity-consistent ("sandwich") covariance, with the small-sample factor n / (n - p): the
-    # noise is not uniform (shot noise follows the line pattern, damaged spots), so the classical s^2 (JᵀJ)^-1
-    # would be too optimistic. The larger of the two is kept.
-    cov_classic = JtJ_inv * s2
-    cov_hc = JtJ_inv @ ((J * (r * r)[:, None]).T @ J) @ JtJ_inv * (n / max(n - p, 1))
-    cov = cov_hc if np.trace(cov_hc) > np.trace(cov_classic) else cov_classic
+    cov = _covariance(J, r, p)
     # Residuals at every pattern pixel (in chunks) for their neighbour correlation. For a random subset of
     # a fraction q of the pixels the variance inflation is about 1 + q (kappa - 1), kappa that of all pixels.
     # (over a window of at most 384 x 384 px at the pattern's centre: plenty for a lag-1 correlation)
@@ -454,6 +445,21 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
             f"the image is not a regular line pattern (a periodic model explains only {100 * explained:.0f} % "
             "of it); check focus and that the target is a line scale, grid or dot grid"
         )
+    # the same fit on halves of the pattern (left/right, top/bottom, centre/edge): does the scale vary across
+    # the field (lens distortion, a tilted target)?
+    splits = {}
+    xm, ym = float(np.median(m.xs)), float(np.median(m.ys))
+    rr = np.hypot(m.xs - xm, m.ys - ym)
+    for name, sel in (("left/right", m.xs < xm), ("top/bottom", m.ys < ym), ("centre/edge", rr < np.median(rr))):
+        halves = []
+        for part in (sel, ~sel):
+            if part.sum() < 200:
+                break
+            sub = m.subset(part)
+            th, rh, Jh = sub.fit(theta, max_iter=10)
+            halves.append((th, _covariance(Jh, rh, theta.size + sub.nlin()) * corr))
+        if len(halves) == 2:
+            splits[name] = halves
     drift = np.abs(theta - theta0).reshape(ndir, 2)
     coef = m.solve(theta)[1]
     amps = []
@@ -480,7 +486,73 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
         "neighbour_inflation_all_pixels": kappa,
         "refinement_shift_cycles_per_px": drift.max(),
     }
+    info["_splits"] = splits
     return theta.reshape(ndir, 2), cov, info
+
+
+def _covariance(J, r, p):
+    """Covariance of the frequencies from the projected Jacobian J and residuals r (p parameters in all).
+
+    Heteroscedasticity-consistent ("sandwich") covariance with the small-sample factor n / (n - p): the noise is
+    not uniform (shot noise follows the line pattern, damaged spots), so the classical s^2 (JᵀJ)^-1 can be too
+    optimistic. The larger of the two is kept.
+    """
+    n = r.size
+    try:
+        JtJ_inv = np.linalg.inv(J.T @ J)
+    except np.linalg.LinAlgError:
+        raise CalibrationError("the line-pattern fit is degenerate; photograph more of the scale") from None
+    cov_classic = JtJ_inv * (float(r @ r) / max(n - p, 1))
+    cov_hc = JtJ_inv @ ((J * (r * r)[:, None]).T @ J) @ JtJ_inv * (n / max(n - p, 1))
+    return cov_hc if np.trace(cov_hc) > np.trace(cov_classic) else cov_classic
+
+
+def field_term(metric, theta, parts):
+    """Scale variation across the field from fits on halves of the pattern.
+
+    ``parts`` is a list of (slice of theta, {split name: ((theta_a, cov_a), (theta_b, cov_b))}). For each split
+    the difference d between the halves' (s_x, s_y, psi, s_x - s_y) beyond what their own uncertainties explain,
+    e = sqrt(max(0, d^2 - u_d^2)), is taken; for a scale that changes linearly across the field the local scale
+    then spans ±e around the mean, so u = e_max / sqrt(3) (rectangular). Radial distortion concentrates its
+    change at the edge, so there the corners can lie beyond ±e. Returns (u (4,), details).
+    """
+    from .result import derived, propagate
+
+    theta = np.asarray(theta, dtype=np.float64)
+    e_max = np.zeros(4)
+    out = {}
+    for k, (sl, splits) in enumerate(parts):
+        for name, ((ta, ca), (tb, cb)) in splits.items():
+            def at(t, sl=sl):
+                full = theta.copy()
+                full[sl] = t
+                return derived(metric(full))
+
+            da, db = at(ta), at(tb)
+            ua, ub = propagate(at, ta, ca), propagate(at, tb, cb)
+            d = da - db
+            ud = np.hypot(ua, ub)
+            e = np.sqrt(np.clip(d * d - ud * ud, 0.0, None))
+            e_max = np.maximum(e_max, e)
+            out[name if len(parts) == 1 else f"{name} (image {k + 1})"] = {
+                "difference_um_per_px": [float(d[0]), float(d[1])],
+                "difference_u_um_per_px": [float(ud[0]), float(ud[1])],
+            }
+    e_max[3] = max(e_max[0], e_max[1], e_max[3])
+    return e_max / math.sqrt(3.0), {"halves": out, "excess_um_per_px": [float(e_max[0]), float(e_max[1])]}
+
+
+FIELD_NOTE = ("fits on halves of the pattern (left/right, top/bottom, centre/edge) differ beyond their own "
+              "uncertainty by e (lens distortion, a tilted target); u = e / sqrt(3). The local scale in the "
+              "far corners of a distorted field can differ by more")
+
+
+def _field_warning(u_field, scale) -> list[str]:
+    rel = math.sqrt(3.0) * max(u_field[0], u_field[1]) / scale
+    if rel > 1e-4:
+        return [f"the scale varies across the field by about {1e6 * rel:.0f} ppm (lens distortion or a tilted "
+                "target); carried in the budget -- use the same field area for parts, or a better lens"]
+    return []
 
 
 def light_blur_bound(f, amps, hess) -> float:
@@ -598,6 +670,7 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
     z0 = _flat_field(data, max(H, W) / 16.0)
     f0, spec_info = find_frequencies(z0, "grid" if kind == "dots" else kind)
     f, cov, fit_info = fit_frequencies(data, f0, harmonics=2 if kind == "dots" else None)
+    splits = fit_info.pop("_splits")
     warnings: list[str] = []
     if defaulted:
         warnings.append(
@@ -625,11 +698,19 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
         b = light_blur_bound(fv, fit_info["harmonic_amplitudes"][0], fit_info["light_log_hessian_per_px2"])
         ul = s * b / math.sqrt(3.0)
         details["light_blur_bound_rel"] = b
+
+        def metric1(t):
+            sc2 = P * P * float(t[0] ** 2 + t[1] ** 2)
+            return np.array([sc2, 0.0, sc2])
+
+        u_field, details["field"] = field_term(metric1, fv, [(slice(0, 2), splits)])
+        warnings += _field_warning(u_field, s)
         warnings.append("one line set: the scale is measured across the lines only, and x and y are assumed "
                         "equal; a crossed grid, or the scale photographed again turned by 90°, measures both")
         details["direction_deg"] = details["directions"][0]["normal_direction_deg"]
         return assemble("line-scale", target, G, np.array([us, us, 0.0, 0.0]), ref, measured_y=False,
-                        extra=[("uneven light through the blur", np.array([ul, ul, 0.0, 0.0]), LIGHT_NOTE)],
+                        extra=[("uneven light through the blur", np.array([ul, ul, 0.0, 0.0]), LIGHT_NOTE),
+                               ("scale variation across the field", u_field, FIELD_NOTE)],
                         images=images, details=details, warnings=warnings)
 
     def metric(theta):
@@ -650,9 +731,13 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
               for j, v in enumerate(f)]
     details["light_blur_bound_rel"] = bounds
     light = _light_term(metric, theta, 2, bounds)
+    u_field, details["field"] = field_term(metric, theta, [(slice(0, 4), splits)])
+    warnings += _field_warning(u_field, math.sqrt(metric(theta)[0]))
     method = {"dots": "dot-grid", "grid": "crossed-grid"}.get(kind, "square-grid")
-    res = assemble(method, target, metric(theta), fit_u, ref, extra=[("uneven light through the blur", light,
-                   LIGHT_NOTE)], images=images, details=details, warnings=warnings)
+    res = assemble(method, target, metric(theta), fit_u, ref,
+                   extra=[("uneven light through the blur", light, LIGHT_NOTE),
+                          ("scale variation across the field", u_field, FIELD_NOTE)],
+                   images=images, details=details, warnings=warnings)
     return _anisotropy_note(res)
 
 
@@ -683,12 +768,13 @@ def measure_line_pair(image_a, image_b, pitch_um: float, pitch_u_um: float | Non
     if defaulted:
         uP = _default_pitch_u(P)
     frames = [_as_frame(image_a), _as_frame(image_b)]
-    fs, covs, infos = [], [], []
+    fs, covs, infos, pair_splits = [], [], [], []
     for fr in frames:
         data = fr.data.astype(np.float64)
         H, W = data.shape
         f0, spec_info = find_frequencies(_flat_field(data, max(H, W) / 16.0), "lines")
         f, cov, fit_info = fit_frequencies(data, f0)
+        pair_splits.append(fit_info.pop("_splits"))
         fs.append(f[0])
         covs.append(cov)
         fit_info["light_blur_bound_rel"] = light_blur_bound(f[0], fit_info["harmonic_amplitudes"][0],
@@ -727,8 +813,12 @@ def measure_line_pair(image_a, image_b, pitch_um: float, pitch_u_um: float | Non
     details = {"images": infos, "turn_deg": turn}
     target = {"kind": "line scale (two orientations)", "pitch_um": P, "pitch_u_um": uP, "id": target_id}
     light = _light_term(metric, theta, 2, [i["fit"]["light_blur_bound_rel"] for i in infos])
+    u_field, details["field"] = field_term(metric, theta, [(slice(0, 2), pair_splits[0]),
+                                                           (slice(2, 4), pair_splits[1])])
+    warnings += _field_warning(u_field, math.sqrt(G[0]))
     res = assemble("line-scale-pair", target, G, fit_u, ("pitch", P, uP, "µm"),
-                   extra=[("uneven light through the blur", light, LIGHT_NOTE)],
+                   extra=[("uneven light through the blur", light, LIGHT_NOTE),
+                          ("scale variation across the field", u_field, FIELD_NOTE)],
                    images=tuple(_image_info(f) for f in frames), details=details, warnings=warnings)
     from dataclasses import replace
 

@@ -38,8 +38,13 @@ def _rng(rng) -> np.random.Generator:
     return rng if isinstance(rng, np.random.Generator) else np.random.default_rng(rng)
 
 
-def _sample(fn, camera: Camera, offset_um=(0.0, 0.0), ss: int = 3) -> np.ndarray:
-    """``fn(X_um, Y_um, footprint_um)`` on a grid ``ss`` times finer than the pixels: shape (H ss, W ss)."""
+def _sample(fn, camera: Camera, offset_um=(0.0, 0.0), ss: int = 3, distortion: float = 0.0) -> np.ndarray:
+    """``fn(X_um, Y_um, footprint_um)`` on a grid ``ss`` times finer than the pixels: shape (H ss, W ss).
+
+    ``distortion`` k makes the object-space scale grow radially: a pixel at relative radius rho (1 at the
+    frame's corner) sees the part at (1 + k rho^2) times the nominal position (k < 0 barrel, > 0 pincushion
+    as seen in the image).
+    """
     H, W = camera.height, camera.width
     sx = camera.pixel_um
     sy = camera.pixel_y_um or camera.pixel_um
@@ -47,8 +52,14 @@ def _sample(fn, camera: Camera, offset_um=(0.0, 0.0), ss: int = 3) -> np.ndarray
     foot = max(sx, sy) / ss  # anti-aliasing ramp width of one sub-sample, µm
     xs = (np.arange(W * ss) + 0.5) / ss - 0.5 - cx  # sub-sample centres in pixel units
     ys = (np.arange(H * ss) + 0.5) / ss - 0.5 - cy
-    X = (xs * sx - offset_um[0])[None, :]
-    Y = (ys * sy - offset_um[1])[:, None]
+    if distortion:
+        rho2 = (xs[None, :] ** 2 + ys[:, None] ** 2) / (cx**2 + cy**2)
+        grow = 1.0 + distortion * rho2
+        X = xs[None, :] * sx * grow - offset_um[0]
+        Y = ys[:, None] * sy * grow - offset_um[1]
+    else:
+        X = (xs * sx - offset_um[0])[None, :]
+        Y = (ys * sy - offset_um[1])[:, None]
     return np.broadcast_to(fn(X, Y, foot), (H * ss, W * ss)).astype(np.float64)
 
 
@@ -134,6 +145,7 @@ def line_grating(
     length_um: float | None = None,
     long_every: int = 0,
     base_line: bool = False,
+    distortion: float = 0.0,
     missing_lines: int = 0,
     damaged_lines: int = 0,
     camera: Camera = Camera(width=640, height=512, pixel_um=1.0, blur_px=0.8),
@@ -157,6 +169,8 @@ def line_grating(
     base_line : bool
         A long line across the divisions at one end of the strip, as many stage micrometers have; needs
         length_um.
+    distortion : float
+        Radial lens distortion k (see ``_sample``); 0 = none.
     missing_lines, damaged_lines : int
         How many lines are missing entirely / have a gap, chosen at random.
     rng : {numpy.random.Generator, int}, optional
@@ -177,9 +191,10 @@ def line_grating(
             op = np.maximum(op, _ramp(line_width * pitch_um / 2 - np.abs(v + 0.5 * length_um), foot))
         return 1.0 - contrast * op
 
-    img, specks = _expose(_sample(fn, camera, offset_um, 3), 3, camera, lighting, g, dust)
+    img, specks = _expose(_sample(fn, camera, offset_um, 3, distortion), 3, camera, lighting, g, dust)
     return TargetImage(img, _truth("line_grating", camera, lighting, pitch_um=pitch_um, angle_deg=angle_deg,
-                                   line_width=line_width, missing=missing, damaged=damaged, dust=specks))
+                                   line_width=line_width, missing=missing, damaged=damaged, distortion=distortion,
+                                   dust=specks))
 
 
 def crossed_grid(

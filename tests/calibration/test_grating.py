@@ -221,3 +221,29 @@ def test_micrometer_strip_with_long_marks_is_not_taken_for_a_grid():
     assert cal.method == "line-scale"
     a = math.radians(33.0)
     assert cal.scale_x.value == pytest.approx(math.hypot(3.0 * math.cos(a), 3.01 * math.sin(a)), rel=2e-4)
+
+
+def test_lens_distortion_is_seen_and_carried_in_the_budget():
+    # Radial distortion k: a pixel at relative radius rho sees the part at rho (1 + k rho^2), so the local scale
+    # grows toward the edge for k > 0 and shrinks for k < 0, in proportion to k (derived). The centre/edge halves
+    # must differ with that sign and scale linearly with k; left/right and top/bottom hardly at all.
+    d = {}
+    for k in (1e-3, -3e-3):
+        im = T.line_grating(10.0, angle_deg=20.0, camera=Camera(pixel_um=1.0, **SMALL), distortion=k, rng=3)
+        cal = measure_grating(im.image, 10.0, 0.0)
+        rows = {r.quantity: r for r in cal.budget_x.rows}
+        assert rows["scale variation across the field"].contribution > 5 * rows["fit to the target image"].contribution
+        assert any("varies across the field" in w for w in cal.warnings)
+        halves = cal.details["field"]["halves"]
+        d[k] = halves["centre/edge"]["difference_um_per_px"][0]  # centre half minus edge half
+        assert abs(d[k]) > 10 * abs(halves["left/right"]["difference_um_per_px"][0])
+    assert d[1e-3] < 0 < d[-3e-3]
+    assert d[-3e-3] / d[1e-3] == pytest.approx(-3.0, rel=0.15)
+
+
+def test_no_distortion_gives_a_small_field_term():
+    im = T.line_grating(10.0, angle_deg=20.0, camera=Camera(pixel_um=1.0, **SMALL), rng=3)
+    cal = measure_grating(im.image, 10.0, 0.0)
+    rows = {r.quantity: r for r in cal.budget_x.rows}
+    assert rows["scale variation across the field"].contribution < 3 * rows["fit to the target image"].contribution
+    assert not any("varies across the field" in w for w in cal.warnings)
