@@ -149,6 +149,27 @@ def overlay_from(d: dict | None, overrides: dict | None = None) -> Overlay:
     return ov
 
 
+def overrides_ignored(d: dict | None, overrides: dict | None, *, tol_px: float = 3.0) -> list[str]:
+    """Which hand settings the result does not reflect (the engine found its own centre or aperture).
+
+    The window passes a hand-set centre and aperture to the engine in ``setup.extras``; an engine that does not
+    read them finds its own. The operator must know when that happened."""
+    out: list[str] = []
+    if not d or not overrides:
+        return out
+    c = overrides.get("centre_px")
+    rc = d.get("centre_px")
+    if c is not None and rc and math.hypot(float(rc[0]) - c[0], float(rc[1]) - c[1]) > tol_px:
+        out.append(f"centre (the result's centre is at {float(rc[0]):.1f}, {float(rc[1]):.1f} px)")
+    a = overrides.get("aperture_px")
+    ap = ((d.get("form") or {}).get("aperture") or {}) if isinstance(d.get("form"), dict) else {}
+    if a is not None and ap.get("centre_px") and _num(ap.get("diameter_px")):
+        off = math.hypot(ap["centre_px"][0] - a[0], ap["centre_px"][1] - a[1])
+        if off > tol_px or abs(float(ap["diameter_px"]) / 2 - a[2]) > tol_px:
+            out.append(f"aperture (the result's aperture is {float(ap['diameter_px']):.0f} px across)")
+    return out
+
+
 # -- the results table ----------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class ValueRow:

@@ -470,6 +470,11 @@ class MainWindow(QMainWindow):
                                shape=s.frames[0].shape if s.frames else None)
         if self.residual_on:
             self._show_photo()
+        ignored = display.overrides_ignored(d, s.overrides.as_extras())
+        if ignored:
+            self.bench.show_notice("The analysis did not use your hand-set " + " and ".join(ignored)
+                                   + ": this engine finds its own. Treat the result with care or clear the "
+                                   "manual settings (Edit menu).")
         v = display.verdict_view(d)
         R = (d or {}).get("radius_mm")
         extra = ""

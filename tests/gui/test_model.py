@@ -234,3 +234,11 @@ def test_job_progress_takes_fraction_and_message_or_a_message_alone(sample_dir):
     assert job.run(lambda f, m: seen.append((f, m))) == "done"
     assert seen == [(0.4, "fitting"), (0.4, "a step without a fraction"), (0.4, "a broken fraction"),
                     (1.0, "too far")]
+
+
+def test_hand_settings_the_result_ignored_are_named():
+    d = {"centre_px": [100.0, 80.0], "form": {"aperture": {"centre_px": [150.0, 150.0], "diameter_px": 200.0}}}
+    assert display.overrides_ignored(d, {"centre_px": (101.0, 81.0)}) == []
+    assert display.overrides_ignored(d, {"centre_px": (120.0, 80.0)})[0].startswith("centre")
+    assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 100.5)}) == []
+    assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 130.0)})[0].startswith("aperture")

@@ -116,6 +116,8 @@ def test_manual_centre_with_undo(app, qtbot, fake_engine, sample_dir, rg_home):
     # the engine is told
     qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.extras.get("centre_px") == (120.0, 100.0),
                     timeout=10000)
+    # the hand-made engine keeps its own centre: the window says the hand setting was not used
+    assert "did not use your hand-set centre" in w.bench.notice.text()
     w.a_undo.trigger()
     assert w.session.overrides.empty and not w.a_undo.isEnabled() and w.a_redo.isEnabled()
     w.bench.view.aperturePicked.emit(5.0, 5.0, 1.0)  # too small: a message, no change
