@@ -116,6 +116,16 @@ def register(sub) -> None:
     o.add_argument("--json", action="store_true", help="print the full result as JSON instead of the text report")
     o.add_argument("--out", metavar="FILE", help="also write the JSON result to FILE")
     o.add_argument("--quiet", action="store_true", help="no progress messages on stderr")
+    if _has("ringgauge.records"):
+        from . import _records_common as rc
+
+        r = p.add_argument_group("keeping the result")
+        r.add_argument(
+            "--record", action="store_true",
+            help="keep this analysis as an inspection record in the records store (see 'ringgauge records')",
+        )
+        rc.add_db_argument(r)
+        rc.add_meta_arguments(p)
     p.set_defaults(func=run)
 
 
@@ -143,4 +153,17 @@ def run(args: argparse.Namespace) -> int:
         print(json.dumps(d, indent=2, ensure_ascii=False))
     else:
         print(format_result(d))
+    if getattr(args, "record", False):
+        _keep(args, result, d)
     return 0
+
+
+def _keep(args: argparse.Namespace, result, d: dict) -> None:
+    """Append the result to the records store, one transaction; say where it went (on stderr with --json)."""
+    from . import _records_common as rc
+
+    meta = rc.meta_from_args(args)
+    with rc.open_from_args(args) as store:
+        rec = store.add(meta, d, image_path=result.image.path, image_sha256=result.image.sha256, setup=d["setup"])
+        where = store.where
+    print(f"kept as inspection record {rec.id} in {where}", file=sys.stderr if args.json else sys.stdout)
