@@ -540,32 +540,13 @@ def _form_fit_map(form_obj, shape, n: int = 161) -> dict | None:
             "title": "Surface form: fitted gap less piston and tilt"}
 
 
-def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24, sectors: int = 12) -> np.ndarray | None:
-    """Fit minus image for a ring result, NaN outside the fitted rings.
-
-    The fitted orders put dark rings at whole m = (r² − c) / slope, so the model is I = a − b cos 2πm. Only
-    the background a and the fringe amplitude b are taken from the image, cell by cell of ``annuli`` rings and
-    ``sectors`` angular sectors (uneven lighting); the phase is the fit's own, so a wrong centre or slope shows
-    as residual fringes."""
-    if not d:
-        return None
-    fr = d.get("fringes") or {}
-    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
-    c = d.get("centre_px")
-    px = (d.get("setup") or {}).get("pixel_size_um") or []
-    rmax = _num(fr.get("r_max_mm"))
-    if None in (slope, icpt, rmax) or not c or len(px) < 2 or not slope:
-        return None
-    img = np.asarray(data, dtype=np.float64)
+def _cell_residual(img, m, rn, theta, *, annuli: int, sectors: int) -> np.ndarray:
+    """Model minus image with the model a − b·cos 2πm, a and b fitted per cell of ``annuli`` rings in the
+    normalised radius ``rn`` (< 1 inside) and ``sectors`` angular sectors; NaN outside."""
     H, W = img.shape
-    yy, xx = np.mgrid[0:H, 0:W]
-    dx = (xx - float(c[0])) * float(px[0]) * 1e-3
-    dy = (yy - float(c[1])) * float(px[1]) * 1e-3
-    r2 = dx * dx + dy * dy
-    m = (r2 - icpt) / slope
-    ring = np.floor(r2 / (rmax * rmax) * annuli).astype(np.int64)
-    sector = np.floor((np.arctan2(dy, dx) + np.pi) / (2 * np.pi) * sectors).astype(np.int64) % sectors
-    inside = ring < annuli
+    ring = np.floor(rn * annuli).astype(np.int64)
+    sector = np.floor((theta + np.pi) / (2 * np.pi) * sectors).astype(np.int64) % sectors
+    inside = (rn >= 0) & (ring < annuli)
     cell = np.where(inside, ring * sectors + sector, -1).ravel()
     v = img.ravel()
     cm = -np.cos(2 * np.pi * m).ravel()
@@ -584,6 +565,49 @@ def residual_image(data: np.ndarray, d: dict | None, *, annuli: int = 24, sector
     out = np.full(v.shape, np.nan)
     out[sel] = a[cell[sel]] + b[cell[sel]] * cm[sel] - v[sel]
     return out.reshape(H, W)
+
+
+def residual_image(data: np.ndarray, d: dict | None, *, form_obj=None, annuli: int = 24,
+                   sectors: int = 12) -> np.ndarray | None:
+    """Fit minus image, NaN where nothing was fitted.
+
+    Rings on a flat: the fitted orders put dark rings at whole m = (r² − c) / slope. Form against a test plate:
+    the gap fit gives m = gap in fringes (dark at whole fringes). The model is I = a − b cos 2πm; only the
+    background a and the fringe amplitude b are taken from the image, cell by cell of annuli and angular sectors
+    (uneven lighting); the phase is the fit's own, so a wrong centre, slope or form shows as residual fringes."""
+    img = np.asarray(data, dtype=np.float64)
+    H, W = img.shape
+    yy, xx = np.mgrid[0:H, 0:W]
+    if form_obj is not None and getattr(form_obj, "fits", None):
+        try:
+            from ..form.fit import gap_basis
+        except ImportError:
+            return None
+        f = form_obj.fits[0]
+        cx, cy = f.centre_px
+        r, aspect = float(f.radius_px), float(f.aspect or 1.0)
+        u, v = (xx - cx) / r, (yy - cy) * aspect / r
+        rn = np.sqrt(u * u + v * v)
+        inside = rn <= 1.0
+        coeffs = np.asarray(f.coeffs, dtype=float)
+        m = np.zeros(img.shape)
+        m[inside] = coeffs @ gap_basis(u[inside], v[inside], len(coeffs))
+        return _cell_residual(img, m, np.where(inside, rn, 2.0), np.arctan2(v, u), annuli=annuli // 2,
+                              sectors=sectors)
+    if not d:
+        return None
+    fr = d.get("fringes") or {}
+    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
+    c = d.get("centre_px")
+    px = (d.get("setup") or {}).get("pixel_size_um") or []
+    rmax = _num(fr.get("r_max_mm"))
+    if None in (slope, icpt, rmax) or not c or len(px) < 2 or not slope:
+        return None
+    dx = (xx - float(c[0])) * float(px[0]) * 1e-3
+    dy = (yy - float(c[1])) * float(px[1]) * 1e-3
+    r2 = dx * dx + dy * dy
+    return _cell_residual(img, (r2 - icpt) / slope, r2 / (rmax * rmax), np.arctan2(dy, dx), annuli=annuli,
+                          sectors=sectors)
 
 
 def rounded_u(u: float | None) -> str:

@@ -491,14 +491,14 @@ class MainWindow(QMainWindow):
         if self.residual_on:
             if self._residual_cache is None:
                 d = s.result.to_dict() if s.result is not None else None
-                res = display.residual_image(s.frames[0].data, d)
+                res = display.residual_image(s.frames[0].data, d, form_obj=getattr(s.result, "form", None))
                 self._residual_cache = None if res is None else display.signed_to_rgb(res)
             if self._residual_cache is not None:
                 view.set_image(self._residual_cache, refit=refit)
                 self.bench.hint.setText("Residual view: fit minus image (orange: fit brighter, blue: image "
                                         "brighter, grey: not fitted)")
                 return
-            self.bench.hint.setText("No residual for this result (no ring fit)")
+            self.bench.hint.setText("No residual for this result (nothing was fitted)")
         view.set_image(display.image_to_u8(s.frames[0].data), refit=refit)
 
     def toggle_residual(self, on: bool) -> None:

@@ -242,3 +242,31 @@ def test_hand_settings_the_result_ignored_are_named():
     assert display.overrides_ignored(d, {"centre_px": (120.0, 80.0)})[0].startswith("centre")
     assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 100.5)}) == []
     assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 130.0)})[0].startswith("aperture")
+
+
+def test_form_residual_follows_the_gap_fit():
+    fit = pytest.importorskip("ringgauge.form.fit")
+    from types import SimpleNamespace
+
+    from ringgauge import synth
+
+    P, piston = 1.6, 0.3
+    s = synth.test_plate_fringes(synth.SurfaceForm(power=P, piston=piston), aperture_diameter_mm=20.0,
+                                 camera=synth.Camera(width=200, height=200, pixel_um=125.0, blur_px=0.0),
+                                 lighting=synth.Lighting(falloff=0, gradient=0, stray=0), noise=False)
+    img = s.intensity
+    c = (99.5, 99.5)
+    r = 10.0 / 0.125  # aperture radius in px
+
+    def form_with(power):
+        # P rho^2 = P/2 (Z20 + 1): piston term and the unnormalised defocus Z(2,0) = 2 rho^2 - 1
+        coeffs = np.zeros(len(fit.TERMS))
+        coeffs[0], coeffs[3] = piston + power / 2, power / 2
+        g = SimpleNamespace(names=tuple(t[0] for t in fit.TERMS), coeffs=coeffs, centre_px=c, radius_px=r, aspect=1.0)
+        return SimpleNamespace(fits=(g,), fringe_nm=273.0)
+
+    right = display.residual_image(img, None, form_obj=form_with(P))
+    wrong = display.residual_image(img, None, form_obj=form_with(P + 0.15))
+    amp = np.nanstd(img[np.isfinite(right)])
+    assert np.nanstd(right) < 0.05 * amp
+    assert np.nanstd(wrong) > 4 * np.nanstd(right)
