@@ -400,7 +400,10 @@ class MainWindow(QMainWindow):
             job = self.session.make_job()
         except RinggaugeError as exc:
             self.session.error = str(exc)
+            self.session.busy = False  # an earlier job, if any, is outdated and dropped
+            self.progress.setVisible(False)
             self.bench.results.show_error(str(exc))
+            self.bench.plots.clear()
             self.set_status(str(exc))
             return False
         self.progress.setValue(0)

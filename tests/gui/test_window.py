@@ -305,3 +305,16 @@ def test_single_key_shortcuts_do_not_steal_typing(app, qtbot, fake_engine, sampl
     assert w.bench.view.mode == "centre"
     qtbot.keyClick(w.bench.view, Qt.Key.Key_Escape)
     assert w.bench.view.mode == "look"
+
+
+def test_an_incomplete_setup_is_a_message_in_the_banner(app, qtbot, fake_engine, sample_dir, rg_home):
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    calls = fake_engine.calls
+    w.session.update_setup(tolerance="3/2(0.5)")  # a tolerance without a test diameter
+    qtbot.waitUntil(lambda: w.session.error is not None, timeout=5000)
+    assert "test diameter" in w.bench.results.banner.explain.text()
+    assert not w.session.busy and not w.progress.isVisible() and fake_engine.calls == calls
+    w.session.update_setup(test_diameter_mm=20.0)
+    qtbot.waitUntil(lambda: fake_engine.calls > calls and analysed(w)(), timeout=10000)
