@@ -150,7 +150,7 @@ def test_random_coverage():
 
 #: large frames (2.0 to 5.0 megapixels), each with its own effects
 LARGE = {
-    "5.0 MP, centre off, Na": (M.SIZES[6], dict(spectrum=M.sodium_doublet())),
+    "5.0 MP, Na doublet": (M.SIZES[6], dict(spectrum=M.sodium_doublet())),
     "5.0 MP, LED 20 nm": (M.SIZES[6], dict(spectrum=M.gaussian_band(600.0, 20.0))),
     "3.1 MP, 16-bit, dust": (M.SIZES[5], dict(bits=16)),
 }
