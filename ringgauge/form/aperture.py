@@ -201,7 +201,10 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = ED
     jj = np.clip(first - step_in, 0, n - 1)
     idx = np.nonzero(good & (first + step_in < n) & ok[np.arange(len(first)), jj])[0]
     level = prof[idx, first[idx] + step_in]
-    strong = level - b0 > 0.4 * (inside_hi - b0)
+    # a clear step: the level just inside is a good part of the brightest fringe further in along the same
+    # ray (uneven light makes a global reference unfair to the dim side)
+    ray_hi = np.array([prof[i, first[i]:].max() for i in idx])
+    strong = (level - b0 > 0.4 * (ray_hi - b0)) & (ray_hi - b0 > 0.15 * (inside_hi - b0))
     idx, level = idx[strong], level[strong]
     if idx.size < 20:
         return circle, 0

@@ -31,7 +31,13 @@ from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxi
 from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
 from .tolerance import Tolerance, parse_tolerance
 
-MC_DRAWS = 400
+MC_DRAWS = 300
+
+
+def FINESSE_CANDIDATES(n: float) -> tuple[float, ...]:  # noqa: N802
+    """Fringe shapes tried: two-beam (F = 0: low reflectance, e.g. an index-matched or coated face) and
+    uncoated glass of index 1.45 and 1.9 against the gap medium (Fresnel)."""
+    return (0.0, finesse_coefficient(1.45, n), finesse_coefficient(1.90, n))
 GLASS_INDEX = 1.52  # typical crown glass; sets the multiple-beam fringe shape (common practice, no source)
 
 FORM_TERMS = (
@@ -280,7 +286,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
             sat = ndimage.binary_dilation(sat, iterations=2)
         try:
             g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat, finesse=F,
-                        finesse_range=(finesse_coefficient(1.45, n), finesse_coefficient(1.90, n)) if i == 0 else None,
+                        finesse_candidates=FINESSE_CANDIDATES(n) if i == 0 else None,
                         progress=(lambda m, i=i: say(f"frame {i + 1}: {m}")))
         except np.linalg.LinAlgError:
             raise AnalysisError(f"{fr_.name}: the gap model could not be fitted (singular); check focus and "

@@ -95,14 +95,8 @@ def gap_basis(u, v, nterms: int = len(TERMS)) -> np.ndarray:
 
 
 def _poly2(u, v, degree: int) -> np.ndarray:
-    cols = [np.ones_like(u)]
-    if degree >= 1:
-        cols += [u, v]
-    if degree >= 2:
-        cols += [u * u, u * v, v * v]
-    if degree >= 3:
-        cols += [u**3, u * u * v, u * v * v, v**3]
-    return np.stack(cols)
+    """Monomials u^i v^j with i + j <= degree, (n, N) array."""
+    return np.stack([u**i * v**j for d in range(degree + 1) for i in range(d, -1, -1) for j in [d - i]])
 
 
 @dataclass(frozen=True)
@@ -252,7 +246,8 @@ def fit_gap(
     max_points: int = 20000,
     nterms: int = len(TERMS),
     finesse: float = 0.0,
-    finesse_range: tuple[float, float] | None = None,
+    finesse_candidates: tuple[float, ...] | None = None,
+    illum_degree: int = 3,
     progress=None,
 ) -> GapFit:
     """Fit the gap model to the pixels inside the aperture.
@@ -276,9 +271,12 @@ def fit_gap(
     finesse : float
         Coefficient of finesse F = 4 rho / (1 - rho)^2 of the gap's faces (rho = Fresnel reflectance), for the
         multiple-beam fringe shape; 0 fits plain cosine (two-beam) fringes. See :func:`finesse_coefficient`.
-    finesse_range : (2,) tuple, optional
-        Lowest and highest plausible F (unknown glass index): the fit is repeated at both ends, and with a
-        cubic illumination model, to give the model-choice sensitivities in ``GapFit.alternatives``.
+    illum_degree : int
+        Degree of the illumination polynomial L(u, v) (the start values use a quadratic).
+    finesse_candidates : tuple of float, optional
+        Other plausible F values (unknown glass index, two-beam fringes): the fit is repeated with each and the
+        best kept; the runner-up and a one-degree-richer illumination model give the model-choice
+        sensitivities in ``GapFit.alternatives``.
 
     Raises
     ------
@@ -307,37 +305,40 @@ def fit_gap(
     cstride = max(stride, int(math.floor(math.sqrt(n_in / 4000))))
     coarse[::cstride, ::cstride] = True
     coarse &= inside
-    cprob = _Problem(u_all[coarse], v_all[coarse], img[coarse], finesse=finesse)
+    shapes = (finesse,) if not finesse_candidates else tuple(dict.fromkeys((finesse, 0.0)))
     if progress:
-        progress(f"trying {len(starts)} start values")
+        progress(f"trying {len(starts) * 2 * len(shapes)} start values")
     tried = []
-    for c0 in starts:
-        for m0 in ((-0.8, 0, 0), (0.8, 0, 0)):
-            r = _refine(cprob, cprob.start(c0, m0), LOW_ORDER, max_nfev=30)
-            tried.append((_cost(r), tuple(r.x)))
+    for Fs in shapes:
+        cprob = _Problem(u_all[coarse], v_all[coarse], img[coarse], finesse=Fs)
+        for c0 in starts:
+            for m0 in ((-0.8, 0, 0), (0.8, 0, 0)):
+                r = _refine(cprob, cprob.start(c0, m0), LOW_ORDER, max_nfev=30)
+                tried.append((_cost(r), Fs, tuple(r.x)))
     tried.sort(key=lambda t: t[0])
-    prob = _Problem(u_all[sel], v_all[sel], img[sel], finesse=finesse)
     if progress:
         progress(f"fitting the gap model to {int(sel.sum())} pixels")
     best = None
     seen = []
-    for _, pt in tried:
+    for _, Fs, pt in tried:
         if len(seen) == 2:
             break
         c = np.asarray(pt[:LOW_ORDER])
         if any(np.allclose(np.abs(c[1:]), np.abs(o[1:]), atol=0.05) for o in seen):
             continue
         seen.append(c)
+        prob = _Problem(u_all[sel], v_all[sel], img[sel], illum_degree, finesse=Fs)
         p0 = prob.start(np.concatenate([c, np.zeros(max(0, nterms - LOW_ORDER))]), pt[LOW_ORDER : LOW_ORDER + 3])
         r = _refine(prob, p0, nterms)
         if best is None or _cost(r) < best[0]:
-            best = (_cost(r), r.x)
+            best = (_cost(r), r.x, Fs)
     p = best[1]
+    finesse = best[2]
     nw = nterms
     # outlier pass on all pixels: dust, glints and chips leave large residuals in compact clusters
     if progress:
         progress("looking for dust and defects")
-    full = _Problem(u_all[inside], v_all[inside], img[inside], finesse=finesse)
+    full = _Problem(u_all[inside], v_all[inside], img[inside], illum_degree, finesse=finesse)
     r = full.full_residual(p, nw)[:-1]
     sig = 1.4826 * np.median(np.abs(r - np.median(r)))
     bad = np.zeros_like(inside)
@@ -345,14 +346,32 @@ def fit_gap(
     bad = ndimage.binary_opening(bad, iterations=1)
     bad = ndimage.binary_dilation(bad, iterations=3) & inside
     sel2 = sel & ~bad
-    prob = _Problem(u_all[sel2], v_all[sel2], img[sel2], finesse=finesse)
+    prob = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree, finesse=finesse)
     res = _refine(prob, p, nw, max_nfev=200)
+    alternatives = {}
+    shape_note = ""
+    if finesse_candidates:
+        # the fringe shape depends on the faces' reflectance (glass index, coatings, a liquid gap): refit with
+        # each candidate coefficient of finesse and keep the one that fits best; the runner-up gives the
+        # model-choice sensitivity
+        if progress:
+            progress("choosing the fringe shape")
+        fits = [(finesse, prob, res)]
+        for Fc in finesse_candidates:
+            if abs(Fc - finesse) < 1e-9:
+                continue
+            pc = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree, finesse=Fc)
+            fits.append((Fc, pc, _refine(pc, res.x, nw, max_nfev=80)))
+        fits.sort(key=lambda t: _cost(t[2]))
+        finesse, prob, res = fits[0]
+        alternatives["fringe shape (next best F)"] = (fits[1][2].x[:nw].copy(), fits[1][2].x[nw : nw + 3].copy())
+        shape_note = f"fringe shape: coefficient of finesse F = {finesse:.3f} fitted best"
     p = res.x
     r = res.fun[:-1]  # without the modulation row
     ndata, nvarys = r.size, p.size
     chisqr = float(np.sum(r * r))
     redchi = chisqr / max(1, ndata - nvarys)
-    corr = _correlation_factor(img, inside & ~bad, p, nw, stride, u_all, v_all, finesse)
+    corr = _correlation_factor(img, inside & ~bad, p, nw, stride, u_all, v_all, finesse, illum_degree)
     cov = None
     try:
         J = res.jac
@@ -360,23 +379,12 @@ def fit_gap(
         cov = cov_full[:nw, :nw]
     except np.linalg.LinAlgError:
         pass
-    alternatives = {}
-    if finesse_range is not None:
+    if finesse_candidates:
         if progress:
-            progress("model sensitivity (fringe shape, illumination)")
-        for label, kw in (
-            ("fringe shape (low F)", {"finesse": finesse_range[0]}),
-            ("fringe shape (high F)", {"finesse": finesse_range[1]}),
-            ("illumination model (cubic)", {"finesse": finesse, "illum_degree": 3}),
-        ):
-            alt = _Problem(u_all[sel2], v_all[sel2], img[sel2], **kw)
-            if kw.get("illum_degree") == 3:
-                p_alt = alt.start(p[:nw], p[nw : nw + 3])
-            else:
-                p_alt = p.copy()
-            ra = _refine(alt, p_alt, nw, max_nfev=60)
-            ca, ma = ra.x[:nw].copy(), ra.x[nw : nw + 3].copy()
-            alternatives[label] = (ca, ma)
+            progress("model sensitivity (illumination)")
+        alt = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree + 1, finesse=finesse)
+        ra = _refine(alt, alt.start(p[:nw], p[nw : nw + 3]), nw, max_nfev=60)
+        alternatives[f"illumination model (degree {illum_degree + 1})"] = (ra.x[:nw].copy(), ra.x[nw : nw + 3].copy())
     c, m = p[:nw], p[nw : nw + 3]
     contrast = float(abs(m[0]))
     c_can, m = _canonical(c, m)
@@ -393,11 +401,10 @@ def fit_gap(
         ca[0] = (ca[0] - c_can[0] + 0.5) % 1.0 - 0.5 + c_can[0]
         alt_out[label] = ca
     c = c_can
+    notes = [shape_note] if shape_note else []
     if abs(m[0]) > 1.1:
-        notes = ["fitted fringe modulation above 1 (unphysical): the illumination and a sub-fringe power are hard "
-                 "to tell apart in this image; treat power below one fringe with care"]
-    else:
-        notes = []
+        notes.append("fitted fringe modulation above 1 (unphysical): the illumination and a sub-fringe power are "
+                     "hard to tell apart in this image; treat power below one fringe with care")
     if contrast < 0.1:
         notes.append(f"weak fringe contrast ({contrast:.2f}); results are less certain")
     masked = np.zeros_like(inside)
@@ -572,7 +579,7 @@ def _from_quadratic(q):
     return out
 
 
-def _correlation_factor(img, mask, p, nw, stride, u_all, v_all, finesse):
+def _correlation_factor(img, mask, p, nw, stride, u_all, v_all, finesse, illum_degree):
     """Variance inflation for correlated residuals at the sampling stride.
 
     The residual map's autocorrelation at lags of one stride along x and y estimates how much neighbouring
@@ -583,7 +590,7 @@ def _correlation_factor(img, mask, p, nw, stride, u_all, v_all, finesse):
     x0, x1 = np.nonzero(mask.any(axis=0))[0][[0, -1]]
     box = (slice(y0, y1 + 1), slice(x0, x1 + 1))
     m = mask[box]
-    tmp = _Problem(u_all[box][m], v_all[box][m], img[box][m], finesse=finesse)
+    tmp = _Problem(u_all[box][m], v_all[box][m], img[box][m], illum_degree, finesse=finesse)
     r = np.zeros(m.shape)
     r[m] = tmp.full_residual(p, nw)[:-1]
     rv = r[m]
