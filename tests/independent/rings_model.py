@@ -75,6 +75,10 @@ class Scene:
     mottle: float = 0.0  # relative rms of a smooth random illumination texture (diffuser, dirty optics)
     mottle_len_px: float = 25.0  # its correlation length
     mottle_seed: int = 0
+    #: the lens's edge when it is smaller than the field: (x, y, radius px); outside it the flat alone reflects,
+    #: without fringes, at ``outside_level`` times the illumination
+    aperture: tuple[float, float, float] | None = None
+    outside_level: float = 0.3
 
     @property
     def full_scale(self) -> int:
@@ -208,6 +212,10 @@ def render_noiseless(scene: Scene) -> np.ndarray:
                 _apply_disc(a, xf, yf[rows], d, lambda v, d=d: v * (1.0 - d.strength))
         shape *= scene.visibility
         shape += 1.0 - scene.visibility
+        if scene.aperture is not None:
+            ax, ay, ar = scene.aperture
+            outside = (xf[None, :] - ax) ** 2 + (yy - ay) ** 2 > ar * ar
+            shape[outside] = scene.outside_level
         img = a
         img *= shape
         img += scene.stray + scene.stray_gradient * (xf[None, :] / W)

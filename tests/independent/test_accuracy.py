@@ -35,6 +35,12 @@ def _scene(n_rings=28.0, centre=C_MID, spectrum=((M.HG_E_NM, 1.0),), n=1.0, size
     return M.Scene(**base)
 
 
+def _lens(aperture, rings_inside, outside_level, centre=(320.3, 240.2)) -> M.Scene:
+    """A lens smaller than the field: rings only inside its edge, the bare flat (no fringes) around it."""
+    R = aperture[2] ** 2 / rings_inside * (PIX_UM * 1e-3) ** 2 / (M.HG_E_NM * 1e-6)
+    return _scene(centre=centre, aperture=aperture, outside_level=outside_level).with_(radius_mm=R)
+
+
 _LAM_HG = M.HG_E_NM
 _dust = tuple(
     M.Dust(x, y, r, kind, s)
@@ -82,6 +88,19 @@ MORE_EFFECTS: dict[str, M.Scene] = {
     "lifted 18 fringes": _scene(contact_gap_nm=18.4 * _LAM_HG / 2, n_rings=40.0),
     "dim exposure (peak 8 %)": _scene(level=0.08, stray=0.005, full_well_e=12000.0),
     "low contrast (V = 0.15)": _scene(visibility=0.15),
+    # not in the issue's list, but a common bench image: the part is smaller than the camera's field
+    "lens r=180 px in the field, grey flat around": _lens((320.0, 240.0, 180.0), 15, 0.3),
+    "lens r=180 px in the field, dark around": _lens((320.0, 240.0, 180.0), 15, 0.02),
+    "lens r=120 px in the field, grey flat around": _lens((320.0, 240.0, 120.0), 15, 0.3),
+    "lens r=140 px in the field, bright around": _lens((320.0, 240.0, 140.0), 15, 0.6),
+}
+
+#: cases the engine does not yet meet; reported to its owner with their figures, marked until fixed
+KNOWN_FAILURES = {
+    "lens r=120 px in the field, grey flat around": "refused: 'no ring system found' although 15 rings of 4 px "
+    "and more lie inside the lens; the ringless field around it hides the fringe spacing",
+    "lens r=140 px in the field, bright around": "silently wrong: R +15.8 % (u 2.4 %, z +5.7) with only a "
+    "low-contrast warning; over noise seeds 0-5 the same scene gave -0.11, -0.10, +28.7 %, refused, -0.10 %, refused",
 }
 
 ALL_EFFECTS = {**EFFECTS, **MORE_EFFECTS}
@@ -94,9 +113,14 @@ def _effect(name):
     return _cache[name]
 
 
-@pytest.mark.parametrize(
-    "name", [*EFFECTS, *(pytest.param(n, marks=pytest.mark.slow) for n in MORE_EFFECTS)]
-)
+def _marks(name):
+    marks = [pytest.mark.slow] if name in MORE_EFFECTS else []
+    if name in KNOWN_FAILURES:
+        marks.append(pytest.mark.xfail(strict=True, reason=KNOWN_FAILURES[name]))
+    return marks
+
+
+@pytest.mark.parametrize("name", [pytest.param(n, marks=_marks(n)) for n in ALL_EFFECTS])
 def test_effect_radius_and_centre(name):
     o = _effect(name)
     print(o.line())
