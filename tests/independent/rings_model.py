@@ -366,3 +366,15 @@ def radius_for_rings(width: int, height: int, centre_px, n_rings: float, pixel_u
     r_far = max(math.hypot(x - cx, y - cy) for x in (0, width - 1) for y in (0, height - 1))
     period_s = r_far**2 / n_rings  # px^2 per fringe: r^2 = m lambda R / n
     return period_s * medium_index * (pixel_um * 1e-3) ** 2 / (lam_nm * 1e-6)
+
+
+def harsh_scene(seed: int) -> Scene:
+    """The seeded random scene made harder: low fringe visibility, much stray light, strong blur (Gaussian or
+    defocus disc), few electrons, mottled illumination. The rings stay visible to the eye."""
+    sc = random_scene(seed)
+    r = np.random.default_rng(seed + 777)
+    return sc.with_(
+        visibility=float(r.uniform(0.12, 0.4)), blur_px=float(r.uniform(0.8, 2.2)), stray=float(r.uniform(0.1, 0.4)),
+        full_well_e=float(r.uniform(800, 4000)), mottle=float(r.uniform(0, 0.15)), mottle_seed=seed,
+        psf=str(r.choice(["gaussian", "disc"])),
+    )

@@ -1,0 +1,52 @@
+"""Harsh images: the seeded random scenes with every camera effect turned up (low visibility, strong stray light,
+blur, few electrons, mottled light). The issue sets no accuracy target for such severity, so only honesty is
+asserted: the engine either refuses with a message, or its radius lies within 3 reported standard uncertainties
+of the truth. A confident wrong answer is the one outcome an inspector cannot detect.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+import rings_model as M
+from engine_runs import measure, summary
+
+SEEDS = list(range(40))
+
+#: seeds where the engine gives a confident wrong radius; reported to its owner with the figures, marked until fixed
+KNOWN_FAILURES = {
+    2: "R -0.74 % with u 0.18 % (z -4.1), centre 7.1 px off (Na doublet, 1280x960)",
+    11: "R -16.0 % with u 0.39 % (z -49), centre 133 px off: rings centred near the right edge, mottled light",
+    29: "R -26.3 % with u 2.6 % (z -13.5), centre 142 px off: ring centre 11 px outside the left edge",
+    38: "R -11.3 % with u 1.4 % (z -9.3), centre 65 px off: centre near the bottom edge, hot spot, liquid gap",
+}
+_outs: dict[int, object] = {}
+
+
+def _run(seed):
+    if seed not in _outs:
+        _outs[seed] = measure(f"harsh #{seed}", M.harsh_scene(seed), seed)
+    return _outs[seed]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "seed",
+    [pytest.param(s, marks=pytest.mark.xfail(strict=True, reason=KNOWN_FAILURES[s])) if s in KNOWN_FAILURES else s
+     for s in SEEDS],
+)
+def test_harsh_image_is_refused_or_honest(seed):
+    o = _run(seed)
+    print(o.line())
+    if o.ok:
+        assert abs(o.z) <= 3.0, f"confident wrong answer: {o.line()}"
+
+
+@pytest.mark.slow
+def test_harsh_figures():
+    outs = [_run(s) for s in SEEDS]
+    print("\n" + "\n".join(o.line() for o in outs) + "\n" + summary(outs))
+    # every refusal says why, in one line
+    for o in outs:
+        if not o.ok:
+            assert o.error and "\n" not in o.error
