@@ -10,13 +10,13 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import asdict, dataclass, field, fields, replace
+from dataclasses import asdict, dataclass, fields, replace
 from typing import Any, Callable, Sequence
 
 from ..bench_setup import BenchSetup
 from ..errors import AnalysisError, InputError, RinggaugeError
 from ..imaging import IMAGE_SUFFIXES, Frame, load_frame
-from ..sources import SOURCES, custom_source, get_source
+from ..sources import custom_source, get_source
 
 ProgressFn = Callable[[float, str], None]
 AnalyseFn = Callable[..., Any]

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 from contextlib import contextmanager
 
-from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,

@@ -2,6 +2,7 @@
 RINGGAUGE_HOME, sample images and a hand-made engine."""
 
 import os
+import shutil
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
@@ -16,12 +17,19 @@ def rg_home(tmp_path, monkeypatch):
     return home
 
 
-@pytest.fixture
-def sample_dir(tmp_path):
-    d = tmp_path / "images"
-    d.mkdir()
+@pytest.fixture(scope="session")
+def _sample_images(tmp_path_factory):
+    d = tmp_path_factory.mktemp("sample-images")
     write_rings(d / "lens-A01.png", seed=1)
     write_rings(d / "lens-A02.png", seed=2, radius_mm=650.0)
+    return d
+
+
+@pytest.fixture
+def sample_dir(tmp_path, _sample_images):
+    """Two synthetic lens images (made once per session), copied into a folder of the test's own."""
+    d = tmp_path / "images"
+    shutil.copytree(_sample_images, d)
     return d
 
 

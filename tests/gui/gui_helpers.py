@@ -68,3 +68,22 @@ def noiseless_rings(radius_mm=500.0, width=200, height=160, pixel_um=20.0):
                                                           blur_px=0.0),
                            lighting=synth.Lighting(falloff=0, gradient=0, stray=0), noise=False, rng=0)
     return s.intensity.astype(np.float64), s.truth
+
+
+def make_window(qtbot, engine, rg_home, setup=None):
+    """A shown main window over a session with ``engine`` (None = the real pipeline), settings in rg_home."""
+    from ringgauge.gui.model import BenchSession, SetupState
+    from ringgauge.gui.prefs import Prefs
+    from ringgauge.gui.window import MainWindow
+
+    prefs = Prefs(str(rg_home / "window-test.ini"))
+    s = BenchSession(engine, setup or SetupState(source="sodium-d", pixel_size_um=16.0, pixel_size_u_um=0.02))
+    w = MainWindow(s, prefs=prefs)
+    w._debounce.setInterval(0)  # analyse at once after a change (the window waits 350 ms for more typing)
+    qtbot.addWidget(w)
+    w.show()
+    return w
+
+
+def analysed(w):
+    return lambda: w.session.result is not None and not w.session.busy
