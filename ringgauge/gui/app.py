@@ -76,4 +76,18 @@ def run(paths: Sequence[str] = (), *, watch: str | None = None, lot: str | None 
         win.lot.open_folder(lot)
     if training:
         win.tabs.setCurrentWidget(win.training)
+    _close_on_interrupt(win)
     return int(app.exec())
+
+
+def _close_on_interrupt(win) -> None:
+    """Ctrl+C in the terminal closes the window properly (settings saved, workers finished). Qt's event loop
+    does not return to Python on its own, so a timer lets the interpreter see the signal."""
+    import signal
+
+    from PySide6.QtCore import QTimer
+
+    signal.signal(signal.SIGINT, lambda *_: win.close())
+    timer = QTimer(win)
+    timer.timeout.connect(lambda: None)
+    timer.start(250)
