@@ -423,6 +423,12 @@ class BenchSession:
         self.changed.emit("busy")
         return job
 
+    def cancel(self) -> None:
+        """Stop the running analysis at its next progress report (closing the window, say)."""
+        if self._job is not None:
+            self._job.cancelled = True
+        self.busy = False
+
     def is_current(self, job: Job) -> bool:
         return job.generation == self.generation and not job.cancelled
 

@@ -666,6 +666,8 @@ class MainWindow(QMainWindow):
         if self.autosave:
             self.prefs.save_setup(self.session.setup)
         self.session.changed.disconnect(self._on_session)
+        self.session.cancel()
+        self.lot.stop()
         self.runner.wait(5000)
         self.paper.wait(30000)
         super().closeEvent(event)

@@ -270,3 +270,13 @@ def test_form_residual_follows_the_gap_fit():
     amp = np.nanstd(img[np.isfinite(right)])
     assert np.nanstd(right) < 0.05 * amp
     assert np.nanstd(wrong) > 4 * np.nanstd(right)
+
+
+def test_cancel_stops_the_running_job_at_its_next_report(sample_dir):
+    s = BenchSession(FakeEngine())
+    s.open_paths([sample_dir / "lens-A01.png"])
+    job = s.make_job()
+    s.cancel()
+    assert not s.busy
+    with pytest.raises(_Cancelled):
+        job.run()
