@@ -279,9 +279,13 @@ class LotPage(QWidget):
             path = self.lot.rows[i].path
 
             def job(progress, i=i, path=path):
-                if self.lot.generation != gen:
-                    raise _Cancelled()
-                return Lot.analyse_one(path, setup, analyse, progress)
+                def checked(fraction: float, message: str) -> None:
+                    if self.lot.generation != gen:  # the lot was stopped or replaced
+                        raise _Cancelled()
+                    progress(fraction, message)
+
+                checked(0.0, "starting")
+                return Lot.analyse_one(path, setup, analyse, checked)
 
             self.runner.submit((gen, i), job)
         self.running = bool(todo)

@@ -239,3 +239,29 @@ def test_lot_rows_accept_an_engine_that_reports_messages_only(app, qtbot, sample
     page.open_folder(str(sample_dir))
     qtbot.waitUntil(lambda: not page.running, timeout=20000)
     assert [r.status for r in page.lot.rows] == [DONE, DONE]
+
+
+def test_stopping_a_lot_stops_its_work(app, qtbot, sample_dir):
+    import time
+
+    from gui_helpers import hand_result
+
+    reports = []
+
+    def slow(frames, setup, *, progress=None):
+        for i in range(40):
+            time.sleep(0.05)
+            reports.append(i)
+            progress(i / 40, "working")
+        return hand_result(frames[0], setup, 700.0)
+
+    page = LotPage(BenchSession(slow, SetupState(source="sodium-d", pixel_size_um=16.0)))
+    qtbot.addWidget(page)
+    page.open_folder(str(sample_dir))
+    qtbot.waitUntil(lambda: len(reports) >= 3, timeout=10000)
+    page.stop()
+    assert page.wait(10000)
+    n = len(reports)
+    qtbot.wait(300)
+    assert len(reports) == n < 40  # the engine stopped at its next report, and the second image never began
+    assert [r.status for r in page.lot.rows] == ["queued", "queued"] and page.lot.counts()[DONE] == 0
