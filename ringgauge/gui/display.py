@@ -386,6 +386,30 @@ class VerdictView:
     explanation: str
     decision_rule: str
     terms: tuple[str, ...] = ()
+    headline: str = ""  # the key values, large enough to read from a step back
+
+
+def headline(d: dict | None) -> str:
+    """The values an inspector reads first: R ± U, or power and irregularity ± U in fringes."""
+    if not d:
+        return ""
+    k = _num(d.get("k")) or 2.0
+    R, U = _num(d.get("radius_mm")), _num(d.get("radius_U_mm"))
+    if R is not None:
+        a, b = _fmt_pair(R, U)
+        return f"R = {a} {b if b.startswith('±') else ''} mm".replace("  ", " ") + f"  (k = {k:g})"
+    form = d.get("form") if isinstance(d.get("form"), dict) else None
+    if form:
+        kf = _num(form.get("k")) or 2.0
+        parts = []
+        for key, label in (("power_fringes", "Power"), ("irregularity_fringes", "Irregularity")):
+            v, u = _num(form.get(key)), _num(form.get(key.replace("_fringes", "_u_fringes")))
+            if v is not None:
+                a, b = _fmt_pair(v, None if u is None else kf * u)
+                parts.append(f"{label} {a} {b if b.startswith('±') else ''}".rstrip())
+        if parts:
+            return " · ".join(parts) + f" fringes  (k = {kf:g})"
+    return ""
 
 
 _VERDICTS = {
@@ -401,9 +425,11 @@ _VERDICTS = {
 
 def verdict_view(d: dict | None) -> VerdictView:
     v = (d or {}).get("verdict")
+    head = headline(d)
     if not isinstance(v, dict):
         if d and d.get("radius_mm") is not None:
-            return VerdictView("MEASURED", "•", "none", "radius measured; no tolerance given, so no pass/fail", "")
+            return VerdictView("MEASURED", "•", "none", "radius measured; no tolerance given, so no pass/fail", "",
+                               headline=head)
         return VerdictView("NO RESULT", "–", "none", "open an image and analyse it", "")
     overall = str(v.get("overall", "not evaluated")).lower()
     word, sym, tone, expl = _VERDICTS.get(overall, (overall.upper(), "?", "none", ""))
@@ -428,7 +454,7 @@ def verdict_view(d: dict | None) -> VerdictView:
         expl = str(v["meaning"])
     elif overall == "not evaluated" and v.get("reason"):
         expl = str(v["reason"])
-    return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms))
+    return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms), head)
 
 
 # -- plots ----------------------------------------------------------------------------------------------------

@@ -44,12 +44,17 @@ class VerdictBanner(QFrame):
         self.word.setObjectName("verdictWord")
         self.symbol.setMinimumWidth(36)
         text = QVBoxLayout()
+        self.headline = QLabel()
+        self.headline.setObjectName("verdictHeadline")
+        self.headline.setWordWrap(True)
+        self.headline.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.explain = QLabel()
         self.explain.setWordWrap(True)
         self.rule = QLabel()
         self.rule.setWordWrap(True)
         self.rule.setObjectName("verdictRule")
         text.addWidget(self.word)
+        text.addWidget(self.headline)
         text.addWidget(self.explain)
         text.addWidget(self.rule)
         lay.addWidget(self.symbol, 0, Qt.AlignmentFlag.AlignTop)
@@ -64,11 +69,14 @@ class VerdictBanner(QFrame):
         self.setStyleSheet(f"#verdictBanner {{ background: {bg}; border-radius: 6px; }}"
                            f"#verdictBanner QLabel {{ color: {fg}; background: transparent; }}"
                            "#verdictBanner QLabel#verdictWord { font-size: 22pt; font-weight: bold; }"
-                           "#verdictBanner QLabel#verdictRule { font-size: 9pt; }")
+                           "#verdictBanner QLabel#verdictRule { font-size: 9pt; }"
+                           "#verdictBanner QLabel#verdictHeadline { font-size: 15pt; font-weight: bold; }")
 
     def show_verdict(self, v: VerdictView) -> None:
         self.symbol.setText(v.symbol)
         self.word.setText(v.word)
+        self.headline.setText(v.headline)
+        self.headline.setVisible(bool(v.headline))
         lines = [v.explanation] + list(v.terms)
         self.explain.setText("\n".join(x for x in lines if x))
         self.rule.setText(f"Decision rule: {v.decision_rule}" if v.decision_rule else "")
@@ -79,6 +87,7 @@ class VerdictBanner(QFrame):
     def show_busy(self, fraction: float, message: str) -> None:
         self.symbol.setText("…")
         self.word.setText("ANALYSING")
+        self.headline.setVisible(False)
         self.explain.setText(f"{message} ({100 * fraction:.0f} %)" if message else "")
         self.rule.setVisible(False)
         self._paint("busy")
@@ -86,6 +95,7 @@ class VerdictBanner(QFrame):
     def show_error(self, message: str) -> None:
         self.symbol.setText("!")
         self.word.setText("NO MEASUREMENT")
+        self.headline.setVisible(False)
         self.explain.setText(message)
         self.rule.setVisible(False)
         self.setAccessibleName(f"Analysis failed: {message}")

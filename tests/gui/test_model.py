@@ -280,3 +280,11 @@ def test_cancel_stops_the_running_job_at_its_next_report(sample_dir):
     assert not s.busy
     with pytest.raises(_Cancelled):
         job.run()
+
+
+def test_headline_carries_the_key_values_with_their_uncertainty():
+    assert display.headline({"radius_mm": 826.2632, "radius_U_mm": 3.3776, "k": 2.0}) == "R = 826.3 ± 3.4 mm  (k = 2)"
+    form = {"k": 2.0, "power_fringes": 1.6903, "power_u_fringes": 0.0065, "irregularity_fringes": 0.3481,
+            "irregularity_u_fringes": 0.012}
+    assert display.headline({"form": form}) == "Power 1.690 ± 0.013 · Irregularity 0.348 ± 0.024 fringes  (k = 2)"
+    assert display.headline(None) == ""

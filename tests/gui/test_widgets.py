@@ -69,9 +69,11 @@ def test_results_panel_states_the_verdict_in_words(app, qtbot, sample_dir):
         assert rp.banner.rule.text() == "Decision rule: guard-banded"
     value, U, unit = rp.value_of("Radius of curvature R")
     assert float(value) == pytest.approx(900.0, abs=0.1) and U.startswith("± ") and unit == "mm"
+    assert rp.banner.headline.text() == f"R = {value} {U} mm  (k = 2)"
     assert rp.budget.rowCount() == 1 and rp.tabs.tabText(2) == "Warnings (1)"
     rp.show_error("the image is all black (no fringe contrast)")
     assert rp.banner.word.text() == "NO MEASUREMENT" and "all black" in rp.banner.explain.text()
+    assert rp.banner.headline.isHidden()
     assert rp.values.rowCount() == 0
 
 
