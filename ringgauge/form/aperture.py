@@ -113,7 +113,7 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
     # refine on the full-resolution gradient: the strongest brightness step along each ray near the circle
     hull_full = np.kron(hull, np.ones((step, step), dtype=bool))[:H, :W] if step > 1 else hull
-    circle, _ = _refine_edge(img, circle, aspect, hull_full)
+    circle, _ = _refine_edge(img, circle, aspect, hull_full, window=0.5)
     circle, n_edge = _refine_edge(img, circle, aspect, hull_full, window=0.05)
     if n_edge < 0.12 * EDGE_RAYS:  # under about 45 degrees of clear edge
         raise AnalysisError(
@@ -172,14 +172,25 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = ED
     cx, cy, r = circle[0], circle[1], circle[2]
     H, W = img.shape
     sm = ndimage.gaussian_filter(img, 1.0)
-    outside = ~ndimage.binary_dilation(hull, iterations=3)
+    # the surround level from well outside the current circle (a dark rim just outside a too-small first
+    # circle must not pull it down)
+    yy, xx = np.mgrid[0:H, 0:W]
+    far = np.hypot(xx - cx, (yy - cy) * aspect) > (1.0 + window) * r
+    outside = far if far.sum() >= 200 else ~ndimage.binary_dilation(hull, iterations=3)
     if outside.sum() < 50:
         return circle, 0
     vals = sm[outside]
     b0 = float(np.median(vals))
     s0 = float(1.4826 * np.median(np.abs(vals - b0)))
     inside_hi = float(np.percentile(sm[hull], 95))
+    dist = np.hypot(xx - cx, (yy - cy) * aspect)
+    ring = (dist > 0.7 * r) & (dist < (1.0 + window) * r)
+    inside_lo = float(np.percentile(sm[ring | hull], 2))
     thr = b0 + max(6 * s0, 0.2 * (inside_hi - b0))
+    # a dark fringe at the rim is darker than the surround (the plate alone still reflects; the gap at a dark
+    # fringe does not): the edge shows as a drop there
+    dark_ok = b0 - inside_lo > 5 * s0
+    thr_lo = b0 - max(3 * s0, 0.4 * (b0 - inside_lo)) if dark_ok else -np.inf
     th = np.linspace(0, 2 * np.pi, nrays, endpoint=False)
     ds = np.arange(window * r, -window * r, -0.25)  # outward -> inward
     rr = r + ds[None, :]
@@ -188,32 +199,34 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = ED
     ok = (xs >= 0) & (xs <= W - 1) & (ys >= 0) & (ys <= H - 1)
     prof = ndimage.map_coordinates(sm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1)
     prof[~ok] = b0  # beyond the frame: treat as surround
-    above = prof > thr
-    hit = above.any(axis=1)
-    first = np.argmax(above, axis=1)
+    cross = (prof > thr) | (prof < thr_lo)
+    hit = cross.any(axis=1)
+    first = np.argmax(cross, axis=1)
     good = hit & (first > 0)
     if good.sum() < 20:
         return circle, 0
-    # keep rays that meet a clear bright step (a dark fringe at the edge gives none) and place the point at
-    # half height between the surround and the level just inside, which is symmetric under blur
+    # keep rays that meet a clear step (bright, or dark against the surround) and place the point at half
+    # height between the surround and the level just inside, which is symmetric under blur
     n = ds.size
     step_in = 8  # 2 px inward
     jj = np.clip(first - step_in, 0, n - 1)
     idx = np.nonzero(good & (first + step_in < n) & ok[np.arange(len(first)), jj])[0]
+    sgn = np.where(prof[idx, first[idx]] > b0, 1.0, -1.0)
     level = prof[idx, first[idx] + step_in]
-    # a clear step: the level just inside is a good part of the brightest fringe further in along the same
+    # a clear step: the level just inside is a good part of the most extreme fringe further in along the same
     # ray (uneven light makes a global reference unfair to the dim side)
-    ray_hi = np.array([prof[i, first[i]:].max() for i in idx])
-    strong = (level - b0 > 0.4 * (ray_hi - b0)) & (ray_hi - b0 > 0.15 * (inside_hi - b0))
-    idx, level = idx[strong], level[strong]
+    ray_ext = np.array([np.max(sg * (prof[i, first[i]:] - b0)) for i, sg in zip(idx, sgn)])
+    span = np.where(sgn > 0, inside_hi - b0, b0 - inside_lo)
+    strong = (sgn * (level - b0) > 0.4 * ray_ext) & (ray_ext > 0.15 * span)
+    idx, level, sgn = idx[strong], level[strong], sgn[strong]
     if idx.size < 20:
         return circle, 0
     rb = np.empty(idx.size)
-    for k, (i, L) in enumerate(zip(idx, level)):
+    for k, (i, L, sg) in enumerate(zip(idx, level, sgn)):
         t = 0.5 * (b0 + L)
         j0 = max(1, first[i] - step_in)
-        seg = prof[i, j0 : first[i] + step_in + 1]
-        jj = int(np.argmax(seg > t))
+        seg = sg * (prof[i, j0 : first[i] + step_in + 1] - t)
+        jj = int(np.argmax(seg > 0))
         j = j0 + jj
         p0, p1 = prof[i, j - 1], prof[i, j]
         frac = np.clip((t - p0) / (p1 - p0), 0, 1) if p1 != p0 else 0.5
@@ -234,10 +247,10 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = ED
         f0 = _fit_circle(px[inl], py[inl], aspect, x0=(cx, cy, r))
         d = np.hypot(px - f0[0], (py - f0[1]) * aspect) - f0[2]
         out = d > 1.5
-        if out.sum() < max(20, 0.3 * inl.sum()):
+        if out.sum() < max(20, 0.1 * inl.sum()):
             break
         _, inl2 = ransac(pts[out], CircleModel, min_samples=3, residual_threshold=1.0, max_trials=300, rng=rng)
-        if inl2 is None or inl2.sum() < max(20, 0.3 * inl.sum()):
+        if inl2 is None or inl2.sum() < max(20, 0.1 * inl.sum()):
             break
         idx_out = np.nonzero(out)[0][inl2]
         f1 = _fit_circle(px[idx_out], py[idx_out], aspect, x0=f0[:3])

@@ -34,7 +34,7 @@ from .tolerance import Tolerance, parse_tolerance
 MC_DRAWS = 300
 
 
-def FINESSE_CANDIDATES(n: float) -> tuple[float, ...]:  # noqa: N802
+def finesse_candidates(n: float) -> tuple[float, ...]:
     """Fringe shapes tried: two-beam (F = 0: low reflectance, e.g. an index-matched or coated face) and
     uncoated glass of index 1.45 and 1.9 against the gap medium (Fresnel)."""
     return (0.0, finesse_coefficient(1.45, n), finesse_coefficient(1.90, n))
@@ -286,7 +286,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
             sat = ndimage.binary_dilation(sat, iterations=2)
         try:
             g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat, finesse=F,
-                        finesse_candidates=FINESSE_CANDIDATES(n) if i == 0 else None,
+                        finesse_candidates=finesse_candidates(n) if i == 0 else None,
                         progress=(lambda m, i=i: say(f"frame {i + 1}: {m}")))
         except np.linalg.LinAlgError:
             raise AnalysisError(f"{fr_.name}: the gap model could not be fitted (singular); check focus and "
@@ -359,7 +359,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     plate = setup.test_plate
     if plate and plate.get("radius_mm") and math.isfinite(float(plate["radius_mm"])):
         radius, rw = _radius_block(terms["power_fringes"], terms_u.get("power_fringes", 0.0), td,
-                                   k_td, ap, px, setup, plate, sign)
+                                   ap, px, setup, plate, sign)
         warnings += rw
     verdict = _verdict(terms, terms_u, tol, lam, setup.decision_rule, sign)
     if tol is not None and tol.wavelength_stated and abs(tol.wavelength_nm - lam) > 0.5:
@@ -383,7 +383,7 @@ def _basis(g: GapFit, u, v):
     return gap_basis(u, v, len(g.coeffs))
 
 
-def _radius_block(N, uN, D, k_td, ap, px, setup, plate, sign: SignResult):
+def _radius_block(N, uN, D, ap, px, setup, plate, sign: SignResult):
     warnings = []
     R = float(plate["radius_mm"])
     uR = float(plate.get("radius_u_mm") or 0.0)

@@ -39,7 +39,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import ndimage, optimize
+from scipy import ndimage
 
 from ..errors import AnalysisError
 

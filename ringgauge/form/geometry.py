@@ -136,5 +136,4 @@ def radius_budget(
         rows_rs.append(BudgetRow(r.quantity, r.estimate, r.estimate_unit, r.u, r.distribution, r.divisor, c,
                                  r.sensitivity_unit, abs(c) * r.u))
     b_rs = make_budget("surface radius", "mm", R_plate + sign * base, rows_rs)
-    del convex_plate
     return b_dr, b_rs, warnings
