@@ -454,7 +454,9 @@ def verdict_view(d: dict | None) -> VerdictView:
         expl = str(v["meaning"])
     elif overall == "not evaluated" and v.get("reason"):
         expl = str(v["reason"])
-    return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms), head)
+    # with a term-by-term verdict the terms themselves carry the values; the headline would repeat them
+    return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms),
+                       "" if terms else head)
 
 
 # -- plots ----------------------------------------------------------------------------------------------------

@@ -62,11 +62,13 @@ def test_results_panel_states_the_verdict_in_words(app, qtbot, sample_dir):
     setup = SetupState(source="sodium-d", pixel_size_um=16.0).to_bench_setup()
     for overall, word, tone in (("pass", "PASS", "pass"), ("fail", "FAIL", "fail"),
                                 ("conditional fail", "CONDITIONAL FAIL", "conditional")):
+        rule = "guard-banded acceptance: a term passes only when value + U is within the limit"
         d = hand_result(f, setup, 900.0, verdict={"overall": overall, "terms": [],
-                                                  "decision_rule": "guard-banded"}).to_dict()
+                                                  "decision_rule": rule}).to_dict()
         rp.show_result(d)
         assert rp.banner.word.text() == word and rp.banner.tone == tone
-        assert rp.banner.rule.text() == "Decision rule: guard-banded"
+        assert rp.banner.rule.text() == "Decision rule: guard-banded acceptance"
+        assert rp.banner.rule.toolTip() == rule
     value, U, unit = rp.value_of("Radius of curvature R")
     assert float(value) == pytest.approx(900.0, abs=0.1) and U.startswith("± ") and unit == "mm"
     assert rp.banner.headline.text() == f"R = {value} {U} mm  (k = 2)"
