@@ -6,6 +6,7 @@ coordinates, origin at the centre of the top-left pixel. Arrays are indexed ``im
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import os
 from dataclasses import dataclass, field
@@ -179,9 +180,12 @@ def load_frame(path: str | os.PathLike) -> Frame:
         raise ImageError(f"{p}: cannot be read ({exc.strerror or exc})") from None
     if size == 0:
         raise ImageError(f"{p}: the file is empty (0 bytes)")
-    raw = cv2.imdecode(buf, cv2.IMREAD_UNCHANGED)
-    if raw is None and p.suffix.lower() in (".tif", ".tiff"):
-        raw = _read_tiff_fallback(p)
+    with _native_stderr_silenced():
+        raw = cv2.imdecode(buf, cv2.IMREAD_UNCHANGED)
+        if raw is None and p.suffix.lower() in (".tif", ".tiff"):
+            raw = _read_tiff_fallback(p)
+    if raw is not None and (raw.size == 0 or raw.ndim not in (2, 3)):
+        raw = None  # a decoder that gave up half-way
     if raw is None:
         kind = "image" if p.suffix.lower() in IMAGE_SUFFIXES else "file"
         raise ImageError(
@@ -191,6 +195,26 @@ def load_frame(path: str | os.PathLike) -> Frame:
         raw = raw.astype(np.float64)
     digest = hashlib.sha256(buf.tobytes()).hexdigest()
     return frame_from_array(raw, path=str(p), sha256=digest)
+
+
+@contextlib.contextmanager
+def _native_stderr_silenced():
+    """Hold back what the C image libraries (libpng, libtiff) print on file descriptor 2 while decoding, so a
+    damaged file gives ringgauge's one-line message only. Python-level stderr is untouched."""
+    try:
+        saved = os.dup(2)
+    except OSError:  # no usable descriptor 2 (embedded use): nothing to silence
+        yield
+        return
+    try:
+        with open(os.devnull, "wb") as null:
+            os.dup2(null.fileno(), 2)
+            try:
+                yield
+            finally:
+                os.dup2(saved, 2)
+    finally:
+        os.close(saved)
 
 
 def _quiet_opencv(cv2) -> None:
