@@ -85,6 +85,7 @@ def main() -> int:
     # 2. the residual view and the radial profile
     win.a_residual.trigger()
     win.bench.plots.setCurrentIndex(1)
+    pump(60, lambda: "Residual view" in win.bench.hint.text())
     shot("bench-residual.png")
     win.a_residual.trigger()
     win.bench.plots.setCurrentIndex(0)

@@ -149,6 +149,9 @@ class MainWindow(QMainWindow):
         self.auto_analyse = True
         self.watch: FolderWatch | None = None
         self._residual_cache = None
+        self.drawing = Runner(self)  # pictures that take a moment (the residual view)
+        self.drawing.signals.finished.connect(self._drawing_done)
+        self.drawing.signals.failed.connect(lambda _t, msg: self.show_problem(msg))
         self.paper = Runner(self)  # records and PDFs
         self.paper.signals.finished.connect(self._paper_done)
         self.paper.signals.failed.connect(lambda _t, msg: self.show_problem(msg))
@@ -492,17 +495,28 @@ class MainWindow(QMainWindow):
             view.set_image(None)
             return
         if self.residual_on:
-            if self._residual_cache is None:
-                d = s.result.to_dict() if s.result is not None else None
-                res = display.residual_image(s.frames[0].data, d, form_obj=getattr(s.result, "form", None))
-                self._residual_cache = None if res is None else display.signed_to_rgb(res)
-            if self._residual_cache is not None:
-                view.set_image(self._residual_cache, refit=refit)
-                self.bench.hint.setText("Residual view: fit minus image (orange: fit brighter, blue: image "
-                                        "brighter, grey: not fitted)")
-                return
-            self.bench.hint.setText("No residual for this result (nothing was fitted)")
+            cache = self._residual_cache
+            if s.result is None:
+                self.bench.hint.setText("No residual yet: analyse the image first")
+            elif cache is not None and cache[0] is s.result:
+                if cache[1] is not None:
+                    view.set_image(cache[1], refit=refit)
+                    self.bench.hint.setText("Residual view: fit minus image (orange: fit brighter, blue: image "
+                                            "brighter, grey: not fitted)")
+                    return
+                self.bench.hint.setText("No residual for this result (nothing was fitted)")
+            else:
+                # a full frame takes a moment: worked out on a worker thread, shown when ready
+                result, data = s.result, s.frames[0].data
+                self.drawing.submit(("residual", result), lambda _p: _residual_rgb(data, result))
+                self.bench.hint.setText("Working out the residual view…")
         view.set_image(display.image_to_u8(s.frames[0].data), refit=refit)
+
+    def _drawing_done(self, token, rgb) -> None:
+        if token[0] == "residual":
+            self._residual_cache = (token[1], rgb)
+            if self.residual_on and token[1] is self.session.result:
+                self._show_photo()
 
     def toggle_residual(self, on: bool) -> None:
         self.residual_on = bool(on)
@@ -669,5 +683,13 @@ class MainWindow(QMainWindow):
         self.session.cancel()
         self.lot.stop()
         self.runner.wait(5000)
+        self.drawing.wait(10000)
         self.paper.wait(30000)
         super().closeEvent(event)
+
+
+def _residual_rgb(data, result):
+    """Fit minus image as an RGB picture, or None when the result has nothing fitted (worker thread)."""
+    d = result.to_dict()
+    res = display.residual_image(data, d, form_obj=getattr(result, "form", None))
+    return None if res is None else display.signed_to_rgb(res)

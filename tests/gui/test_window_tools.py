@@ -41,7 +41,9 @@ def test_layers_residual_view_and_help(app, qtbot, fake_engine, sample_dir, rg_h
     w.layer_actions["rings"].trigger()
     assert not w.bench.view._groups["rings"].isVisible()
     w.a_residual.trigger()
-    assert w.residual_on and "Residual view" in w.bench.hint.text()
+    assert w.residual_on
+    qtbot.waitUntil(lambda: "Residual view" in w.bench.hint.text(), timeout=10000)
+    assert w._residual_cache[1].shape == w.session.frames[0].shape + (3,)
     w.a_residual.trigger()
     assert not w.residual_on
     text = w.help_html()
