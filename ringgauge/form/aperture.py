@@ -16,6 +16,7 @@ algebraic fits, which are biased on partial arcs.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -113,8 +114,11 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
     # refine on the full-resolution gradient: the strongest brightness step along each ray near the circle
     hull_full = np.kron(hull, np.ones((step, step), dtype=bool))[:H, :W] if step > 1 else hull
-    circle, _ = _refine_edge(img, circle, aspect, hull_full, window=0.5)
-    circle, n_edge = _refine_edge(img, circle, aspect, hull_full, window=0.05)
+    circle, n_edge = _refine_edge(img, circle, aspect, hull_full, window=0.5)
+    fine, n_fine = _refine_edge(img, circle, aspect, hull_full, window=0.05)
+    moved = math.hypot(fine[0] - circle[0], fine[1] - circle[1]) + abs(fine[2] - circle[2])
+    if n_fine >= 0.5 * n_edge and moved < 0.03 * circle[2]:  # the close look only polishes the circle
+        circle, n_edge = fine, n_fine
     if n_edge < 0.12 * EDGE_RAYS:  # under about 45 degrees of clear edge
         raise AnalysisError(
             "the part's round edge was not found (the fringe field has no clear circular boundary); show the "
