@@ -121,7 +121,8 @@ def summary(outcomes: list[Outcome]) -> str:
     cov = sum(abs(o.z) <= COVERAGE_K for o in outcomes) / max(len(outcomes), 1)
     cov1 = sum(abs(o.z) <= 1 for o in outcomes) / max(len(outcomes), 1)
     return (
-        f"{len(outcomes)} cases, {len(outcomes) - len(good)} refused; |radius error| median {100 * np.median(errs):.4f} %"
+        f"{len(outcomes)} cases, {len(outcomes) - len(good)} refused; "
+        f"|radius error| median {100 * np.median(errs):.4f} %"
         f", worst {100 * errs.max():.4f} %, within the 0.05 % aim {np.mean(errs <= RADIUS_AIM):.0%}; centre error "
         f"median {np.median(cerr):.3f} px, worst {cerr.max():.3f} px, within the 0.1 px aim "
         f"{np.mean(cerr <= CENTRE_AIM_PX):.0%}; |error| <= 3u in {cov:.0%}, <= 1u in {cov1:.0%}"
