@@ -58,8 +58,12 @@ MIN_PEAK_RATIO = 12.0
 MIN_EXPLAINED = 0.2
 #: points used by the least-squares refinement (a regular sub-grid of the pattern area)
 MAX_FIT_POINTS = 40_000
+#: residuals beyond this many robust standard deviations are left out (dust, damaged lines)
+REJECT_K = 4.0
 #: cross terms a phase_1 + b phase_2 of a grid's model (a grid of opaque lines is a product of two line sets)
 MIXED_ORDERS = ((1, 1), (1, -1), (2, 1), (2, -1), (1, 2), (1, -2), (2, 2), (2, -2))
+#: cross terms of a dot grid's model
+DOT_ORDERS = tuple((a, b) for a in (1, 2, 3) for b in (-3, -2, -1, 1, 2, 3))
 #: where a square grid's second line set is looked for: f1 turned by 90° within these tolerances
 GRID_ANGLE_TOL_DEG = 15.0
 GRID_PERIOD_TOL = 0.2
@@ -245,12 +249,54 @@ def find_frequencies(data: np.ndarray, kind: str = "auto"):
 # ------------------------------------------------------------------------------------- least-squares refinement
 
 
-class _Model:
-    """Periodic model over a set of points; linear in the amplitudes, iterated over the frequencies."""
+#: highest frequency (cycles/px, along x or y) a model term may have: above ~0.5 a harmonic is aliased by the
+#: pixel grid and can fall onto (or next to) a lower one, which makes the fit singular
+NYQUIST_MARGIN = 0.45
 
-    def __init__(self, xs, ys, z, ndir: int, harmonics: int, mixed: bool):
+
+def model_terms(f0, harmonics: int, mixed: bool, mixed_orders=None) -> tuple[tuple[int, ...], ...]:
+    """Integer combinations c of the directions (frequency = sum c_j f_j) that the periodic model carries.
+
+    First each direction's harmonics 1..``harmonics`` (in that order, so harmonic h of direction j is found by
+    :func:`_term_index`), then for a grid the cross terms of :data:`MIXED_ORDERS`; a term whose frequency
+    reaches :data:`NYQUIST_MARGIN` along x or y is left out.
+    """
+    f0 = [np.asarray(f, dtype=np.float64) for f in f0]
+    ndir = len(f0)
+    cand = []
+    for j in range(ndir):
+        for h in range(1, harmonics + 1):
+            c = [0] * ndir
+            c[j] = h
+            cand.append(tuple(c))
+    if ndir == 2 and mixed:
+        cand += [tuple(ab) for ab in (MIXED_ORDERS if mixed_orders is None else mixed_orders)]
+    out = []
+    for c in cand:
+        fr = sum(ci * fj for ci, fj in zip(c, f0))
+        if max(abs(fr[0]), abs(fr[1])) < NYQUIST_MARGIN:
+            out.append(c)
+    return tuple(out)
+
+
+def _term_index(terms, j: int, h: int):
+    c = [0] * len(terms[0]) if terms else []
+    if not c:
+        return None
+    c[j] = h
+    c = tuple(c)
+    return terms.index(c) if c in terms else None
+
+
+class _Model:
+    """Periodic model over a set of points; linear in the amplitudes, iterated over the frequencies.
+
+    Columns: 1, x, y, then cos and sin of each term's phase sum_j c_j phase_j (see :func:`model_terms`).
+    """
+
+    def __init__(self, xs, ys, z, terms, ndir: int):
         self.xs, self.ys, self.z = xs, ys, z
-        self.ndir, self.harmonics, self.mixed = ndir, harmonics, mixed
+        self.terms, self.ndir = terms, ndir
         self.scale = max(float(np.abs(xs).max()), float(np.abs(ys).max()), 1.0)
 
     def _phases(self, theta):
@@ -258,33 +304,18 @@ class _Model:
         return [2 * np.pi * (f[j, 0] * self.xs + f[j, 1] * self.ys) for j in range(self.ndir)]
 
     def design(self, theta):
-        """Columns: 1, x, y, then cos/sin of h * phase_j (h = 1..harmonics) per direction, then the grid's
-        sum and difference terms. Harmonics by the angle-addition recurrence (one cos/sin per direction)."""
         ph = self._phases(theta)
-        n = self.xs.size
-        A = np.empty((n, self.nlin()))
+        A = np.empty((self.xs.size, self.nlin()))
         A[:, 0] = 1.0
         A[:, 1] = self.xs / self.scale
         A[:, 2] = self.ys / self.scale
-        k = 3
-        cs = []
-        for p in ph:
-            c1, s1 = np.cos(p), np.sin(p)
-            cs.append((c1, s1))
-            c, si = c1, s1
-            for h in range(1, self.harmonics + 1):
-                A[:, k], A[:, k + 1] = c, si
-                c, si = c * c1 - si * s1, si * c1 + c * s1
-                k += 2
-        if self.ndir == 2 and self.mixed:
-            for a, b in MIXED_ORDERS:
-                q = a * ph[0] + b * ph[1]
-                A[:, k], A[:, k + 1] = np.cos(q), np.sin(q)
-                k += 2
+        for t, c in enumerate(self.terms):
+            q = sum(ci * p for ci, p in zip(c, ph) if ci)
+            A[:, 3 + 2 * t], A[:, 4 + 2 * t] = np.cos(q), np.sin(q)
         return A
 
     def nlin(self) -> int:
-        return 3 + 2 * self.harmonics * self.ndir + (2 * len(MIXED_ORDERS) if self.ndir == 2 and self.mixed else 0)
+        return 3 + 2 * len(self.terms)
 
     def solve(self, theta):
         """Amplitudes by linear least squares (normal equations: the columns are nearly orthogonal)."""
@@ -298,21 +329,14 @@ class _Model:
 
     def jacobian(self, theta, coef, A, M):
         """Jacobian of the projected residual, Kaufman's form: -(I - A (AᵀA)⁻¹ Aᵀ) dA/dtheta coef."""
-        k = 3
-        slope = []
-        for _ in range(self.ndir):
-            acc = np.zeros_like(self.xs)
-            for h in range(1, self.harmonics + 1):
-                # d/dphase of a cos(h phase) + b sin(h phase)
-                acc += h * (-coef[k] * A[:, k + 1] + coef[k + 1] * A[:, k])
-                k += 2
-            slope.append(acc)
-        if self.ndir == 2 and self.mixed:
-            for a, b in MIXED_ORDERS:
-                t = -coef[k] * A[:, k + 1] + coef[k + 1] * A[:, k]
-                slope[0] = slope[0] + a * t
-                slope[1] = slope[1] + b * t
-                k += 2
+        slope = [np.zeros_like(self.xs) for _ in range(self.ndir)]
+        for t, c in enumerate(self.terms):
+            k = 3 + 2 * t
+            # d/dphase of a cos(phase) + b sin(phase), phase = sum_j c_j phase_j
+            d = -coef[k] * A[:, k + 1] + coef[k + 1] * A[:, k]
+            for j, cj in enumerate(c):
+                if cj:
+                    slope[j] = slope[j] + cj * d
         D = np.empty((self.xs.size, 2 * self.ndir))
         for j in range(self.ndir):
             D[:, 2 * j] = 2 * np.pi * self.xs * slope[j]
@@ -344,7 +368,7 @@ class _Model:
         return theta, r, J
 
     def subset(self, keep):
-        return _Model(self.xs[keep], self.ys[keep], self.z[keep], self.ndir, self.harmonics, self.mixed)
+        return _Model(self.xs[keep], self.ys[keep], self.z[keep], self.terms, self.ndir)
 
 
 def _neighbour_corr(res_img: np.ndarray, ok: np.ndarray) -> float:
@@ -364,7 +388,7 @@ def _neighbour_corr(res_img: np.ndarray, ok: np.ndarray) -> float:
 
 
 def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None, mixed: bool = True,
-                    sigma_px: float | None = None):
+                    sigma_px: float | None = None, mixed_orders=None, reject_k: float = REJECT_K):
     """Refine the frequency vector(s) ``f0`` (cycles/px) over the image; returns (f, cov, info)."""
     H, W = data.shape
     ndir = len(f0)
@@ -401,7 +425,11 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     pts = np.zeros_like(present)
     pts.flat[idx_fit] = True
     xs, ys, zs = xx.flat[idx_fit] - cx, yy.flat[idx_fit] - cy, z.flat[idx_fit]
-    model = _Model(xs, ys, zs, ndir, harmonics, mixed)
+    terms = model_terms(f0, harmonics, mixed, mixed_orders)
+    if not terms:
+        raise CalibrationError("the line period is at the camera's sampling limit; use a coarser pitch or more "
+                               "magnification")
+    model = _Model(xs, ys, zs, terms, ndir)
     theta0 = np.concatenate([np.asarray(f, float) for f in f0])
     keep = np.ones(xs.size, dtype=bool)
     theta = theta0
@@ -409,7 +437,7 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
         theta, _, _ = model.subset(keep).fit(theta)
         r = model.residual(theta)  # all points, so rejected ones can come back
         s = 1.4826 * float(np.median(np.abs(r[keep] - np.median(r[keep]))))
-        new_keep = np.abs(r) <= 4.0 * max(s, 1e-12)
+        new_keep = np.abs(r) <= reject_k * max(s, 1e-12)
         if np.array_equal(new_keep, keep):
             break
         keep = new_keep
@@ -431,7 +459,7 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
     idx_win = np.flatnonzero(present & win)
     for c0 in range(0, idx_win.size, 50_000):
         sl = idx_win[c0:c0 + 50_000]
-        sub = _Model(xx.flat[sl] - cx, yy.flat[sl] - cy, z.flat[sl], ndir, harmonics, mixed)
+        sub = _Model(xx.flat[sl] - cx, yy.flat[sl] - cy, z.flat[sl], terms, ndir)
         sub.scale = m.scale
         res_img.flat[sl] = sub.z - sub.design(theta) @ coef_fit
     s_rob = 1.4826 * float(np.median(np.abs(r - np.median(r))))
@@ -462,10 +490,15 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
             splits[name] = halves
     drift = np.abs(theta - theta0).reshape(ndir, 2)
     coef = m.solve(theta)[1]
-    amps = []
+    amps = []  # amplitudes of harmonics 1, 2, ... of each direction while they are modelled
     for j in range(ndir):
-        k = 3 + 2 * harmonics * j
-        amps.append([float(np.hypot(coef[k + 2 * h], coef[k + 2 * h + 1])) for h in range(harmonics)])
+        a = []
+        for h in range(1, harmonics + 1):
+            t = _term_index(terms, j, h)
+            if t is None:
+                break
+            a.append(float(np.hypot(coef[3 + 2 * t], coef[4 + 2 * t])))
+        amps.append(a)
     # curvature of the log of the local light level over the pattern (quadratic surface, per px^2)
     bg = _smooth(data, sigma)[pts][keep]
     xk, yk = m.xs / m.scale, m.ys / m.scale
@@ -479,6 +512,7 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
         "points_rejected": int(keep.size - keep.sum()),
         "pattern_area_fraction": count / float(H * W),
         "harmonics": harmonics,
+        "model_terms": [list(c) for c in terms],
         "residual_rms": math.sqrt(float(r @ r) / n),
         "explained_fraction": explained,
         "reduced_chi_square_scale": s2,
@@ -669,7 +703,12 @@ def measure_grating(image, pitch_um: float, pitch_u_um: float | None = None, *, 
     H, W = data.shape
     z0 = _flat_field(data, max(H, W) / 16.0)
     f0, spec_info = find_frequencies(z0, "grid" if kind == "dots" else kind)
-    f, cov, fit_info = fit_frequencies(data, f0, harmonics=2 if kind == "dots" else None)
+    # a dot grid's spectrum fills its whole lattice: model every (a, b) with |a|, |b| <= 3
+    # and keep its heavy-tailed residuals (the sharp dot cores): a 4-sigma cut drops them unevenly with the
+    # sampling phase across the field and biased the period by about -200 ppm on generated grids
+    f, cov, fit_info = fit_frequencies(data, f0, harmonics=3 if kind == "dots" else None,
+                                       mixed_orders=DOT_ORDERS if kind == "dots" else None,
+                                       reject_k=8.0 if kind == "dots" else REJECT_K)
     splits = fit_info.pop("_splits")
     warnings: list[str] = []
     if defaulted:

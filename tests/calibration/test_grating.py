@@ -77,12 +77,15 @@ def test_isotropic_grid_is_not_flagged():
     assert abs(cal.scale_x.value - cal.scale_y.value) < 2 * cal.difference_u_um
 
 
-def test_dot_grid():
-    im = T.dot_grid(40.0, angle_deg=12.0, camera=Camera(pixel_um=2.5, pixel_y_um=2.52, **SMALL), rng=2)
+@pytest.mark.parametrize("angle", [0.0, 12.0, 40.0])
+def test_dot_grid(angle):
+    # (a 4-sigma residual cut once biased dot grids by about -200 ppm: the dot cores' residuals are heavy-tailed)
+    im = T.dot_grid(40.0, angle_deg=angle, camera=Camera(pixel_um=2.5, pixel_y_um=2.52, **SMALL), rng=2)
     cal = measure_grating(im.image, 40.0, 0.0, kind="dots")
     assert cal.method == "dot-grid"
-    assert abs(cal.scale_x.value - 2.5) < 4 * cal.scale_x.u
-    assert abs(cal.scale_y.value - 2.52) < 4 * cal.scale_y.u
+    assert abs(cal.scale_x.value - 2.5) < 2.5 * cal.scale_x.u
+    assert abs(cal.scale_y.value - 2.52) < 2.5 * cal.scale_y.u
+    assert cal.details["fit"]["points_rejected"] == 0
 
 
 def test_line_scale_photographed_twice_measures_x_and_y():
@@ -113,6 +116,15 @@ def test_stage_micrometer_strip_with_damage_dust_and_uneven_light():
     assert abs(cal.scale_x.value - 0.9) < 4 * cal.scale_x.u
     assert abs(cal.scale_x.value - 0.9) / 0.9 < 2e-4
     assert cal.details["fit"]["points_rejected"] > 0  # the damage was seen and left out
+
+
+def test_period_of_a_whole_number_of_pixels_on_the_pixel_axis():
+    # 5 px period along x: the 4th harmonic folds exactly onto the 1st on the pixel grid; only harmonics below
+    # the sampling limit may be modelled (this case once gave -156 ppm)
+    im = T.line_grating(10.0, angle_deg=0.0, camera=Camera(pixel_um=2.0, **SMALL), rng=0)
+    cal = measure_grating(im.image, 10.0, 0.0)
+    assert abs(cal.scale_x.value - 2.0) < 3 * cal.scale_x.u
+    assert abs(cal.scale_x.value - 2.0) / 2.0 < 2e-5
 
 
 def test_thin_lines_give_the_fundamental_not_a_harmonic():
