@@ -10,11 +10,17 @@ Method
    grid or a dot grid the second direction is the strongest peak near the first turned by 90° with about the
    same period; when half their sum and difference also carry power (a dot grid's diagonals), those are taken.
 3. Refine f by non-linear least squares of a periodic model -- a constant, a plane, and cosines and sines of
-   the fundamental and its harmonics (plus the sum and difference terms of a grid) -- over the pixels where
-   the pattern is present. The model is linear in its amplitudes, so only f is iterated (variable projection,
-   Golub & Pereyra 1973); pixels with outlying residuals (dust, damaged lines) are dropped and the fit repeated.
-4. Covariance of f: Gauss-Newton, scaled by the reduced chi-square and by the residuals' neighbour
-   correlation (an AR(1) effective-sample-size factor), since neighbouring pixels are not independent.
+   the fundamental and its harmonics (plus a grid's cross terms) -- over a seeded random subset of the pixels
+   where the pattern is present (a regular sub-grid would alias harmonics onto the fundamental). Only terms
+   below 0.45 cycles/px along x and y are modelled: higher ones fold onto lower ones on the pixel grid. The
+   model is linear in its amplitudes, so only f is iterated (variable projection, Golub & Pereyra 1973;
+   Kaufman's Jacobian); pixels with outlying residuals (dust, damaged lines) are dropped and the fit repeated.
+4. Covariance of f: the larger of the Gauss-Newton covariance scaled by the residual variance and the
+   heteroscedasticity-consistent (sandwich) one, times an AR(1) factor for the residuals' neighbour
+   correlation, since neighbouring pixels are not independent.
+5. Systematic terms, each rectangular: uneven light seen through the blur (bounded from the measured light
+   curvature and the harmonics, see :func:`light_blur_bound`) and the scale's variation across the field
+   (fits on halves of the pattern, see :func:`field_term`).
 
 Geometry
 --------
