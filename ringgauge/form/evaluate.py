@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -259,19 +259,6 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     say("finding the part's edge")
     ap = find_aperture(frames[0].data, aspect=aspect)
     warnings += list(ap.notes)
-    ap_diam_mm = 2 * ap.radius_px * px * 1e-3
-    # test diameter: the option, else the tolerance's, else the clear aperture
-    if setup.test_diameter_mm:
-        td, td_src = float(setup.test_diameter_mm), "given"
-    elif tol is not None and tol.test_diameter_mm:
-        td, td_src = float(tol.test_diameter_mm), "tolerance"
-    else:
-        td, td_src = ap_diam_mm, "clear aperture"
-    if td > ap_diam_mm * 1.005:
-        warnings.append(f"test diameter {td:.2f} mm is larger than the clear aperture found "
-                        f"({ap_diam_mm:.2f} mm); evaluated over the clear aperture")
-        td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
-    k_td = min(1.0, td / ap_diam_mm)
     F = finesse_coefficient(GLASS_INDEX, n)
     fits: list[GapFit] = []
     masks: list[dict] = []
@@ -295,6 +282,27 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         masks += _masks(g.masked_px, (px, py), sat, i)
         masked_px += int(g.masked_px.sum()) if g.masked_px is not None else 0
         warnings += [f"{fr_.name}: {m}" for m in g.notes]
+    # the part's edge as the fitted model sees it (where the fringes stop) refines the ring-of-rays circle
+    fit_radius = ap.radius_px
+    scale = fits[0].edge_scale
+    if scale != 1.0:
+        notes.append(f"part edge refined from the fringe model: radius {ap.radius_px:.2f} -> "
+                     f"{ap.radius_px * scale:.2f} px")
+    u_edge = max(0.25, abs(scale - 1.0) * ap.radius_px / (2 * math.sqrt(3)), ap.edge_rms_px / 4)
+    ap = replace(ap, radius_px=ap.radius_px * scale, radius_u_px=math.hypot(ap.radius_u_px, u_edge))
+    ap_diam_mm = 2 * ap.radius_px * px * 1e-3
+    # test diameter: the option, else the tolerance's, else the clear aperture
+    if setup.test_diameter_mm:
+        td, td_src = float(setup.test_diameter_mm), "given"
+    elif tol is not None and tol.test_diameter_mm:
+        td, td_src = float(tol.test_diameter_mm), "tolerance"
+    else:
+        td, td_src = ap_diam_mm, "clear aperture"
+    if td > ap_diam_mm * 1.005:
+        warnings.append(f"test diameter {td:.2f} mm is larger than the clear aperture found "
+                        f"({ap_diam_mm:.2f} mm); evaluated over the clear aperture")
+        td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
+    k_td = min(1.0, td / ap_diam_mm) * ap.radius_px / fit_radius  # in the fit's normalised radius
     # form terms from the first frame's fit (the other frames only move the piston)
     g = fits[0]
     uu, vv, un, vn = _disc_grid(k_td)
@@ -329,7 +337,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         alt = form_terms(ca @ Z, un, vn)
         for name in FORM_TERMS:
             budget_rows[name].append((label, abs(alt[name] - terms[name]) / math.sqrt(3)))
-    rel_a = math.hypot(ap.radius_u_px, max(0.25, ap.edge_rms_px / 4)) / ap.radius_px
+    rel_a = ap.radius_u_px / ap.radius_px
     for name in FORM_TERMS:
         budget_rows[name].append(("aperture radius", 2 * abs(terms[name]) * rel_a))
     if terms_u:

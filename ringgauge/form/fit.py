@@ -133,6 +133,7 @@ class GapFit:
     masked_px: np.ndarray | None = None  # (H, W) bool: pixels left out after the outlier pass
     notes: tuple[str, ...] = field(default_factory=tuple)
     alternatives: dict = field(default_factory=dict)  # model-choice label -> coefficients refitted under it
+    edge_scale: float = 1.0  # part edge found from the model, as a multiple of radius_px (1 = as given)
 
     def gap(self, u, v) -> np.ndarray:
         """Gap in fringes at normalised coordinates."""
@@ -385,6 +386,7 @@ def fit_gap(
         alt = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree + 1, finesse=finesse)
         ra = _refine(alt, alt.start(p[:nw], p[nw : nw + 3]), nw, max_nfev=60)
         alternatives[f"illumination model (degree {illum_degree + 1})"] = (ra.x[:nw].copy(), ra.x[nw : nw + 3].copy())
+    edge_scale = _edge_from_model(img, u_all, v_all, p, nw, finesse, illum_degree, radius_px)
     c, m = p[:nw], p[nw : nw + 3]
     contrast = float(abs(m[0]))
     c_can, m = _canonical(c, m)
@@ -428,6 +430,7 @@ def fit_gap(
         masked_px=masked,
         notes=tuple(notes),
         alternatives=alt_out,
+        edge_scale=float(edge_scale),
     )
 
 
@@ -577,6 +580,38 @@ def _from_quadratic(q):
             # Zernike: defocus 2rho^2-1 -> coeff p/2; astig_0 = u^2-v^2 -> A1; astig_45 = 2uv -> A2
             out.append(np.array([0.25, t[0], t[1], p / 2, A1, A2]))
     return out
+
+
+def _edge_from_model(img, u_all, v_all, p, nw, finesse, illum_degree, radius_px) -> float:
+    """Where the fitted fringe model stops describing the image, as a multiple of the aperture radius.
+
+    The model is extrapolated over an annulus around the detected edge; its residual is small inside the
+    part and large outside (the plate alone shows no fringes). The edge is placed where the binned residual
+    crosses half-way between the two levels. Returns 1.0 when the contrast is not clear.
+    """
+    rho = np.hypot(u_all, v_all)
+    band = (rho > 0.88) & (rho < 1.12)
+    if band.sum() < 500:
+        return 1.0
+    pr = _Problem(u_all[band], v_all[band], img[band], illum_degree, finesse=finesse)
+    res = np.abs(pr.full_residual(p, nw)[:-1])
+    rb = rho[band]
+    step = 0.5 / radius_px
+    edges = np.arange(0.88, 1.12 + step, step)
+    idx = np.digitize(rb, edges) - 1
+    med = np.array([np.median(res[idx == i]) if np.any(idx == i) else np.nan for i in range(len(edges) - 1)])
+    centres = 0.5 * (edges[:-1] + edges[1:])
+    inner = np.nanmedian(med[(centres > 0.9) & (centres < 1 - 5 / radius_px)])
+    outer = np.nanmedian(med[centres > 1 + 8 / radius_px]) if np.any(centres > 1 + 8 / radius_px) else np.nan
+    if not (np.isfinite(inner) and np.isfinite(outer)) or outer < 3 * inner:
+        return 1.0
+    half = 0.5 * (inner + outer)
+    start = np.searchsorted(centres, 1 - 5 / radius_px)
+    for i in range(start, len(centres)):
+        if np.isfinite(med[i]) and med[i] > half:
+            k = centres[i] - 0.5 * step
+            return float(k) if abs(k - 1) < 0.05 else 1.0
+    return 1.0
 
 
 def _correlation_factor(img, mask, p, nw, stride, u_all, v_all, finesse, illum_degree):
