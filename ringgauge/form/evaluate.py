@@ -233,12 +233,16 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         Source, pixel scale, gap medium; form options ``test_diameter_mm``, ``tolerance``, ``test_plate``
         (dict: id, radius_mm, radius_u_mm, kind, calibrated...), ``press_test``, ``decision_rule``;
         ``extras["gap_change"]`` ("increasing" default) for frame sets.
-    progress : callable(str), optional
+    progress : callable(fraction, message), optional
+        Called with the fraction done (0-1) and a short message during the long steps.
     """
     t0 = time.perf_counter()
     if not frames:
         raise InputError("no frames given")
-    say = progress or (lambda msg: None)
+    def say(frac: float, msg: str) -> None:
+        if progress:
+            progress(frac, msg)
+
     warnings: list[str] = []
     notes: list[str] = []
     tol = None
@@ -256,7 +260,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         if f.data.shape != shape0:
             raise InputError(f"{f.name}: frame size {f.data.shape[::-1]} differs from the first frame's "
                              f"{shape0[::-1]}; frames of one part must come from the same camera set-up")
-    say("finding the part's edge")
+    say(0.0, "finding the part's edge")
     ap = find_aperture(frames[0].data, aspect=aspect)
     warnings += list(ap.notes)
     F = finesse_coefficient(GLASS_INDEX, n)
@@ -264,7 +268,8 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     masks: list[dict] = []
     masked_px = 0
     for i, fr_ in enumerate(frames):
-        say(f"frame {i + 1}/{len(frames)}: fitting the gap")
+        f0 = 0.05 + 0.85 * i / len(frames)
+        say(f0, f"frame {i + 1}/{len(frames)}: fitting the gap")
         data = np.asarray(fr_.data, dtype=np.float64)
         sat = data >= 0.999 if fr_.saturated_fraction > 0 else None
         if sat is not None:
@@ -274,7 +279,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         try:
             g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat, finesse=F,
                         finesse_candidates=finesse_candidates(n) if i == 0 else None,
-                        progress=(lambda m, i=i: say(f"frame {i + 1}: {m}")))
+                        progress=(lambda m, i=i, f0=f0: say(f0, f"frame {i + 1}: {m}")))
         except np.linalg.LinAlgError:
             raise AnalysisError(f"{fr_.name}: the gap model could not be fitted (singular); check focus and "
                                 "that the part's whole face is in view") from None
@@ -303,6 +308,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
                         f"({ap_diam_mm:.2f} mm); evaluated over the clear aperture")
         td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
     k_td = min(1.0, td / ap_diam_mm) * ap.radius_px / fit_radius  # in the fit's normalised radius
+    say(0.92, "form terms and their uncertainties")
     # form terms from the first frame's fit (the other frames only move the piston)
     g = fits[0]
     uu, vv, un, vn = _disc_grid(k_td)

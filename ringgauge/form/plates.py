@@ -64,7 +64,7 @@ class TestPlate:
         """What an analysis needs and records about the plate."""
         return {
             "id": self.id,
-            "radius_mm": self.radius_mm,
+            "radius_mm": None if self.kind == "flat" else self.radius_mm,
             "radius_u_mm": self.radius_u_mm,
             "kind": self.kind,
             "calibrated": self.calibrated,

@@ -18,12 +18,12 @@ from ringgauge.form.evaluate import _disc_grid, evaluate_form, form_terms
 from ringgauge.imaging import frame_from_array
 from ringgauge.report.form_text import format_form
 
-CAM = synth.Camera(width=160, height=160, pixel_um=125.0)
+CAM = synth.Camera(width=224, height=224, pixel_um=100.0)
 APERTURE_MM = 17.0
 
 
 def _setup(**kw):
-    return default_setup(125.0, "mercury-e", pixel_size_u_um=0.1, **kw)
+    return default_setup(100.0, "mercury-e", pixel_size_u_um=0.1, **kw)
 
 
 def _image(form, *, rng=0, centre=None, dust=3, lighting=synth.Lighting()):
@@ -56,7 +56,7 @@ CASES = {
     "zonal": (synth.SurfaceForm(power=2.0, zonal=0.3, piston=0.4), None, 0.08, 0.05, 0.06),
     "off-centre rings": (synth.SurfaceForm(power=4.0, astig=0.3, tilt_x=2.5, tilt_y=-1.5, piston=1.6), None, 0.08,
                          0.05, 0.05),
-    "off-centre part": (synth.SurfaceForm(power=1.5, astig=0.4, astig_axis_deg=100, piston=0.2), (70.0, 88.0),
+    "off-centre part": (synth.SurfaceForm(power=1.5, astig=0.4, astig_axis_deg=100, piston=0.2), (100.0, 125.0),
                         0.06, 0.05, 0.05),
     "half fringe": (synth.SurfaceForm(power=0.5, piston=0.15), None, 0.15, 0.1, 0.1),
 }
@@ -199,3 +199,12 @@ def test_images_without_a_part_edge_are_refused():
             evaluate_form([frame], _setup())
     with pytest.raises(InputError):
         evaluate_form([], _setup())
+
+
+@pytest.mark.slow
+def test_progress_reports_fraction_and_message():
+    frame, _ = _image(synth.SurfaceForm(power=2.0, piston=0.3))
+    seen = []
+    evaluate_form([frame], _setup(), progress=lambda f, m: seen.append((f, m)))
+    assert seen and all(0.0 <= f <= 1.0 and isinstance(m, str) and m for f, m in seen)
+    assert [f for f, _ in seen] == sorted(f for f, _ in seen)

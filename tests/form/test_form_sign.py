@@ -16,7 +16,7 @@ from ringgauge.form.fit import finesse_coefficient, fit_gap
 from ringgauge.form.sign import sign_from_pistons, sign_from_press, wrap_half
 from ringgauge.imaging import frame_from_array
 
-CAM = synth.Camera(width=160, height=160, pixel_um=125.0)
+CAM = synth.Camera(width=224, height=224, pixel_um=100.0)
 
 
 def _frames(power, piston, step, n=2, rng=0):
@@ -71,7 +71,7 @@ def test_press_test():
 @pytest.mark.slow
 def test_evaluate_form_reports_the_sign_and_signed_radius():
     frames = [frame_from_array(im.astype(np.float32)) for im in _frames(-1.5, 1.8, 0.22)]
-    setup = default_setup(125.0, "mercury-e", pixel_size_u_um=0.1,
+    setup = default_setup(100.0, "mercury-e", pixel_size_u_um=0.1,
                           test_plate={"id": "TP-0007", "radius_mm": 80.0, "radius_u_mm": 0.003, "kind": "convex"})
     r = evaluate_form(frames, setup)
     assert r.sign.sign == -1 and r.sign.method == "frames"

@@ -19,8 +19,8 @@ def test_coverage_over_seeds():
     # the rim lies on a bright fringe (gap about 3.5 fringes there), so the aperture finder is not the limit;
     # its weakness on dark rims is measured by scripts/bench_form.py
     form = synth.SurfaceForm(power=2.6, astig=0.5, astig_axis_deg=60, zonal=0.15, tilt_x=0.8, piston=0.9)
-    cam = synth.Camera(width=160, height=160, pixel_um=125.0)
-    setup = default_setup(125.0, "mercury-e", pixel_size_u_um=0.1)
+    cam = synth.Camera(width=224, height=224, pixel_um=100.0)
+    setup = default_setup(100.0, "mercury-e", pixel_size_u_um=0.1)
     z = []
     for seed in range(8):
         s = synth.test_plate_fringes(form, camera=cam, aperture_diameter_mm=17.0, rng=100 + seed,
