@@ -490,7 +490,7 @@ def fit_frequencies(data: np.ndarray, f0: list, *, harmonics: int | None = None,
             if part.sum() < 200:
                 break
             sub = m.subset(part)
-            th, rh, Jh = sub.fit(theta, max_iter=10)
+            th, rh, Jh = sub.fit(theta, max_iter=4)  # starts at the optimum of the whole
             halves.append((th, _covariance(Jh, rh, theta.size + sub.nlin()) * corr))
         if len(halves) == 2:
             splits[name] = halves

@@ -58,7 +58,7 @@ def test_period_agrees_with_numpy_fft_reference():
 
 def test_crossed_grid_gives_both_axes_and_squareness_under_rotation():
     sx, sy = 2.0, 2.03
-    for angle in (0.0, 17.0, 38.0):
+    for angle in (0.0, 38.0):  # (other tests use 9°, 14° and 25°)
         im = T.crossed_grid(30.0, angle_deg=angle, camera=Camera(pixel_um=sx, pixel_y_um=sy, **SMALL), rng=11)
         cal = measure_grating(im.image, 30.0, 0.0)
         assert cal.method == "square-grid"  # found by itself ("auto")
@@ -77,7 +77,7 @@ def test_isotropic_grid_is_not_flagged():
     assert abs(cal.scale_x.value - cal.scale_y.value) < 2 * cal.difference_u_um
 
 
-@pytest.mark.parametrize("angle", [0.0, 12.0, 40.0])
+@pytest.mark.parametrize("angle", [12.0, 40.0])
 def test_dot_grid(angle):
     # (a 4-sigma residual cut once biased dot grids by about -200 ppm: the dot cores' residuals are heavy-tailed)
     im = T.dot_grid(40.0, angle_deg=angle, camera=Camera(pixel_um=2.5, pixel_y_um=2.52, **SMALL), rng=2)
