@@ -143,10 +143,7 @@ def _run(tmp_path, capfd, fname, maker, argv):
 
 
 #: cases the engine does not yet handle as the issue asks: reported to its owner, marked until fixed
-KNOWN_FAILURES = {
-    "straight fringes": "internal error (IndexError in fit/orders.py locate_extrema: empty profile) instead of "
-    "'no ring system found'",
-}
+KNOWN_FAILURES: dict[str, str] = {}
 
 
 @pytest.mark.parametrize(
