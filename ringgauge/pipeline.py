@@ -19,7 +19,7 @@ from .fit.fullfield import fit_full_field
 from .fit.orders import fit_orders, locate_extrema
 from .imaging import Frame, load_frame
 from .result import AnalysisResult, ImageInfo
-from .rings.centre import gradient_centre
+from .rings.centre import gradient_centre, refine_by_sharpness
 from .rings.profile import dominant_period, s_profile, s_profiles_by_label
 from .rings.sectors import sector_scatter
 from .uncertainty import BudgetRow, make_budget
@@ -145,18 +145,42 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
 
     progress(0.05, "finding the ring centre")
     c0 = gradient_centre(data, aspect=aspect)
-    corners = [(x, y) for x in (0, w - 1) for y in (0, h - 1)]
-    rfar = max(math.hypot(x - c0.x, aspect * (y - c0.y)) for x, y in corners)
-    rnear = 0.0
-    if not (0 <= c0.x <= w - 1 and 0 <= c0.y <= h - 1):
-        rnear = math.hypot(min(max(c0.x, 0), w - 1) - c0.x, aspect * (min(max(c0.y, 0), h - 1) - c0.y))
-
-    progress(0.15, "measuring the fringe period")
-    # the fringe period from the area-averaged working image (fast; it only seeds the fit)
     sc = c0.scale
     small = c0.small
     vs = cv2.resize(valid.astype(np.uint8), (small.shape[1], small.shape[0]), interpolation=cv2.INTER_NEAREST) > 0
-    cs = ((c0.x - 0.5 * (sc - 1)) / sc, (c0.y - 0.5 * (sc - 1)) / sc)
+    region = None
+    aperture = setup.extras.get("aperture_px")  # set by hand (x, y, radius) for a part smaller than the field
+    if aperture:
+        ax, ay, ar = (float(v) for v in aperture)
+        if ar <= 0:
+            raise InputError("the aperture set by hand has no size")
+        yy, xx = np.ogrid[0:h, 0:w]
+        valid &= (xx - ax) ** 2 + (aspect * (yy - ay)) ** 2 <= ar * ar
+        region = cv2.resize(valid.astype(np.uint8), (small.shape[1], small.shape[0]), interpolation=cv2.INTER_AREA) > 0
+        if not region.any():
+            raise InputError("the aperture set by hand lies outside the image")
+        vs &= region
+    manual = setup.extras.get("centre_px")
+    starts = [(c0.x, c0.y)] + ([c0.vote] if c0.vote else []) + ([tuple(manual)] if manual else [])
+    cx, cy = c0.x, c0.y
+    # On clean rings nearly every strong gradient line passes the estimate; where few do (faint, blurred or
+    # noisy rings, mottled light, a centre near or beyond the edge) the sharpness of the s-profile decides
+    # between the candidates and refines the best, at some cost in time.
+    if c0.inlier_fraction < 0.6 or manual:
+        cx, cy = _sharpest_centre(small, vs, starts, sc, aspect)
+    if region is None:
+        corners = [(x, y) for x in (0, w - 1) for y in (0, h - 1)]
+        rfar = max(math.hypot(x - cx, aspect * (y - cy)) for x, y in corners)
+    else:
+        ax, ay, ar = (float(v) for v in aperture)
+        rfar = math.hypot(ax - cx, aspect * (ay - cy)) + ar
+    rnear = 0.0
+    if not (0 <= cx <= w - 1 and 0 <= cy <= h - 1):
+        rnear = math.hypot(min(max(cx, 0), w - 1) - cx, aspect * (min(max(cy, 0), h - 1) - cy))
+
+    progress(0.15, "measuring the fringe period")
+    # the fringe period from the area-averaged working image (fast; it only seeds the fit)
+    cs = ((cx - 0.5 * (sc - 1)) / sc, (cy - 0.5 * (sc - 1)) / sc)
     prof0 = s_profile(small, cs, aspect=aspect, s_max=(rfar / sc) ** 2, ds=max(rfar / sc / 2.0, 1.0), mask=vs)
     period_s, snr = dominant_period(prof0, min_period=None)
     period_s *= sc * sc
@@ -182,7 +206,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     progress(0.3, "fitting the ring model to all pixels")
     try:
         ff = fit_full_field(
-            data, (c0.x, c0.y), period_s, aspect=aspect, lam_px_over_n=lam_px_over_n, r_max=r_lim, valid=valid,
+            data, (cx, cy), period_s, aspect=aspect, lam_px_over_n=lam_px_over_n, r_max=r_lim, valid=valid,
             rng=rng,
         )
     except (ValueError, np.linalg.LinAlgError) as exc:
@@ -272,7 +296,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         "pixels_used": ff.npix,
         "r_max_px": ff.r_max,
         "r_max_mm": ff.r_max * px_mm,
-        "coarse_centre_px": [c0.x, c0.y],
+        "coarse_centre_px": [cx, cy],
+        "gradient_centre_px": [c0.x, c0.y],
         **prof_dict,
         "extrema_r_px": [float(math.sqrt(e.s)) for e in extrema],
         "extrema_kind": [e.kind for e in extrema],
@@ -284,6 +309,16 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         centre_u_px=(float(cu[0]), float(cu[1])), radius_mm=float(R), radius_u_mm=float(budget.u_c),
         k=float(budget.k), budget=budget, fit=fit, fullfield=fullfield, warnings=tuple(warnings),
     )
+
+
+def _sharpest_centre(small, mask, starts, scale: float, aspect: float) -> tuple[float, float]:
+    """Refine the coarse centre where the s-profile is sharpest, on a half-size copy of the working image."""
+    half = cv2.resize(small, (max(1, small.shape[1] // 2), max(1, small.shape[0] // 2)), interpolation=cv2.INTER_AREA)
+    mh = cv2.resize(mask.astype(np.uint8), (half.shape[1], half.shape[0]), interpolation=cv2.INTER_NEAREST) > 0
+    f = 2.0 * scale  # original pixels per half-image pixel (area-averaged: pixel centre offset (f - 1) / 2)
+    to_half = [((x - 0.5 * (f - 1)) / f, (y - 0.5 * (f - 1)) / f) for x, y in starts]
+    c, _ = refine_by_sharpness(half, to_half, aspect, mh, step=4.0)
+    return float(c[0] * f + 0.5 * (f - 1)), float(c[1] * f + 0.5 * (f - 1))
 
 
 def _profile_for_display(prof, px_mm: float, max_points: int = 1500) -> dict:

@@ -174,7 +174,10 @@ def fit_full_field(
     g = rng if isinstance(rng, np.random.Generator) else np.random.default_rng(rng)
     h, w = data.shape
     p = np.array([centre[0], centre[1], 2 * np.pi / period_s, 0.0], dtype=np.float64)
-    radii = [min(r_max, period_s / (2 * st)) for st in stages if period_s / (2 * st) < r_max] + [r_max]
+    # intermediate discs hold at least 4 fringes: with fewer, the field terms can trade places with the period
+    r_min_stage = np.sqrt(4.0 * period_s)
+    radii = [max(r_min_stage, period_s / (2 * st)) for st in stages]
+    radii = [r for r in radii if r < 0.9 * r_max] + [r_max]
     # candidate pixels: a random sample inside the largest disc
     n_all = h * w
     take = min(n_all, max(4 * n_pixels, 200000))
@@ -201,9 +204,10 @@ def fit_full_field(
             # the period guess may be off by a fraction of a fringe over the range: scan it
             nf = rad * rad / period_s
             best = None
-            for j in np.linspace(-0.6, 0.6, 9):
+            span = min(0.6 / max(nf, 1.0), 0.03)  # the spectral period estimate is good to a few per cent
+            for j in np.linspace(-1.0, 1.0, 9):
                 pq = p.copy()
-                pq[2] = p[2] * (1 + j / max(nf, 1.0))
+                pq[2] = p[2] * (1 + j * span)
                 pq[3] = _start_phase(model.xs, model.ys, model.vals, pq[:3], aspect)
                 cost = float(np.sum(model.residual(pq) ** 2))
                 if best is None or cost < best[0]:

@@ -44,6 +44,8 @@ def locate_extrema(prof: SProfile, period_s: float, phase0: float, *, s_min: flo
     """
     ds = prof.ds
     nb = len(prof.s)
+    if nb == 0:
+        return []
     # phase of the fundamental: I ~ A + M cos(2 pi s / P - phase0); dark where the cosine is -1
     # dark at 2 pi s/P - phase0 = pi (mod 2 pi) -> s = P (phase0 + pi)/(2 pi) + m P
     first_dark = period_s * ((phase0 + np.pi) / (2 * np.pi))

@@ -30,6 +30,7 @@ class CentreEstimate:
     conditioning: float  # smallest/largest eigenvalue of the normal matrix: ~0 for straight fringes
     inlier_fraction: float
     small: np.ndarray | None = None  # the area-averaged working image the estimate was made on
+    vote: tuple[float, float] | None = None  # the accumulator peak (original pixels), a second candidate
 
 
 def working_image(data: np.ndarray, max_side: int = 512) -> tuple[np.ndarray, float]:
@@ -47,6 +48,35 @@ def highpass(img: np.ndarray, sigma: float) -> np.ndarray:
     """Remove slowly varying illumination: image minus its heavy Gaussian blur, divided by a local level."""
     low = cv2.GaussianBlur(img, (0, 0), sigma)
     return img - low
+
+
+def _vote(px, py, nx, ny, wgt, width, height, *, n_lines: int = 4000, margin: float = 0.75, rng=0) -> np.ndarray:
+    """Peak of an accumulator where each gradient line adds its weight along its length (radial-symmetry
+    voting, after Loy and Zelinsky). The accumulator reaches ``margin`` of the frame beyond each edge, so a centre
+    outside the frame is found too."""
+    g = np.random.default_rng(rng)
+    n = len(px)
+    if n > n_lines:
+        pick = g.choice(n, size=n_lines, replace=False, p=wgt / wgt.sum())
+        px, py, nx, ny = px[pick], py[pick], nx[pick], ny[pick]
+        wv = np.ones(n_lines)
+    else:
+        wv = wgt
+    cell = max(1.0, max(width, height) / 200.0)
+    x0, y0 = -margin * width, -margin * height
+    gw = int(np.ceil((1 + 2 * margin) * width / cell))
+    gh = int(np.ceil((1 + 2 * margin) * height / cell))
+    reach = np.hypot((1 + 2 * margin) * width, (1 + 2 * margin) * height)
+    t = np.arange(-reach, reach, cell)
+    xs = px[:, None] + nx[:, None] * t[None, :]
+    ys = py[:, None] + ny[:, None] * t[None, :]
+    ix = ((xs - x0) / cell).astype(np.int64)
+    iy = ((ys - y0) / cell).astype(np.int64)
+    ok = (ix >= 0) & (ix < gw) & (iy >= 0) & (iy < gh)
+    acc = np.bincount((iy * gw + ix)[ok], weights=np.broadcast_to(wv[:, None], ok.shape)[ok], minlength=gw * gh)
+    acc = cv2.GaussianBlur(acc.reshape(gh, gw).astype(np.float32), (0, 0), 1.5)
+    j, i = np.unravel_index(int(np.argmax(acc)), acc.shape)
+    return np.array([x0 + (i + 0.5) * cell, y0 + (j + 0.5) * cell])
 
 
 def gradient_centre(
@@ -78,12 +108,25 @@ def gradient_centre(
     wgt = mag2[sel] / np.median(mag2[sel])
     # clip very strong gradients (dust speck edges, aperture edges) so they cannot dominate
     wgt = np.minimum(wgt, 4.0)
+    diag = float(np.hypot(w, h * aspect))
+    # parallel gradient lines (straight fringes: a wedge) have no crossing point at all
+    a11, a12, a22 = np.sum(wgt * (1 - nx * nx)), np.sum(wgt * (-nx * ny)), np.sum(wgt * (1 - ny * ny))
+    ev = np.linalg.eigvalsh(np.array([[a11, a12], [a12, a22]]))
+    if ev[1] <= 0 or ev[0] / ev[1] < 2e-3:
+        raise AnalysisError(
+            "no ring system found: the fringes are straight or nearly so (a wedge, not a curved surface); "
+            "check that the part rests on the flat and that the image shows rings"
+        )
+    vote = None
     if start is not None:
         c = np.array([start[0] / scale, start[1] / scale * aspect])
+        delta = diag
     else:
-        c = None
-    diag = float(np.hypot(w, h * aspect))
-    delta = diag  # robust scale of line distances
+        # every gradient line votes along its length; the lines of a ring system cross at its centre, while
+        # lines from uneven light, hot spots and dust scatter their votes
+        c = _vote(px, py, nx, ny, wgt, w, h * aspect)
+        vote = (float(c[0]), float(c[1] / aspect))
+        delta = 0.05 * diag  # robust scale of line distances, shrunk as the estimate settles
     cond = 0.0
     inl = 1.0
     for it in range(12):
@@ -121,4 +164,41 @@ def gradient_centre(
     # pixel-centre convention: working pixel i covers original [i*s - 0.5, (i+1)*s - 0.5)
     x = x + 0.5 * (scale - 1.0)
     y = y + 0.5 * (scale - 1.0)
-    return CentreEstimate(float(x), float(y), float(scale), cond, inl, small)
+    if vote is not None:
+        vote = (vote[0] * scale + 0.5 * (scale - 1.0), vote[1] * scale + 0.5 * (scale - 1.0))
+    return CentreEstimate(float(x), float(y), float(scale), cond, inl, small, vote)
+
+
+def profile_sharpness(small: np.ndarray, centre, aspect: float, mask=None, s_max=None, nbins: int = 512) -> tuple[float, float]:
+    """How sharply the rings stand out in the profile binned in s = r^2 about ``centre`` (working pixels):
+    the peak-to-noise ratio of its spectrum, and the period found. Largest at the true ring centre."""
+    from .profile import dominant_period, s_profile
+
+    h, w = small.shape
+    if s_max is None:
+        s_max = max((x - centre[0]) ** 2 + (aspect * (y - centre[1])) ** 2 for x in (0, w - 1) for y in (0, h - 1))
+    prof = s_profile(small, centre, aspect=aspect, s_max=s_max, ds=s_max / nbins, mask=mask)
+    period, snr = dominant_period(prof)
+    return (snr if np.isfinite(period) else 0.0), period
+
+
+def refine_by_sharpness(small: np.ndarray, starts, aspect: float, mask=None, *, step: float = 8.0):
+    """Pattern search for the centre (working pixels) that makes the s-profile sharpest, from the best of
+    ``starts``. Robust where gradients mislead: faint, blurred or noisy rings, mottled light, a centre near or
+    beyond the frame edge."""
+    best = None
+    for c in starts:
+        sc, _ = profile_sharpness(small, c, aspect, mask)
+        if best is None or sc > best[0]:
+            best = (sc, np.asarray(c, dtype=float))
+    score, c = best
+    while step >= 0.25:
+        moved = False
+        for dx, dy in ((1, 0), (-1, 0), (0, 1), (0, -1), (1, 1), (1, -1), (-1, 1), (-1, -1)):
+            cand = c + step * np.array([dx, dy])
+            sc, _ = profile_sharpness(small, cand, aspect, mask)
+            if sc > score:
+                score, c, moved = sc, cand, True
+        if not moved:
+            step /= 2
+    return c, score
