@@ -377,6 +377,15 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
                 2 * R / px * ux, note="from the bench calibration" if setup.bench else "as entered",
             )
         )
+    elif setup.bench:
+        # both scales come from one target whose certified pitch dominates: treat them as fully correlated
+        rows.append(
+            BudgetRow(
+                "pixel scales x and y (one calibration, correlated)", math.sqrt(px * py), "µm/px",
+                math.sqrt(ux * uy), "normal (calibration)", 1.0, 2 * R / math.sqrt(px * py), "mm/(µm/px)",
+                R * (ux / px + uy / py), note=f"x {px:g} ± {ux:.2g}, y {py:g} ± {uy:.2g} µm/px",
+            )
+        )
     else:
         rows += [
             BudgetRow("pixel scale x", px, "µm/px", ux, "normal (calibration)", 1.0, R / px, "mm/(µm/px)", R / px * ux),
