@@ -15,10 +15,9 @@ SEEDS = list(range(40))
 
 #: seeds where the engine gives a confident wrong radius; reported to its owner with the figures, marked until fixed
 KNOWN_FAILURES = {
-    2: "R -0.74 % with u 0.18 % (z -4.1), centre 7.1 px off (Na doublet, 1280x960)",
-    11: "R -16.0 % with u 0.39 % (z -49), centre 133 px off: rings centred near the right edge, mottled light",
-    29: "R -26.3 % with u 2.6 % (z -13.5), centre 142 px off: ring centre 11 px outside the left edge",
-    38: "R -11.3 % with u 1.4 % (z -9.3), centre 65 px off: centre near the bottom edge, hot spot, liquid gap",
+    16: "R -2.0 % with u 0.49 % (z -4.2), centre 6.9 px off (1024x768, Hg e)",
+    28: "R -0.57 % with u 0.057 % (z -10), centre 2.4 px off: ring centre 14 px inside the left edge, V = 0.12",
+    29: "R -16.0 % with u 0.70 % (z -27), centre 94 px off: ring centre 11 px outside the left edge",
 }
 _outs: dict[int, object] = {}
 
