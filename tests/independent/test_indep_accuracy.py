@@ -100,8 +100,6 @@ MORE_EFFECTS: dict[str, M.Scene] = {
 KNOWN_FAILURES = {
     "lens r=120 px in the field, grey flat around": "refused: 'no ring system found' although 15 rings of 4 px "
     "and more lie inside the lens; the ringless field around it hides the fringe spacing",
-    "lens r=140 px in the field, bright around": "silently wrong: R +15.8 % (u 2.4 %, z +5.7) with only a "
-    "low-contrast warning; over noise seeds 0-5 the same scene gave -0.11, -0.10, +28.7 %, refused, -0.10 %, refused",
 }
 
 ALL_EFFECTS = {**EFFECTS, **MORE_EFFECTS}
