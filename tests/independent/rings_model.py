@@ -8,9 +8,11 @@ with F = 4 rho / (1 - rho)^2 [Hecht, *Optics*, thin-film chapter], delta = 4 pi 
 contact. Broadband light averages the fringe shape over the spectrum (lines with weights, or a Gaussian band).
 
 The camera: illumination a(x, y) (Gaussian vignetting, a linear ramp, hot spots), fringe visibility V, additive
-stray light, dust (dark discs on the lens, bright glints) — all on a grid ``oversample`` times finer than the
-pixels; Gaussian blur on that fine grid, then binning into pixels (pixel integration); then shot (Poisson) noise in
-electrons, read noise, gain and quantisation to 8/12/16 bits with clipping at full scale; colour by channel gains.
+stray light, dust (dark discs on the lens, bright glints), optionally a lens edge smaller than the field — all on a
+grid ``oversample`` times finer than the pixels; blur on that fine grid (Gaussian, or a uniform disc for defocus),
+then binning into pixels (pixel integration); a smooth random illumination texture; then shot (Poisson) noise in
+electrons, read noise, a tone curve (gamma), gain and quantisation to 8/12/16 bits with clipping at full scale,
+stuck pixels; colour by channel gains.
 
 Coordinates as ringgauge states them: x = column, y = row, pixel centres at integers, origin at the centre of the
 top-left pixel; a pixel covers [x - 1/2, x + 1/2] x [y - 1/2, y + 1/2].
