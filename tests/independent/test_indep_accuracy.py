@@ -5,8 +5,8 @@ reported standard uncertainty in at least 90 % of cases, when pixel size and wav
 (0.05 %, 0.1 px) are printed with the measured figures (run with ``-s`` to see them), not asserted.
 
 The truth of every image is its scene (radius, centre); invented scenes are test inputs, not check values from
-outside. Outside facts used by the model are named in rings_model.py (NIST sodium and mercury lines, Airy
-reflectance from Hecht).
+outside. Outside facts used by the model are named in rings_model.py and checked in test_indep_model.py (NIST
+sodium and mercury lines, Airy reflectance against tmm, textbook ring diameters).
 """
 
 from __future__ import annotations
