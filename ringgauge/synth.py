@@ -96,8 +96,13 @@ class SynthImage:
 
     @property
     def image01(self) -> np.ndarray:
-        full = 255.0 if self.image.dtype == np.uint8 else float((1 << self.truth["camera"]["bits"]) - 1)
-        return self.image.astype(np.float64) / full
+        return codes_to_unit(self.image, self.truth["camera"]["bits"])
+
+
+def codes_to_unit(codes: np.ndarray, bits: int) -> np.ndarray:
+    """Camera codes of a ``bits``-deep sensor (8-bit codes in uint8, deeper ones in uint16) as intensity in [0, 1]."""
+    full = 255.0 if codes.dtype == np.uint8 else float((1 << bits) - 1)
+    return codes.astype(np.float64) / full
 
 
 def _rng(rng) -> np.random.Generator:

@@ -16,7 +16,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 from scipy import ndimage
 
-from ..synth import Camera, Lighting
+from ..synth import Camera, Lighting, _rng, codes_to_unit
 
 __all__ = ["TargetImage", "line_grating", "crossed_grid", "dot_grid", "disc", "Camera", "Lighting"]
 
@@ -30,12 +30,7 @@ class TargetImage:
 
     @property
     def image01(self) -> np.ndarray:
-        full = 255.0 if self.image.dtype == np.uint8 else float((1 << self.truth["camera"]["bits"]) - 1)
-        return self.image.astype(np.float64) / full
-
-
-def _rng(rng) -> np.random.Generator:
-    return rng if isinstance(rng, np.random.Generator) else np.random.default_rng(rng)
+        return codes_to_unit(self.image, self.truth["camera"]["bits"])
 
 
 def _sample(fn, camera: Camera, offset_um=(0.0, 0.0), ss: int = 3, distortion: float = 0.0) -> np.ndarray:
