@@ -221,7 +221,7 @@ def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = ED
     # ray (uneven light makes a global reference unfair to the dim side)
     ray_ext = np.array([np.max(sg * (prof[i, first[i]:] - b0)) for i, sg in zip(idx, sgn)])
     span = np.where(sgn > 0, inside_hi - b0, b0 - inside_lo)
-    strong = (sgn * (level - b0) > 0.25 * ray_ext) & (ray_ext > 0.15 * span)
+    strong = (sgn * (level - b0) > 0.33 * ray_ext) & (ray_ext > 0.15 * span)
     idx, level, sgn = idx[strong], level[strong], sgn[strong]
     if idx.size < 20:
         return circle, 0

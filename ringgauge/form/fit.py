@@ -610,7 +610,7 @@ def _edge_from_model(img, u_all, v_all, p, nw, finesse, illum_degree, radius_px)
     for i in range(start, len(centres)):
         if np.isfinite(med[i]) and med[i] > half:
             k = centres[i] - 0.5 * step
-            return float(k) if abs(k - 1) < 0.08 else 1.0
+            return float(k) if abs(k - 1) < 0.05 else 1.0
     return 1.0
 
 
