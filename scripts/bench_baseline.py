@@ -21,8 +21,8 @@ Recipe (plain OpenCV and numpy calls, parameters scaled to the image):
    (Hough's radius windows are 1 px wide).
 4. Fit: Canny edges of the evened rings sit where the intensity crosses its local mean (steepest slope), a
    quarter fringe either side of each dark ring, so successive edges are half a fringe apart in r^2. The edge
-   spacing in r^2 comes from a Rayleigh periodogram of the circles' r^2 values (robust to missed and duplicate
-   circles); each circle gets the nearest multiple of it as its order, circles more than a quarter step off are
+   spacing in r^2 comes from the innermost circles (far apart, so found cleanly), refined by a Rayleigh
+   periodogram of all circles' r^2 values (robust to missed and duplicate circles); each circle gets the nearest multiple of it as its order, circles more than a quarter step off are
    dropped as spurious, and the same r^2-versus-order least-squares line as ringgauge is fitted
    (``numpy.polyfit``): R = n * slope / lambda. Common centre = median of the kept circles' centres.
 """
@@ -104,22 +104,28 @@ def _band_circle(b, r2, centre, lo, hi):
     return None
 
 
-def half_fringe_step(s2: np.ndarray, s_lo: float, s_hi: float) -> tuple[float, float]:
-    """Spacing of the ring edges in r^2 (px^2) and its phase, from the edges' r^2 values ``s2``.
+def half_fringe_step(s2: np.ndarray) -> tuple[float, float]:
+    """Spacing of the ring edges in r^2 (px^2) and its phase, from the circles' r^2 values ``s2``.
 
-    Rayleigh periodogram of event positions: power(f) = |mean exp(2 pi i f s)|. Edges equally spaced by D in r^2
-    give full power at f = 1/D and at its multiples; the lowest frequency with power >= 0.7 of the highest is
-    taken (duplicates and spurious edges lower the power, missed edges do not change it).
+    A first value comes from the innermost circles, which lie far apart (edge k at r ~ sqrt(k), gaps of about
+    r / 2k): circles closer than 0.1 r to the previous one are taken for the same edge, and the median r^2 step of
+    the first six distinct ones is used. It is refined over all circles by a Rayleigh periodogram of the r^2
+    values, power(f) = |mean exp(2 pi i f s)|, searched between 0.7 and 1.4 times the first value (a wider
+    search picks up harmonics and chance peaks): missed edges do not move its peak, duplicate and spurious
+    circles only lower it.
     """
+    r = np.sort(np.sqrt(s2))
+    distinct = [r[0]]
+    for x in r[1:]:
+        if x - distinct[-1] > max(3.0, 0.1 * x):
+            distinct.append(x)
+    if len(distinct) < 3:
+        return math.nan, 0.0
+    d0 = float(np.median(np.diff(np.square(distinct[:6]))))
     span = float(np.ptp(s2))
-    if span <= 0:
-        return math.nan, 0.0
-    if s_hi <= s_lo:
-        return math.nan, 0.0
-    f = np.arange(1.0 / s_hi, 1.0 / s_lo, max(0.1 / span, (1.0 / s_lo - 1.0 / s_hi) / 20000))
+    f = np.arange(1.0 / (1.4 * d0), 1.0 / (0.7 * d0), 0.02 / span)
     z = np.exp(2j * np.pi * f[:, None] * s2[None, :]).mean(axis=1)
-    p = np.abs(z)
-    i = int(np.argmax(p >= 0.7 * p.max()))
+    i = int(np.argmax(np.abs(z)))
     return 1.0 / f[i], float(np.angle(z[i]))
 
 
@@ -140,7 +146,7 @@ def ring_circles(b: np.ndarray, centre: tuple[float, float]) -> tuple[list[tuple
             hits.append(c)
         if len(hits) >= 6:
             s2 = np.array([c[2] for c in hits]) ** 2
-            step, _ = half_fringe_step(s2, 4.0 * MIN_BAND_PX * hi, float(s2.max()))
+            step, _ = half_fringe_step(s2)
             if math.isfinite(step):
                 spacing = step / (2 * hi)  # edge spacing in r here
                 if spacing < 2 * MIN_BAND_PX:
@@ -158,7 +164,7 @@ def fit_radius(circles, *, px_mm: float, lam_mm: float, n: float = 1.0) -> tuple
         raise BaselineFailure(f"only {len(circles)} ring edges found by Hough (need 6)")
     F = np.array(circles, dtype=np.float64)
     s2 = F[:, 2] ** 2
-    step, phase = half_fringe_step(s2, 4.0 * MIN_BAND_PX * 5.0, float(s2.max()) / 2)
+    step, phase = half_fringe_step(s2)
     if not math.isfinite(step):
         raise BaselineFailure("no regular ring spacing among the Hough circles")
     x = s2 / step - phase / (2 * np.pi)
