@@ -248,7 +248,9 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     if len(used) < 6:
         warnings.append(f"only {len(used)} rings used: the radius rests on few fringes")
     R_raw = n * fit.slope_mm2 / lam_mm
-    blur = estimate_blur(extrema, period_s, setup.fringe_kind)
+    # a band source (LED) fades the fringes with order just as blur does: the contrast cannot tell them apart there,
+    # so no blur correction is made for it (its wavelength uncertainty is far larger anyway)
+    blur = 0.0 if setup.source.fwhm_nm > 0 else estimate_blur(extrema, period_s, setup.fringe_kind)
     # Blur (defocus, pixel integration) of a ring pattern with phase q s scales its apparent phase rate by
     # 1 / (1 + a^2), a = 2 q sigma^2, so rings look slightly wider apart: R appears (1 + a^2) too long. sigma comes
     # from the fall of fringe contrast with fringe frequency, which other causes (band width, stray light) also
