@@ -52,6 +52,22 @@ METHODS = ("ringgauge", "baseline")
 
 
 # --------------------------------------------------------------------------------------------- memory probe
+def _fix_malloc_thresholds(threshold: int = 128 * 1024) -> bool:
+    """Make glibc serve every block of 128 kB or more by its own mmap and return it on free (fixed thresholds).
+
+    By default glibc raises its mmap threshold after large blocks are freed and keeps later ones in the heap, so a
+    call that reuses such pages shows no RSS growth at all; with fixed thresholds each call's RSS peak is its own.
+    """
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL("libc.so.6")
+        M_TRIM_THRESHOLD, M_MMAP_THRESHOLD = -1, -3
+        return bool(libc.mallopt(M_MMAP_THRESHOLD, threshold)) and bool(libc.mallopt(M_TRIM_THRESHOLD, threshold))
+    except (OSError, AttributeError):
+        return False
+
+
 class PeakMemory:
     """Peak memory of a block of work.
 
@@ -61,8 +77,9 @@ class PeakMemory:
     numpy allocations (misses OpenCV's internal buffers, and slows Python allocations).
     """
 
-    def __init__(self):
+    def __init__(self, fix_malloc: bool = True):
         self.method = "rss"
+        self.fixed_mmap = _fix_malloc_thresholds() if fix_malloc else False
         try:
             with open("/proc/self/clear_refs", "w") as fh:
                 fh.write("5")
@@ -84,7 +101,9 @@ class PeakMemory:
     def description(self) -> str:
         if self.method == "rss":
             return ("peak resident set size above the RSS before the call (kernel VmHWM, reset through "
-                    "/proc/self/clear_refs before each call; includes OpenCV's and BLAS's C/C++ buffers)")
+                    "/proc/self/clear_refs before each call; includes OpenCV's and BLAS's C/C++ buffers"
+                    + ("; glibc mmap/trim thresholds fixed at 128 kB so freed blocks leave the RSS)" if self.fixed_mmap
+                       else "; memory reused from earlier calls is not seen)"))
         return "tracemalloc peak of Python/numpy allocations during the call (OpenCV's own buffers not seen)"
 
     def start(self) -> None:
@@ -177,9 +196,10 @@ def run_baseline(case: Case):
 RUNNERS = {"ringgauge": (run_ringgauge, RinggaugeError), "baseline": (run_baseline, BaselineFailure)}
 
 
-def measure(method: str, case: Case, mem: PeakMemory) -> Outcome:
+def measure(method: str, case: Case, mem: PeakMemory | None = None) -> Outcome:
     fn, expected = RUNNERS[method]
-    mem.start()
+    if mem is not None:
+        mem.start()
     c0, t0 = time.process_time(), time.perf_counter()
     try:
         R, u, centre = fn(case)
@@ -189,7 +209,7 @@ def measure(method: str, case: Case, mem: PeakMemory) -> Outcome:
     except (cv2.error, np.linalg.LinAlgError, ValueError, FloatingPointError) as exc:  # counted, not fatal
         ok, reason = False, f"{type(exc).__name__}: {exc}"
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
-    peak = mem.stop()
+    peak = mem.stop() if mem is not None else math.nan
     out = Outcome(method, ok, reason, wall_s=wall, cpu_s=cpu, peak_mb=peak)
     if ok:
         out.radius_mm, out.radius_u_mm, out.centre_px = R, u, centre
@@ -199,6 +219,43 @@ def measure(method: str, case: Case, mem: PeakMemory) -> Outcome:
         if math.isfinite(u):
             out.within_3u = abs(R - case.truth_radius_mm) <= 3 * u
     return out
+
+
+def memory_child(path: str) -> int:
+    """In a fresh process (its malloc settings must not slow the timed run): peak memory of both methods on the
+    pickled cases in ``path``; prints JSON {ident: {method: MB}} on stdout."""
+    import json
+    import pickle
+
+    with open(path, "rb") as fh:
+        cases = pickle.load(fh)
+    mem = PeakMemory()
+    for m in METHODS:  # warm-up on the first case, not counted
+        measure(m, cases[0], mem)
+    out = {c.ident: {m: measure(m, c, mem).peak_mb for m in METHODS} for c in cases}
+    print(json.dumps({"description": mem.description, "peaks": out}))
+    return 0
+
+
+def memory_pass(cases: list[Case], log) -> tuple[dict, str]:
+    """Peak memory on one image per megapixel class, measured in a child process."""
+    import json
+    import pickle
+    import tempfile
+
+    pick = list({c.megapixels: c for c in reversed(cases)}.values())[::-1]  # first image of each class
+    log(f"bench: peak memory on {len(pick)} images (one per class) in a separate process ...")
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "cases.pkl"
+        with open(path, "wb") as fh:
+            pickle.dump(pick, fh)
+        proc = subprocess.run([sys.executable, __file__, "--memory-child", str(path)], capture_output=True,
+                              text=True, cwd=str(ROOT))
+    if proc.returncode != 0:
+        log(f"bench: memory pass failed ({proc.stderr.strip().splitlines()[-1:]}); memory column left empty")
+        return {}, "not measured (the memory pass failed)"
+    data = json.loads(proc.stdout.strip().splitlines()[-1])
+    return data["peaks"], data["description"] + "; one image per class (the first), measured in a separate process"
 
 
 # --------------------------------------------------------------------------------------------- statistics
@@ -248,7 +305,7 @@ def _pct(x):
 # --------------------------------------------------------------------------------------------- tables
 HEAD = ["class", "method", "images", "failed", "median |ΔR| / %", "worst |ΔR| / %", "median centre err / px",
         "worst centre err / px", "|ΔR| ≤ 3u", "median wall s/image", "worst wall s/image", "median CPU s/image",
-        "peak memory / MB"]
+        "peak memory / MB (one image)"]
 RHEAD = ["class", "time ratio ringgauge/baseline (median wall s)", "CPU ratio (median CPU s)",
          "median-error ratio ringgauge/baseline", "worst-error ratio ringgauge/baseline"]
 
@@ -315,7 +372,10 @@ def main(argv=None) -> int:
     ap.add_argument("--per-class", type=int, default=6, help="images per megapixel class in the full run (default 6)")
     ap.add_argument("--skip-form", action="store_true",
                     help="do not run scripts/bench_form.py (the test-plate benchmark) afterwards")
+    ap.add_argument("--memory-child", metavar="PICKLE", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
+    if args.memory_child:
+        return memory_child(args.memory_child)
     if args.per_class < 1:
         print("bench: --per-class must be at least 1", file=sys.stderr)
         return 2
@@ -329,15 +389,14 @@ def main(argv=None) -> int:
     log(f"bench: generating {sum(n for _, n in plan)} images (seed {args.seed}; not timed) ...")
     cases = make_cases(plan, args.seed, log)
 
-    mem = PeakMemory()
     # warm-up on an extra small image, not counted: imports, first-call caches
     warm = make_cases(((0.3, 1),), args.seed + 1, lambda _m: None)[0]
     for m in METHODS:
-        measure(m, warm, mem)
+        measure(m, warm)
 
     results: dict[str, list[Outcome]] = {m: [] for m in METHODS}
     for i, case in enumerate(cases, 1):
-        outs = {m: measure(m, case, mem) for m in METHODS}
+        outs = {m: measure(m, case) for m in METHODS}
         for m in METHODS:
             results[m].append(outs[m])
         a, b = outs["ringgauge"], outs["baseline"]
@@ -346,6 +405,10 @@ def main(argv=None) -> int:
             + "; baseline "
             + (f"ΔR {b.radius_err_pct:+.3f} % ({b.wall_s:.2f} s)" if b.ok else f"FAILED ({b.reason})"))
     m1 = machine()
+    peaks, mem_description = memory_pass(cases, log)
+    for i, case in enumerate(cases):
+        for m in METHODS:
+            results[m][i].peak_mb = peaks.get(case.ident, {}).get(m, math.nan)
 
     groups: dict[str, dict[str, list[Outcome]]] = {}
     for mp in dict.fromkeys(c.megapixels for c in cases):
@@ -364,7 +427,7 @@ def main(argv=None) -> int:
         f"exceeds the CPU count",
         f"{len(cases)} generated images (seed {args.seed}), generator: ringgauge.synth.random_newton_case; "
         "ΔR = measured − true radius, centre error = distance to the true contact point",
-        f"memory: {mem.description}",
+        f"memory: {mem_description}",
         "time: wall clock (time.perf_counter) and process CPU time (time.process_time, all threads) per image; "
         "ringgauge's time includes converting the array to a frame; one warm-up image per method not counted",
         "ringgauge: pipeline.analyse with the true pixel size given as exact (u = 0), so u is the budget's "
