@@ -286,10 +286,13 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         fits.append(g)
         masks += _masks(g.masked_px, (px, py), sat, i)
         masked_px += int(g.masked_px.sum()) if g.masked_px is not None else 0
-        warnings += [f"{fr_.name}: {m}" for m in g.notes]
+        warnings += [f"{fr_.name}: {m}" for m in g.notes if not m.startswith("fringe shape")]
+        notes += [m for m in g.notes if m.startswith("fringe shape") and i == 0]
     # the part's edge as the fitted model sees it (where the fringes stop) refines the ring-of-rays circle
+    # Only an outward move is taken: the ray finder's known failure is reading the rim small when a fringe
+    # runs along it, while the model's own edge reads slightly inside on a blurred bright rim.
     fit_radius = ap.radius_px
-    scale = fits[0].edge_scale
+    scale = max(1.0, fits[0].edge_scale)
     if scale != 1.0:
         notes.append(f"part edge refined from the fringe model: radius {ap.radius_px:.2f} -> "
                      f"{ap.radius_px * scale:.2f} px")
