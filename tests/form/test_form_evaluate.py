@@ -70,7 +70,7 @@ def results():
 def _evaluate(name, results):
     if name not in results:
         form, centre, *_ = CASES[name]
-        frame, s = _image(form, centre=centre, rng=hash(name) % 1000)
+        frame, s = _image(form, centre=centre, rng=list(CASES).index(name))  # fixed seeds
         results[name] = (evaluate_form([frame], _setup()), s)
     return results[name]
 
