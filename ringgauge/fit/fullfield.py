@@ -183,7 +183,7 @@ def fit_full_field(
     take = min(n_all, max(4 * n_pixels, 200000))
     # a random sample of pixels (with replacement: drawing without it permutes the whole frame; the few repeats
     # are harmless)
-    flat = np.unique(g.integers(0, n_all, size=take)) if take < n_all else np.arange(n_all)
+    flat = g.integers(0, n_all, size=take) if take < n_all else np.arange(n_all)
     ys_all = (flat // w).astype(np.float64)
     xs_all = (flat % w).astype(np.float64)
     vals_all = data.reshape(-1)[flat].astype(np.float64)

@@ -67,13 +67,16 @@ def _vote(px, py, nx, ny, wgt, width, height, *, n_lines: int = 4000, margin: fl
     gw = int(np.ceil((1 + 2 * margin) * width / cell))
     gh = int(np.ceil((1 + 2 * margin) * height / cell))
     reach = np.hypot((1 + 2 * margin) * width, (1 + 2 * margin) * height)
-    t = np.arange(-reach, reach, cell)
-    xs = px[:, None] + nx[:, None] * t[None, :]
-    ys = py[:, None] + ny[:, None] * t[None, :]
-    ix = ((xs - x0) / cell).astype(np.int64)
-    iy = ((ys - y0) / cell).astype(np.int64)
-    ok = (ix >= 0) & (ix < gw) & (iy >= 0) & (iy < gh)
-    acc = np.bincount((iy * gw + ix)[ok], weights=np.broadcast_to(wv[:, None], ok.shape)[ok], minlength=gw * gh)
+    t = np.arange(-reach, reach, cell).astype(np.float32)
+    acc = np.zeros(gw * gh)
+    for k in range(0, len(px), 500):  # in chunks: the samples of all lines at once would take ~200 MB
+        sl = slice(k, k + 500)
+        ix = ((px[sl, None] - x0 + nx[sl, None] * t[None, :]) / cell).astype(np.int32)
+        iy = ((py[sl, None] - y0 + ny[sl, None] * t[None, :]) / cell).astype(np.int32)
+        ok = (ix >= 0) & (ix < gw) & (iy >= 0) & (iy < gh)
+        acc += np.bincount(
+            (iy.astype(np.int64) * gw + ix)[ok], weights=np.broadcast_to(wv[sl, None], ok.shape)[ok], minlength=gw * gh
+        )
     acc = cv2.GaussianBlur(acc.reshape(gh, gw).astype(np.float32), (0, 0), 1.5)
     j, i = np.unravel_index(int(np.argmax(acc)), acc.shape)
     return np.array([x0 + (i + 0.5) * cell, y0 + (j + 0.5) * cell])
