@@ -32,6 +32,9 @@ MIN_PERIOD_PX = 3.0
 BORDER_PX = 3
 #: angular sectors for the scatter (Type A) and roundness check
 N_SECTORS = 8
+#: largest relative Type A uncertainty of the ring-fit slope accepted: beyond it the rings around the found centre
+#: disagree so much that the centre itself is in doubt, and a radius would mislead
+MAX_TYPE_A = 0.0025
 #: fewest rings for a radius
 MIN_RINGS = 4
 
@@ -270,6 +273,15 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
             "pixel scales in x and y (calibrate both)"
         )
 
+    # scatter left after allowing for elliptical rings (astigmatism, unequal pixel scales: warned about above)
+    type_a = (sectors.u_mean_round_mm2 if sectors is not None else fit.slope_u_mm2) / fit.slope_mm2
+    if type_a > MAX_TYPE_A:
+        raise AnalysisError(
+            f"the rings do not agree with one sphere around the centre (the ring fit scatters by "
+            f"{100 * type_a:.2f} % between sectors); the centre was probably not found — check focus and contrast, "
+            "or set the centre by hand in the window"
+        )
+
     progress(0.9, "uncertainty budget")
     budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), sectors, blur_rel=a2 / 2, blur_px=blur)
     if any(r.quantity.startswith("method agreement") for r in budget.rows):
@@ -314,12 +326,10 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
 
 
 def _sharpest_centre(small, mask, starts, scale: float, aspect: float) -> tuple[float, float]:
-    """Refine the coarse centre where the s-profile is sharpest, on a half-size copy of the working image."""
-    half = cv2.resize(small, (max(1, small.shape[1] // 2), max(1, small.shape[0] // 2)), interpolation=cv2.INTER_AREA)
-    mh = cv2.resize(mask.astype(np.uint8), (half.shape[1], half.shape[0]), interpolation=cv2.INTER_NEAREST) > 0
-    f = 2.0 * scale  # original pixels per half-image pixel (area-averaged: pixel centre offset (f - 1) / 2)
-    to_half = [((x - 0.5 * (f - 1)) / f, (y - 0.5 * (f - 1)) / f) for x, y in starts]
-    c, _ = refine_by_sharpness(half, to_half, aspect, mh, step=4.0)
+    """Refine the coarse centre where the s-profile of the working image is sharpest."""
+    f = scale  # original pixels per working pixel (area-averaged: pixel centre offset (f - 1) / 2)
+    to_small = [((x - 0.5 * (f - 1)) / f, (y - 0.5 * (f - 1)) / f) for x, y in starts]
+    c, _ = refine_by_sharpness(small, to_small, aspect, mask, step=8.0)
     return float(c[0] * f + 0.5 * (f - 1)), float(c[1] * f + 0.5 * (f - 1))
 
 

@@ -25,6 +25,7 @@ class SectorScatter:
     ellipticity: float  # relative amplitude of the cos 2θ variation of the slope
     ellipticity_u: float
     axis_deg: float  # angle of the largest slope (longest ring axis)
+    u_mean_round_mm2: float = float("nan")  # like u_mean_slope_mm2, after removing the elliptical (cos 2θ) part
 
     def to_dict(self) -> dict:
         return {
@@ -72,11 +73,13 @@ def sector_scatter(
         cov = np.linalg.inv(X.T @ X) * s2
         amp = float(np.hypot(coef[1], coef[2]))
         u_amp = float(np.sqrt(max(cov[1, 1], cov[2, 2])))
+        u_round = float(np.sqrt(s2 / n))
     else:
         amp, u_amp = float(np.hypot(coef[1], coef[2])), float("nan")
+        u_round = u_mean
     ell = amp / coef[0]
     axis = float(np.degrees(0.5 * np.arctan2(coef[2], coef[1])))
     return SectorScatter(
         n, tuple(float(np.degrees(a)) for a in an), tuple(float(v) for v in sl), tuple(counts), u_mean, n - 1,
-        float(ell), float(u_amp / coef[0]), axis,
+        float(ell), float(u_amp / coef[0]), axis, u_round,
     )
