@@ -277,7 +277,10 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
 
             sat = ndimage.binary_dilation(sat, iterations=2)
         try:
-            g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat, finesse=F,
+            # later frames use the fringe shape the first frame chose: with another shape their piston (and so
+            # the frame step that gives the sign) would not be comparable
+            g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat,
+                        finesse=F if i == 0 else fits[0].finesse,
                         finesse_candidates=finesse_candidates(n) if i == 0 else None,
                         progress=(lambda m, i=i, f0=f0: say(f0, f"frame {i + 1}: {m}")))
         except np.linalg.LinAlgError:
@@ -357,10 +360,23 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     if setup.press_test:
         sign = sign_from_press(setup.press_test)
     if len(fits) > 1:
-        pist = [f.coeffs[0] for f in fits]
+        # cos(2 pi W) cannot tell W from -W: each frame's fit may land on either. Orient every frame like the
+        # first (same sign of the shape terms) before comparing pistons, or a step of d reads as -d (mod 1).
+        ref = np.asarray(fits[0].coeffs[1:])
+        orient = [1.0 if float(np.dot(np.asarray(f.coeffs[1:]), ref)) >= 0 else -1.0 for f in fits]
+        pist = [o * f.coeffs[0] for o, f in zip(orient, fits)]
         upist = [math.sqrt(f.covariance[0, 0]) if f.covariance is not None else 0.05 for f in fits]
         sf = sign_from_pistons(pist, upist, gap_change=(setup.extras or {}).get("gap_change", "increasing"))
-        pw = [f.coeffs[3] for f in fits]
+        poor = [i + 1 for i, f in enumerate(fits[1:], start=1) if f.contrast < 0.5 * fits[0].contrast]
+        if poor:
+            # a frame whose fit found far less fringe contrast than the first landed in a wrong minimum: its
+            # piston says nothing about the gap step, so no sign is drawn from the frames
+            warnings.append(
+                f"frame(s) {', '.join(map(str, poor))}: the gap fit found much weaker fringes than in frame 1 "
+                "(a doubtful fit); the sign is not taken from the frames"
+            )
+            sf = UNKNOWN
+        pw = [o * f.coeffs[3] for o, f in zip(orient, fits)]
         if max(pw) - min(pw) > 0.1:
             warnings.append("the frames differ in power by more than 0.1 fringe: did the part move or tilt?")
         if sign.method == "press test" and sf.sign and sf.sign != sign.sign:

@@ -134,6 +134,7 @@ class GapFit:
     notes: tuple[str, ...] = field(default_factory=tuple)
     alternatives: dict = field(default_factory=dict)  # model-choice label -> coefficients refitted under it
     edge_scale: float = 1.0  # part edge found from the model, as a multiple of radius_px (1 = as given)
+    finesse: float = 0.0  # coefficient of finesse of the fringe shape the fit used (0 = two-beam cosine)
 
     def gap(self, u, v) -> np.ndarray:
         """Gap in fringes at normalised coordinates."""
@@ -431,6 +432,7 @@ def fit_gap(
         notes=tuple(notes),
         alternatives=alt_out,
         edge_scale=float(edge_scale),
+        finesse=float(finesse),
     )
 
 
