@@ -4,25 +4,16 @@ verdict, and CSV export. The window runs each row's analysis off the GUI thread 
 from __future__ import annotations
 
 import csv
-import math
 import os
 from dataclasses import dataclass
 from typing import Any
 
 from ..errors import InputError, RinggaugeError
 from ..imaging import load_frame
-from .display import verdict_view
+from .display import _num, verdict_view
 from .model import Signal, image_files, progress_adapter
 
 QUEUED, RUNNING, DONE, FAILED = "queued", "analysing", "done", "failed"
-
-
-def _num(v) -> float | None:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return None
-    return f if math.isfinite(f) else None
 
 
 def _form_value(d: dict, *names: str) -> tuple[float | None, str]:
