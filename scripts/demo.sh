@@ -4,6 +4,10 @@ set -uo pipefail
 cd "$(dirname "$0")/.."
 RG=".venv/bin/ringgauge"
 S=sample_images
+# The demo keeps its own ringgauge folder (invented shop, its own signing key, records, bench profile), so it
+# never writes into the shop's real settings or records store; a fresh one each run keeps the output repeatable.
+export RINGGAUGE_HOME="$PWD/demo_output/home"
+rm -rf "$RINGGAUGE_HOME"; mkdir -p "$RINGGAUGE_HOME"
 hr() { printf '\n== %s ==\n' "$1"; }
 
 hr "Safety at the bench (follow your shop's procedures and local regulations)"
