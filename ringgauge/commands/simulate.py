@@ -8,7 +8,6 @@ from dataclasses import replace
 from pathlib import Path
 
 from ..errors import InputError
-from ..imaging import save_png
 from ..sources import SOURCES, get_source
 
 
@@ -58,6 +57,7 @@ def register(sub) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from .. import synth
+    from ..imaging import save_png  # numpy: loaded only when the command runs, not for --help
 
     if args.pixel_size <= 0 or args.radius <= 0 or args.width < 32 or args.height < 32:
         raise InputError("pixel size and radius must be positive and the image at least 32×32 px")
