@@ -5,28 +5,26 @@ uncertainties (from :mod:`ringgauge.calibration` or entered by hand), the calibr
 identity, a re-calibration interval (default 180 days), and optionally the bench's default light source and
 gap medium. Earlier calibrations are kept in the profile's history.
 
-Profiles live in ``ringgauge.settings.path("benches.json")``. Every write goes to a temporary file in the same
-folder, is flushed to disk and then renamed over the old file, so a crash never leaves half a file; a damaged
-file is reported, never overwritten.
+Profiles live in ``ringgauge.settings.path("benches.json")``. Every write goes through the shared atomic writer
+of :mod:`ringgauge.settings` (temporary file in the same folder, flushed to disk, renamed over the old file, under
+the file's lock), so a crash never leaves half a file; a damaged file is reported, never overwritten.
 
 The engine reads a profile through :func:`setup_kwargs`.
 """
 
 from __future__ import annotations
 
-import contextlib
 import datetime as dt
 import difflib
-import json
 import math
-import os
 import re
-import tempfile
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
+from ..settings import locked as settings_locked
 from ..settings import path as settings_path
+from ..settings import read_json, write_json_atomic
 from ..sources import LightSource, custom_source, get_source
 
 FILE_NAME = "benches.json"
@@ -112,21 +110,9 @@ def store_path() -> Path:
     return settings_path(FILE_NAME)
 
 
-@contextlib.contextmanager
 def _locked():
-    """Serialise read-modify-write cycles between processes (POSIX advisory lock; a no-op elsewhere)."""
-    lock = store_path().with_suffix(".lock")
-    try:
-        import fcntl
-    except ImportError:  # pragma: no cover - Windows
-        yield
-        return
-    with open(lock, "a+") as fh:
-        fcntl.flock(fh, fcntl.LOCK_EX)
-        try:
-            yield
-        finally:
-            fcntl.flock(fh, fcntl.LOCK_UN)
+    """Serialise read-modify-write cycles between processes (the shared settings lock beside the file)."""
+    return settings_locked(store_path())
 
 
 def load_all() -> dict[str, BenchProfile]:
@@ -134,19 +120,17 @@ def load_all() -> dict[str, BenchProfile]:
     p = store_path()
     if not p.exists():
         return {}
-    try:
-        doc = json.loads(p.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(
-            f"{p}: the bench profile file is damaged ({type(exc).__name__}); repair it or move it away"
-        ) from None
+    doc = read_json(p, what="the bench profile file")
     if not isinstance(doc, dict) or doc.get("format") != FORMAT or not isinstance(doc.get("benches"), dict):
         raise InputError(f"{p}: not a ringgauge bench profile file; move it away")
-    if int(doc.get("version", 0)) > FORMAT_VERSION:
+    version = doc.get("version", 0)
+    if not isinstance(version, int) or isinstance(version, bool):
+        raise InputError(f"{p}: the bench profile file is damaged (bad format version); repair it or move it away")
+    if version > FORMAT_VERSION:
         raise InputError(f"{p}: written by a newer ringgauge (format {doc.get('version')}); update ringgauge")
     try:
         return {name: BenchProfile.from_dict(d) for name, d in doc["benches"].items()}
-    except TypeError:
+    except (TypeError, ValueError, KeyError, AttributeError):
         raise InputError(f"{p}: a bench profile in the file is damaged; repair it or move it away") from None
 
 
@@ -157,18 +141,7 @@ def _write_all(profiles: dict[str, BenchProfile]) -> None:
         "version": FORMAT_VERSION,
         "benches": {name: prof.to_dict() for name, prof in sorted(profiles.items())},
     }
-    text = json.dumps(doc, indent=2, ensure_ascii=False)
-    fd, tmp = tempfile.mkstemp(prefix=".benches-", suffix=".tmp", dir=str(p.parent))
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
+    write_json_atomic(p, doc, what="the bench profile file")
 
 
 def check_name(name: str) -> str:
