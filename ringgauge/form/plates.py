@@ -3,21 +3,20 @@
 Each plate: identifier (e.g. ``TP-0412``), radius in mm (of the plate's working surface), ``convex`` or
 ``concave`` (the plate's surface; a convex plate tests concave parts), certified radius standard uncertainty
 (mm, k = 1), calibration date and interval, diameter, free note, and whether it is retired. The file lives at
-``ringgauge.settings.path("test_plates.json")``; writes go to a temporary file first and then replace the
-register in one step, so an interrupted write never leaves half a file.
+``ringgauge.settings.path("test_plates.json")``; writes go through the shared atomic writer (temporary file, then
+replace in one step, under the register's lock), so an interrupted write never leaves half a file, and adding or
+retiring a plate is one locked read-modify-write so two processes cannot lose each other's change.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
-import json
-import os
 import re
-import tempfile
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
+from ..settings import locked, read_json, write_json_atomic
 
 REGISTER_NAME = "test_plates.json"
 DEFAULT_INTERVAL_MONTHS = 24  # common practice, no source: shops recalibrate test plates every one to two years
@@ -97,18 +96,24 @@ def _validate(d: dict, where: str) -> TestPlate:
         radius = float("inf") if radius <= 0 or radius != radius else radius
     elif not (radius > 0 and radius < 1e7):
         raise InputError(f"{where}: plate {pid}: radius must be a positive number of mm, got {d['radius_mm']}")
-    if not (u >= 0):
-        raise InputError(f"{where}: plate {pid}: radius uncertainty cannot be negative")
+    if not (0 <= u < 1e7):
+        raise InputError(f"{where}: plate {pid}: radius uncertainty must be a finite number of mm, not negative")
     try:
         _dt.date.fromisoformat(cal)
     except ValueError:
         raise InputError(f"{where}: plate {pid}: calibration date {cal!r} is not a date like 2026-03-14") from None
     diam = d.get("diameter_mm")
     if diam is not None:
-        diam = float(diam)
-        if diam <= 0:
-            raise InputError(f"{where}: plate {pid}: diameter must be positive")
-    interval = int(d.get("interval_months", DEFAULT_INTERVAL_MONTHS))
+        try:
+            diam = float(diam)
+        except (TypeError, ValueError):
+            diam = float("nan")
+        if not (0 < diam < 1e7):
+            raise InputError(f"{where}: plate {pid}: diameter must be a positive number of mm")
+    try:
+        interval = int(d.get("interval_months", DEFAULT_INTERVAL_MONTHS))
+    except (TypeError, ValueError, OverflowError):
+        interval = 0
     if not 1 <= interval <= 240:
         raise InputError(f"{where}: plate {pid}: calibration interval must be 1-240 months")
     known = {"id", "radius_mm", "kind", "radius_u_mm", "calibrated", "diameter_mm", "interval_months", "note",
@@ -122,12 +127,7 @@ def load_register(path: Path | None = None) -> list[TestPlate]:
     p = Path(path) if path else register_path()
     if not p.exists():
         return []
-    try:
-        doc = json.loads(p.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as exc:
-        raise InputError(f"{p}: the test-plate register is not valid JSON (line {exc.lineno}: {exc.msg})") from None
-    except OSError as exc:
-        raise InputError(f"{p}: cannot read the test-plate register ({exc.strerror})") from None
+    doc = read_json(p, what="the test-plate register")
     items = doc.get("plates") if isinstance(doc, dict) else doc
     if not isinstance(items, list):
         raise InputError(f"{p}: expected a list of plates under \"plates\"")
@@ -142,7 +142,6 @@ def load_register(path: Path | None = None) -> list[TestPlate]:
 def save_register(plates: list[TestPlate], path: Path | None = None) -> Path:
     """Write the register atomically (temporary file in the same folder, then replace)."""
     p = Path(path) if path else register_path()
-    p.parent.mkdir(parents=True, exist_ok=True)
     doc = {
         "about": "ringgauge test-plate register; edit by hand or with 'ringgauge plates'. Radii in mm, "
         "radius_u_mm is the certified standard uncertainty (k = 1), dates as YYYY-MM-DD.",
@@ -152,20 +151,7 @@ def save_register(plates: list[TestPlate], path: Path | None = None) -> Path:
         d.pop("due", None)
         if d["radius_mm"] == float("inf"):
             d["radius_mm"] = 0
-    fd, tmp = tempfile.mkstemp(prefix=".test_plates.", suffix=".tmp", dir=str(p.parent))
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(doc, fh, indent=2, ensure_ascii=False)
-            fh.write("\n")
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    write_json_atomic(p, doc, what="the test-plate register")
     return p
 
 
@@ -180,27 +166,31 @@ def get_plate(plate_id: str, path: Path | None = None) -> TestPlate:
 
 
 def add_plate(plate: dict, path: Path | None = None) -> TestPlate:
-    plates = load_register(path)
     new = _validate(plate, "new plate")
-    if any(pl.id.lower() == new.id.lower() for pl in plates):
-        raise InputError(f"test plate '{new.id}' is already in the register; retire it or choose another id")
-    save_register(plates + [new], path)
+    # read-modify-write under the register's lock: a second process adding a plate at the same time waits
+    # and then reads the register with the first one's plate in it, so no update is lost
+    with locked(Path(path) if path else register_path()):
+        plates = load_register(path)
+        if any(pl.id.lower() == new.id.lower() for pl in plates):
+            raise InputError(f"test plate '{new.id}' is already in the register; retire it or choose another id")
+        save_register(plates + [new], path)
     return new
 
 
 def retire_plate(plate_id: str, when: str | None = None, path: Path | None = None) -> TestPlate:
-    plates = load_register(path)
-    target = get_plate(plate_id, path)
-    if target.retired:
-        raise InputError(f"test plate '{target.id}' was already retired on {target.retired}")
-    day = when or _dt.date.today().isoformat()
-    out = []
-    for pl in plates:
-        if pl.id == target.id:
-            pl = TestPlate(**{**asdict(pl), "retired": day})
-            target = pl
-        out.append(pl)
-    save_register(out, path)
+    with locked(Path(path) if path else register_path()):
+        plates = load_register(path)
+        target = get_plate(plate_id, path)
+        if target.retired:
+            raise InputError(f"test plate '{target.id}' was already retired on {target.retired}")
+        day = when or _dt.date.today().isoformat()
+        out = []
+        for pl in plates:
+            if pl.id == target.id:
+                pl = TestPlate(**{**asdict(pl), "retired": day})
+                target = pl
+            out.append(pl)
+        save_register(out, path)
     return target
 
 
