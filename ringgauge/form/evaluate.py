@@ -29,7 +29,7 @@ from .aperture import Aperture, find_aperture
 from .fit import GapFit, finesse_coefficient, fit_gap
 from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxial, radius_budget
 from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
-from .tolerance import Tolerance, parse_tolerance
+from .tolerance import Tolerance, judge, parse_tolerance
 
 MC_DRAWS = 300
 
@@ -394,9 +394,10 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         radius, rw = _radius_block(terms["power_fringes"], terms_u.get("power_fringes", 0.0), td,
                                    ap, px, setup, plate, sign)
         warnings += rw
-    verdict = _verdict(terms, terms_u, tol, lam, setup.decision_rule, sign)
-    if tol is not None and tol.wavelength_stated and abs(tol.wavelength_nm - lam) > 0.5:
-        notes.append(f"measured at {lam:g} nm; compared with the tolerance in fringes of {tol.wavelength_nm:g} nm")
+    verdict = judge(tol, terms, terms_u, measured_fringe_nm=fr, measured_wavelength_nm=lam,
+                    rule=setup.decision_rule, sign_known=bool(sign.sign))
+    if verdict.get("wavelength_note"):
+        notes.append(verdict["wavelength_note"])
     return FormResult(
         wavelength_nm=lam, wavelength_u_nm=setup.source.wavelength_u_nm, medium_index=n, fringe_nm=fr,
         terms=terms, terms_u=terms_u, astigmatism_axis_deg=terms["astigmatism_axis_deg"],
@@ -472,59 +473,6 @@ def _radius_block(N, uN, D, ap, px, setup, plate, sign: SignResult):
 
 
 def _verdict(terms, terms_u, tol: Tolerance | None, lam, rule, sign: SignResult) -> dict:
-    desc = {
-        "simple": "simple acceptance: a term passes when the measured value is within the limit; results "
-        "within the expanded uncertainty U (k = 2) of the limit are marked conditional",
-        "guard-banded": "guard-banded acceptance: a term passes only when value + U is within the limit and "
-        "fails when value - U exceeds it; in between it is conditional and not accepted",
-    }[rule]
-    if tol is None:
-        return {"overall": "not evaluated", "terms": [], "decision_rule": desc,
-                "reason": "no tolerance given"}
-    scale = lam / tol.wavelength_nm  # measured fringes -> fringes of the tolerance's wavelength
-    rows = []
-    for name, limit in tol.limits().items():
-        v = abs(terms[name]) * scale
-        u = terms_u.get(name)
-        U = None if u is None else 2.0 * u * scale
-        if U is None:
-            state = "pass" if v <= limit else "fail"
-            note = "uncertainty not available"
-        elif rule == "simple":
-            if v <= limit:
-                state = "conditional pass" if v + U > limit else "pass"
-            else:
-                state = "conditional fail" if v - U <= limit else "fail"
-            note = ""
-        else:
-            if v + U <= limit:
-                state = "pass"
-            elif v - U > limit:
-                state = "fail"
-            else:
-                state = "conditional pass" if v <= limit else "conditional fail"
-            note = ""
-        rows.append({
-            "term": name.replace("_fringes", ""),
-            "value_fringes": v,
-            "U_fringes": U,
-            "limit_fringes": limit,
-            "wavelength_nm": tol.wavelength_nm,
-            "verdict": state,
-            "note": note,
-        })
-    order = ["fail", "conditional fail", "conditional pass", "pass"]
-    overall = "pass"
-    for st in order:
-        if any(r["verdict"] == st for r in rows):
-            overall = st
-            break
-    out = {"overall": overall, "terms": rows, "decision_rule": desc, "rule": rule}
-    if rule == "guard-banded" and overall.startswith("conditional"):
-        out["meaning"] = "under guard-banded acceptance a conditional result is not accepted"
-    elif overall.startswith("conditional"):
-        out["meaning"] = ("the result lies within the expanded uncertainty (k = 2, about 95 %) of a limit: "
-                          "conformity is neither proven nor disproven at that confidence")
-    if any(r["term"] == "power" for r in rows) and sign.sign == 0:
-        out["power_note"] = "power compared by magnitude (sign unknown)"
-    return out
+    """The verdict in air (one fringe = λ/2); kept for callers of the earlier signature — see tolerance.judge."""
+    return judge(tol, terms, terms_u, measured_fringe_nm=lam / 2, measured_wavelength_nm=lam, rule=rule,
+                 sign_known=bool(sign.sign))
