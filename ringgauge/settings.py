@@ -109,8 +109,10 @@ def locked(target: str | os.PathLike, *, timeout: float | None = None) -> Iterat
         lock.release()
 
 
-def write_text_atomic(target: str | os.PathLike, text: str, *, encoding: str = "utf-8") -> Path:
+def write_text_atomic(target: str | os.PathLike, text: str | bytes, *, encoding: str = "utf-8") -> Path:
     """Write ``text`` to ``target`` atomically (temp file in the same folder, fsync, ``os.replace``) under its lock.
+
+    ``text`` may also be ``bytes`` (written as they are).
 
     The replaced file keeps the old file's permission bits (or 0o644 less the umask for a new file). A failure
     leaves the old file untouched and no temporary file behind, and is raised as one line.
@@ -118,7 +120,7 @@ def write_text_atomic(target: str | os.PathLike, text: str, *, encoding: str = "
     target = Path(target)
     if target.is_dir():
         raise InputError(f"{target} is a folder; give a file name to write to")
-    data = text.encode(encoding)
+    data = text if isinstance(text, bytes) else text.encode(encoding)
     with locked(target):
         fd, tmp = None, None
         try:

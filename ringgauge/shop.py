@@ -12,7 +12,6 @@ Example ``shop.json`` (every key optional)::
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 from .errors import InputError
@@ -44,12 +43,9 @@ def load_shop(path: str | Path | None = None) -> dict:
         if path is not None:
             raise InputError(f"{p}: no such shop settings file")
         return out
-    try:
-        data = json.loads(p.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as exc:
-        raise InputError(f"{p}: not valid JSON (line {exc.lineno}: {exc.msg})") from None
-    except OSError as exc:
-        raise InputError(f"{p}: cannot be read ({exc.strerror or exc})") from None
+    from .settings import read_json
+
+    data = read_json(p, what="the shop settings file")
     if not isinstance(data, dict):
         raise InputError(f"{p}: expected a JSON object with the shop's details")
     unknown = set(data) - set(DEFAULTS)
@@ -74,7 +70,18 @@ def load_shop(path: str | Path | None = None) -> dict:
 
 
 def save_shop(data: dict, path: str | Path | None = None) -> Path:
+    from .settings import locked, write_json_atomic, write_text_atomic
+
     p = Path(path) if path is not None else shop_path()
-    p.write_text(json.dumps({**DEFAULTS, **data}, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
-    load_shop(p)  # refuse to leave an invalid file behind
+    with locked(p):
+        old = p.read_bytes() if p.is_file() else None
+        write_json_atomic(p, {**DEFAULTS, **data}, what=str(p))
+        try:
+            load_shop(p)  # refuse to leave an invalid file behind: put the old one back
+        except InputError:
+            if old is None:
+                p.unlink()
+            else:
+                write_text_atomic(p, old)
+            raise
     return p

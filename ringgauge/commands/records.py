@@ -50,6 +50,8 @@ def register(sub) -> None:
     filters(q)
     q.add_argument("--format", choices=("csv", "json"), default=None,
                    help="csv (one row per record) or json (full records); default from --out's ending, else csv")
+    q.add_argument("--csv", dest="format", action="store_const", const="csv", help="same as --format csv")
+    q.add_argument("--json", dest="format", action="store_const", const="json", help="same as --format json")
     q.add_argument("--out", metavar="FILE", help="write to FILE instead of standard output")
     q.set_defaults(func=run_export)
 
@@ -94,6 +96,26 @@ def _pm(value, U, unit):
     return format_value(value, U, unit)
 
 
+def _k2(u):
+    """A stored standard uncertainty as the expanded U (k = 2) that the record pages print."""
+    try:
+        return 2.0 * float(u) if u else None
+    except (TypeError, ValueError):
+        return None
+
+
+def _pixel_text(s: dict) -> str:
+    pix = s.get("pixel_size_um") or []
+    pixu = s.get("pixel_size_u_um") or []
+    if not pix:
+        return "—"
+    ux = _k2(pixu[0] if pixu else None)
+    if len(pix) > 1 and pix[1] != pix[0]:
+        uy = _k2(pixu[1] if len(pixu) > 1 else None)
+        return f"x {_pm(pix[0], ux, 'µm')}, y {_pm(pix[1], uy, 'µm')}"
+    return _pm(pix[0], ux, "µm")
+
+
 def _verdict(r) -> str:
     v = "ANALYSIS FAILED" if r.status == "failed" else (r.verdict or "not evaluated")
     return v + (f" (superseded by {r.superseded_by})" if r.superseded_by else "")
@@ -136,11 +158,18 @@ def run_show(args) -> int:
         json.dump(d, sys.stdout, indent=2, ensure_ascii=False)
         sys.stdout.write("\n")
         return 0
+    from ..report.text import local_time
+
     m = rec.meta
     s = rec.setup or {}
+    # a correction is recorded later than the part was measured: say which time is which
+    when = (f"  recorded        {local_time(rec.created_utc)} (correction of record {chain[0].id}, measured "
+            f"{local_time(chain[0].created_utc)}), ringgauge {rec.software_version}"
+            if rec.supersedes is not None and chain and chain[0].id != rec.id else
+            f"  measured        {local_time(rec.created_utc)}, ringgauge {rec.software_version}")
     lines = [
         f"record {rec.id}  ({rec.uid})",
-        f"  measured        {rec.created_utc} UTC, ringgauge {rec.software_version}",
+        when,
         f"  part            {m.part or '—'}  drawing {m.drawing or '—'}  surface {m.surface or '—'}",
         f"  lot / serial    {m.lot or '—'} / {m.serial or '—'}",
         f"  operator        {m.operator or '—'}",
@@ -150,13 +179,12 @@ def run_show(args) -> int:
         f"  image SHA-256   {rec.image_sha256 or '—'}",
     ]
     if s:
-        pix = s.get("pixel_size_um") or ["?"]
-        pixu = s.get("pixel_size_u_um") or ["?"]
         lines += [
-            f"  source          {(s.get('source') or {}).get('name', '—')}, λ = {s.get('wavelength_nm')} nm",
-            f"  pixel size      {pix[0]} µm (u = {pixu[0]} µm), bench {s.get('bench') or '—'}"
+            f"  source          {(s.get('source') or {}).get('name', '—')}, "
+            f"λ = {_pm(s.get('wavelength_nm'), _k2(s.get('wavelength_u_nm')), 'nm')}",
+            f"  pixel size      {_pixel_text(s)}, bench {s.get('bench') or '—'}"
             + (f", calibrated {s['bench_calibrated']}" if s.get("bench_calibrated") else ""),
-            f"  medium index    {s.get('medium_index')}",
+            f"  medium index    {_pm(s.get('medium_index'), _k2(s.get('medium_index_u')) or None, '')}",
             f"  test plate      {json.dumps(s.get('test_plate'), ensure_ascii=False) if s.get('test_plate') else '—'}",
             f"  tolerance       {s.get('tolerance') or '—'}",
         ]
@@ -174,9 +202,10 @@ def run_show(args) -> int:
         for r in chain:
             mark = "→" if r.id == rec.id else " "
             why = f" — {r.supersede_reason}" if r.supersede_reason else " — original"
-            lines.append(f"   {mark} record {r.id}  {r.created_utc[:19]}{why}")
+            lines.append(f"   {mark} record {r.id}  recorded {local_time(r.created_utc)}{why}")
     for x in docs:
-        lines.append(f"  document        {x.kind} {x.number}, issued {x.issued_utc[:19]} UTC")
+        lines.append(f"  document        {x.kind} {x.number}, issued {local_time(x.issued_utc)}")
+    lines.append("  ± values are expanded uncertainties U (k = 2); times are local")
     print("\n".join(lines))
     if rec.status == "ok" and rec.result:
         try:
@@ -194,20 +223,17 @@ def run_show(args) -> int:
 
 
 def run_export(args) -> int:
-    from ..records.export import write_csv, write_json
+    from ..records.export import check_out_path, export_to_file, write_csv, write_json
 
     fmt = args.format or ("json" if args.out and args.out.lower().endswith(".json") else "csv")
+    if args.out:
+        check_out_path(args.out)  # a folder or missing folder is refused before the store is read
     with open_from_args(args) as store:
         recs = store.find(_filter(args))
     writer = write_json if fmt == "json" else write_csv
     if args.out:
         out = Path(args.out)
-        if not out.parent.exists():
-            raise InputError(f"cannot write {out}: folder {out.parent} does not exist")
-        tmp = out.with_name(out.name + ".part")
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            n = writer(recs, fh)
-        tmp.replace(out)
+        n = export_to_file(recs, out, fmt)
         print(f"exported {n} record(s) to {out} ({fmt.upper()})", file=sys.stderr)
     else:
         writer(recs, sys.stdout)
@@ -257,6 +283,9 @@ def run_lots(args) -> int:
         lots = store.lots()
     if not lots:
         print("no lots in the store", file=sys.stderr)
+        return 0
+    width = max(3, *(len(str(lot)) for lot, _ in lots))
+    print(f"{'lot':{width}s}  records")
     for lot, n in lots:
-        print(f"{lot}\t{n} record(s)")
+        print(f"{str(lot):{width}s}  {n:7d}")
     return 0

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import csv
+import io
 import json
+from pathlib import Path
 from typing import Iterable, TextIO
 
 CSV_COLUMNS = (
@@ -50,3 +52,28 @@ def write_json(records: Iterable, fh: TextIO) -> int:
     json.dump({"format": "ringgauge records", "version": 1, "records": items}, fh, indent=2, ensure_ascii=False)
     fh.write("\n")
     return len(items)
+
+
+def check_out_path(out: str | Path) -> Path:
+    """Refuse an export target that cannot be written, before any work is done (one-line message)."""
+    from ..errors import InputError
+
+    out = Path(out)
+    if out.is_dir():
+        raise InputError(f"cannot write the export to {out}: it is a folder; give a file name, e.g. {out / 'records.csv'}")
+    if out.exists() and not out.is_file():
+        raise InputError(f"cannot write the export to {out}: it is not a regular file")
+    if not out.parent.is_dir():
+        raise InputError(f"cannot write {out}: folder {out.parent} does not exist")
+    return out
+
+
+def export_to_file(records: Iterable, out: str | Path, fmt: str) -> int:
+    """Write an export file atomically under its lock (a reader never sees half an export); returns the count."""
+    from ..settings import write_text_atomic
+
+    out = check_out_path(out)
+    buf = io.StringIO(newline="")
+    n = (write_json if fmt == "json" else write_csv)(records, buf)
+    write_text_atomic(out, buf.getvalue())
+    return n
