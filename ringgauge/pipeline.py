@@ -13,6 +13,7 @@ import cv2
 import numpy as np
 from threadpoolctl import threadpool_limits
 
+from . import physics
 from .bench_setup import BenchSetup
 from .errors import AnalysisError, InputError
 from .fit.fullfield import fit_full_field
@@ -67,6 +68,7 @@ def wants_form(setup: BenchSetup, n_frames: int) -> bool:
         or setup.test_diameter_mm is not None
         or setup.tolerance
         or setup.test_plate
+        or setup.press_test  # a press-test observation only makes sense against a test plate
         or setup.extras.get("mode") == "form"
     ) and setup.extras.get("mode") != "radius"
 
@@ -101,19 +103,19 @@ def _analyse(frames, setup: BenchSetup, progress: Progress) -> AnalysisResult:
 
         form = evaluate_form(frames, setup, progress=progress)
         fd = form.to_dict()
-        return AnalysisResult(
+        return with_radius_verdict(AnalysisResult(
             image=image_info(frames[0]), setup=setup, centre_px=None, centre_u_px=None, radius_mm=None,
             radius_u_mm=None, k=2.0, budget=None, fit=None, form=form, verdict=fd.get("verdict"),
             warnings=tuple(fd.get("warnings", ())), elapsed_s=time.perf_counter() - t0,
             frames=tuple(image_info(f) for f in frames),
-        )
+        ))
     res = analyse_rings(frames[0], setup, progress=progress)
     extra = ()
     if len(frames) > 1:
         extra = (f"radius mode reads one frame: only {frames[0].name} was used, {len(frames) - 1} more ignored",)
-    return AnalysisResult(
+    return with_radius_verdict(AnalysisResult(
         **{**res.__dict__, "elapsed_s": time.perf_counter() - t0, "warnings": res.warnings + extra}
-    )
+    ))
 
 
 def analyse_files(paths: Sequence[str], setup: BenchSetup, *, progress: Progress | None = None) -> AnalysisResult:
@@ -239,7 +241,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     )
     s_min = max(rnear**2, 0.0)
     extrema = locate_extrema(prof, period_s, ff.phase0, s_min=s_min, s_max=r_lim**2)
-    R_ff = 2 * math.pi / (lam_px_over_n * ff.q) * px_mm
+    # the model's phase rate q (rad/px^2) is a slope of 2 pi / q px^2 per fringe
+    R_ff = physics.radius_from_slope(2 * math.pi / ff.q * px_mm**2, setup.wavelength_nm, n)
     fit = fit_orders(
         extrema, kind=setup.fringe_kind, px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
     )
@@ -250,7 +253,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         )
     if len(used) < 6:
         warnings.append(f"only {len(used)} rings used: the radius rests on few fringes")
-    R_raw = n * fit.slope_mm2 / lam_mm
+    R_raw = physics.radius_from_slope(fit.slope_mm2, setup.wavelength_nm, n)
     # a band source (LED) fades the fringes with order just as blur does: the contrast cannot tell them apart there,
     # so no blur correction is made for it (its wavelength uncertainty is far larger anyway)
     blur = 0.0 if setup.source.fwhm_nm > 0 else estimate_blur(extrema, period_s, setup.fringe_kind)
@@ -371,7 +374,7 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
     lam = setup.wavelength_nm
     n = setup.medium_index
     (px, py), (ux, uy) = setup.pixel_size_xy_um, setup.pixel_size_xy_u_um
-    c_slope = n / (lam * 1e-6) * (R / (n * fit.slope_mm2 / (lam * 1e-6)))
+    c_slope = physics.radius_from_slope(1.0, lam, n) * (R / physics.radius_from_slope(fit.slope_mm2, lam, n))
     u_slope, dof, note = fit.slope_u_mm2, max(1, fit.ndata - 2), f"{fit.ndata} rings, reduced chi-square {fit.redchi:.2f}"
     if sectors is not None and sectors.u_mean_slope_mm2 > u_slope:
         u_slope, dof = sectors.u_mean_slope_mm2, sectors.dof

@@ -70,15 +70,15 @@ _LASER = (
 )
 
 # Sodium D: D2 588.9950 nm, D1 589.5924 nm (NIST ASD); D2 about twice as bright as D1 (HyperPhysics).
-# The plain mean 589.2938 nm is the conventional "sodium D" value; the intensity-weighted centroid is
+# The plain mean 589.2937 nm is the conventional "sodium D" value; the intensity-weighted centroid is
 # 589.194 nm, so the effective wavelength depends on the lamp: u = half that spread, rectangular -> /sqrt(3).
-_NA_U = abs(589.2938 - (2 * 588.9950 + 589.5924) / 3) / 3**0.5
+_NA_U = abs(589.2937 - (2 * 588.9950 + 589.5924) / 3) / 3**0.5
 
 SOURCES: dict[str, LightSource] = {
     s.key: s
     for s in (
         LightSource(
-            "sodium-d", "Sodium D (doublet mean)", 589.2938, _NA_U,
+            "sodium-d", "Sodium D (doublet mean)", 589.2937, _NA_U,
             (SpectralLine(588.9950, 2.0), SpectralLine(589.5924, 1.0)),
             reference="NIST ASD (Na I D2 588.9950 nm, D1 589.5924 nm)", hazard=_SODIUM,
         ),

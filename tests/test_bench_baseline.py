@@ -14,7 +14,7 @@ import bench_baseline as bb  # noqa: E402
 from ringgauge import synth  # noqa: E402
 from ringgauge.sources import get_source  # noqa: E402
 
-LAM_NA_NM = 589.2938  # sodium D doublet mean, NIST ASD (see ringgauge.sources)
+LAM_NA_NM = 589.2937  # sodium D doublet mean, NIST ASD (see ringgauge.sources)
 
 
 def edge_circles(R_mm, lam_nm, px_um, m_values, centre=(400.0, 300.0)):

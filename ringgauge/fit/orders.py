@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .. import physics
 from ..result import Ring, RingFit
 from ..rings.profile import SProfile
 
@@ -154,13 +155,11 @@ def fit_orders(
     # Phase-frame order 0 is the first dark ring outside the contact (first_dark_s lies in (0, P]), so dark
     # rings are labelled m = order + 1 (integers) and bright ones m - 1/2; the contact offset
     # -intercept / slope then lies in [0, 1) fringe (modulo whole fringes).
-    orders = np.array([e.order for e in rings]) + 1.0
-    orders = np.rint(orders) if kind == "dark" else np.rint(orders - 0.5) + 0.5
+    orders = physics.label_orders([e.order for e in rings], kind)
     r2 = np.array([e.s for e in rings]) * px_mm**2
     u = np.array([max(e.u_s, 1e-9) for e in rings]) * px_mm**2
     if radius_guess_mm and lam_mm_over_n:
-        t = r2 / (2 * radius_guess_mm)
-        r2 = r2 + t * t
+        r2 = physics.sphere_r2_correction(r2, radius_guess_mm)
     w = 1.0 / u**2
     X = np.stack([orders, np.ones_like(orders)], axis=1)
     XtW = X.T * w

@@ -17,6 +17,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from ..errors import InputError
+from ..physics import part_radius_mm, power_from_radius  # noqa: F401 - also used by the tests
 from ..settings import home
 from ..sources import get_source
 from ..synth import Camera, Dust, Lighting, SurfaceForm, test_plate_fringes
@@ -97,23 +98,6 @@ def count_crossings(form: SurfaceForm, *, samples: int = 4001) -> int:
     u = np.linspace(0.0, 1.0, samples)
     g = np.floor(form.gap_fringes(u, np.zeros_like(u)))
     return int(np.abs(np.diff(g)).sum())
-
-
-def part_radius_mm(plate_radius_mm: float, power_fringes: float, diameter_mm: float, wavelength_nm: float) -> float:
-    """Radius of a convex part on a concave plate that shows ``power_fringes`` (> 0: contact at the centre).
-
-    Gap at the edge h = D/2 of the paraxial surfaces: P λ/2 = h²/2 (1/R_part − 1/R_plate), hence
-    1/R_part = 1/R_plate + 4 P λ / D². To first order this is the shop formula ΔR ≈ −4 N λ R² / D²
-    (DOMAIN.md §3).
-    """
-    lam_mm = wavelength_nm * 1e-6
-    return 1.0 / (1.0 / plate_radius_mm + 4.0 * power_fringes * lam_mm / diameter_mm**2)
-
-
-def power_from_radius(r_part_mm: float, plate_radius_mm: float, diameter_mm: float, wavelength_nm: float) -> float:
-    """Inverse of :func:`part_radius_mm`: the power in fringes a part of radius ``r_part_mm`` shows."""
-    lam_mm = wavelength_nm * 1e-6
-    return (1.0 / r_part_mm - 1.0 / plate_radius_mm) * diameter_mm**2 / (4.0 * lam_mm)
 
 
 def make_exercise(level: str = "starter", seed: int | None = None) -> Exercise:
