@@ -49,6 +49,7 @@ class BenchSetup:
     press_test: str | None = None
     decision_rule: str = "simple"
     extras: dict = field(default_factory=dict)
+    radius_tolerance: str | None = None  # e.g. "1000 ± 5", "1000 ± 0.5 %", "995..1005" (ringgauge.conformity)
 
     def __post_init__(self):
         check_positive("pixel size", self.pixel_size_um, "µm")
@@ -69,6 +70,11 @@ class BenchSetup:
             raise InputError("fringe kind must be 'dark' or 'bright'")
         if self.test_diameter_mm is not None:
             check_positive("test diameter", self.test_diameter_mm, "mm")
+        if self.radius_tolerance is not None:
+            from .conformity import normalise_rule, parse_radius_tolerance
+
+            parse_radius_tolerance(self.radius_tolerance)  # a pointed error now rather than after the analysis
+            normalise_rule(self.decision_rule)
 
     @property
     def wavelength_nm(self) -> float:
@@ -103,6 +109,7 @@ class BenchSetup:
             "test_plate": self.test_plate,
             "press_test": self.press_test,
             "decision_rule": self.decision_rule,
+            "radius_tolerance": self.radius_tolerance,
         }
 
 

@@ -356,3 +356,64 @@ def judge_radius(radius_mm: float | None, U_mm: float | None, tol: RadiusToleran
     if radius_mm is None:
         d["note"] = f"no {what} measured"
     return d
+
+
+# --- the verdict of a whole result -------------------------------------------------------------------------
+
+def combined_verdict(form_verdict: dict | None, radius: dict | None, rule: str | None) -> dict | None:
+    """The result's verdict: the form verdict (if any) and the radius verdict (if any), worst one overall.
+
+    The form verdict's own fields are kept as they were (``terms``, ``decision_rule``, ...); the radius verdict
+    sits under ``radius`` and the form's own overall under ``form_overall``."""
+    if radius is None:
+        return form_verdict
+    rule = normalise_rule(rule)
+    out = dict(form_verdict or {})
+    form_overall = out.get("overall") if form_verdict else None
+    if form_verdict:
+        out["form_overall"] = form_overall
+    out.setdefault("terms", [])
+    out.setdefault("decision_rule", RULE_WORDING[rule])
+    out["rule"] = rule
+    out["rule_name"] = RULE_NAMES[rule]
+    out["radius"] = radius
+    out["overall"] = worst([form_overall, radius["verdict"]])
+    if out["overall"] == "not evaluated":
+        out["reason"] = radius.get("note") or out.get("reason") or "no tolerance evaluated"
+    tol = radius["tolerance"]["described"]
+    if radius["verdict"] in VERDICTS:
+        word = radius["verdict"]
+        acc = "accepted" if radius["accepted"] else "not accepted"
+        out["radius_meaning"] = (f"{radius['quantity']} {word} against {tol} under {RULE_NAMES[rule]}: {acc}")
+        if not out.get("meaning") or not form_verdict or form_overall == "not evaluated":
+            if word.startswith("conditional"):
+                out["meaning"] = (f"the {radius['quantity']} lies within its expanded uncertainty (k = 2) of a "
+                                  f"limit of {tol}: conformity is neither proven nor disproven; "
+                                  f"{acc} under {RULE_NAMES[rule]}")
+            else:
+                out["meaning"] = f"the {radius['quantity']} is {'within' if word == 'pass' else 'outside'} {tol}"
+    return out
+
+
+def with_radius_verdict(result):
+    """``result`` (an AnalysisResult) with the radius verdict joined to its verdict when its set-up carries a
+    radius tolerance: the measured radius in radius mode, the surface radius against the test plate in form
+    mode. Unchanged when no radius tolerance is given."""
+    from dataclasses import replace
+
+    setup = result.setup
+    text = getattr(setup, "radius_tolerance", None)
+    if not text:
+        return result
+    tol = parse_radius_tolerance(text)
+    rule = normalise_rule(setup.decision_rule)
+    if result.form is None:
+        radius = judge_radius(result.radius_mm, result.radius_U_mm, tol, rule, what="radius of curvature")
+    else:
+        block = getattr(result.form, "radius", None) or {}
+        r, U = block.get("surface_radius_mm"), block.get("surface_radius_U_mm")
+        radius = judge_radius(r, U, tol, rule, what="surface radius")
+        if r is None:
+            radius["note"] = (block.get("surface_radius_note") or
+                              "no test-plate radius given: the surface radius (plate radius ± ΔR) is not known")
+    return replace(result, verdict=combined_verdict(result.verdict, radius, rule))

@@ -15,6 +15,7 @@ from threadpoolctl import threadpool_limits
 
 from . import physics
 from .bench_setup import BenchSetup
+from .conformity import with_radius_verdict
 from .errors import AnalysisError, InputError
 from .fit.fullfield import fit_full_field
 from .fit.orders import fit_orders, locate_extrema
