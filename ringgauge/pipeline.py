@@ -289,9 +289,13 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     progress(0.9, "uncertainty budget")
     budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), sectors, blur_rel=a2 / 2, blur_px=blur)
     if any(r.quantity.startswith("method agreement") for r in budget.rows):
+        # enough decimals that the two values printed differ (at least the difference's first two digits)
+        diff = abs(R - R_ff * (1 - a2 / 2))
+        dec = min(9, max(2, 1 - math.floor(math.log10(diff)))) if diff > 0 else 6
         warnings.append(
-            f"the ring fit (R = {R:.6g} mm) and the full-field fit (R = {R_ff:.6g} mm) disagree beyond their "
-            "statistical uncertainty; the difference is carried in the budget — check the image for distortion"
+            f"the ring fit (R = {R:.{dec}f} mm) and the full-field fit (R = {R_ff * (1 - a2 / 2):.{dec}f} mm) "
+            f"differ by {diff:.2g} mm, beyond their statistical uncertainty; the difference is carried in the "
+            "budget — check the image for distortion"
         )
     if setup.pixel_size_u_um == 0:
         warnings.append(

@@ -9,6 +9,7 @@ import sys
 
 from ..bench_setup import BenchSetup
 from ..errors import InputError
+from ._help import ExampleFormatter
 from ..sources import SOURCES, custom_source, get_source
 
 
@@ -119,6 +120,7 @@ def register(sub) -> None:
     if _has("ringgauge.records"):
         from . import _records_common as rc
 
+        formatter_class=ExampleFormatter,
         r = p.add_argument_group("keeping the result")
         r.add_argument(
             "--record", action="store_true",

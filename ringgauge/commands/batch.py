@@ -8,6 +8,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
+from ._help import ExampleFormatter
 from ._records_common import add_db_argument, add_meta_arguments, meta_from_args, open_from_args
 
 
@@ -23,6 +24,7 @@ def register(sub) -> None:
             "(without its ending) becomes the lens serial. Ends with the lot summary: counts by verdict, mean "
             "and spread of radius and power, Cp/Cpk against the tolerance, and an individuals control chart."
         ),
+        formatter_class=ExampleFormatter,
         epilog="Example: ringgauge batch lot-0042/ --lot L-0042 --part PCX-25-50 --source mercury-e "
                "--bench bench-2 --tolerance '3/2(0.5)' --test-diameter 20",
     )

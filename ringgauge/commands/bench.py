@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import json
 
 from ..uncertainty import format_value
@@ -37,7 +38,9 @@ def register(sub) -> None:
     q.add_argument("--pixel-size-y", type=float, metavar="UM", help="pixel scale along y when it differs")
     q.add_argument("--pixel-size-y-u", type=float, metavar="UM", help="its standard uncertainty")
     q.add_argument("--calibrated", metavar="YYYY-MM-DD", help="date the scale was determined (default today)")
-    q.add_argument("--note", default="", metavar="TEXT", help="where the value comes from")
+    # free text is --notes in every command; the older --note still works
+    q.add_argument("--notes", dest="note", default="", metavar="TEXT", help="where the value comes from")
+    q.add_argument("--note", dest="note", help=argparse.SUPPRESS)
     q.add_argument("--replace", action="store_true", help="replace an existing profile's scale")
     _meta_options(q)
     q.add_argument("--json", action="store_true", help="print the profile as JSON")
@@ -46,7 +49,8 @@ def register(sub) -> None:
     q = bs.add_parser("edit", help="change a profile's camera / lens notes and defaults (not its scale)")
     q.add_argument("name", metavar="NAME")
     _meta_options(q)
-    q.add_argument("--notes", metavar="TEXT", help="free notes")
+    q.add_argument("--notes", dest="note", metavar="TEXT", help="free notes (replace the profile's notes)")
+    q.add_argument("--note", dest="note", help=argparse.SUPPRESS)  # the spelling 'bench add' used
     q.add_argument("--rename", metavar="NEW", help="give the profile a new name")
     q.set_defaults(func=run_edit)
 
@@ -62,7 +66,10 @@ def _meta_options(q) -> None:
     q.add_argument("--source", metavar="KEY", help="default light source (see 'ringgauge sources')")
     q.add_argument("--wavelength", type=float, metavar="NM", help="or a custom default wavelength, nm")
     q.add_argument("--medium-index", type=float, metavar="N", help="default gap medium index")
-    q.add_argument("--recal-days", type=int, metavar="DAYS", help="re-calibration interval, days (default 180)")
+    # one unit for every calibration interval (test plates too): months; the old --recal-days still works
+    q.add_argument("--recal-months", type=int, metavar="MONTHS",
+                   help="re-calibration interval, months (default about 6: 180 days)")
+    q.add_argument("--recal-days", type=int, help=argparse.SUPPRESS)
 
 
 def _scale_text(prof) -> str:
@@ -139,7 +146,8 @@ def format_profile(prof) -> str:
         lines.append(f"  target: {t.get('kind')}, {ref}, id {t.get('id') or '-'}")
     for im in c.get("images", []):
         lines.append(f"  image: {im.get('path') or '(in memory)'} sha256 {str(im.get('sha256'))[:16]}…")
-    lines.append(f"  re-calibration interval: {prof.recalibration_days} days ({_status(prof)})")
+    lines.append(f"  re-calibration interval: {prof.recalibration_days / (365.25 / 12):.0f} months "
+                 f"({prof.recalibration_days} days; {_status(prof)})")
     lines.append(f"  default light source: {src.name + f' ({src.wavelength_nm:g} nm)' if src else '-'}")
     lines.append(f"  default gap medium index: {prof.medium_index if prof.medium_index is not None else '-'}")
     if prof.history:
@@ -157,8 +165,23 @@ def format_profile(prof) -> str:
 def _meta(args) -> dict:
     return {
         "camera": args.camera, "lens": args.lens, "source": args.source, "wavelength_nm": args.wavelength,
-        "medium_index": args.medium_index, "recalibration_days": args.recal_days,
+        "medium_index": args.medium_index, "recalibration_days": _recal_days(args),
     }
+
+
+def _recal_days(args) -> int | None:
+    """The interval in days the profile keeps, from --recal-months (a month = 365.25/12 days) or the old
+    --recal-days."""
+    from ..errors import InputError
+
+    months, days = getattr(args, "recal_months", None), getattr(args, "recal_days", None)
+    if months is not None and days is not None:
+        raise InputError("give the re-calibration interval once: --recal-months MONTHS")
+    if months is not None:
+        if not 1 <= months <= 120:
+            raise InputError(f"re-calibration interval must be 1-120 months, got {months}")
+        return int(round(months * 365.25 / 12))
+    return days
 
 
 def run_add(args) -> int:
@@ -188,7 +211,7 @@ def run_edit(args) -> int:
     if args.source and args.wavelength:
         raise InputError("give either --source or --wavelength, not both")
     meta = _meta(args)
-    meta["notes"] = args.notes
+    meta["notes"] = args.note
     prof = P.update(args.name, **meta)
     if args.rename:
         prof = P.rename(args.name, args.rename)

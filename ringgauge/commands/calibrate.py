@@ -56,10 +56,17 @@ def register(sub) -> None:
     p.add_argument("--source", metavar="KEY", help="default light source of this bench (see 'ringgauge sources')")
     p.add_argument("--wavelength", type=float, metavar="NM", help="or a custom default wavelength, nm")
     p.add_argument("--medium-index", type=float, metavar="N", help="default gap medium index of this bench")
-    p.add_argument("--recal-days", type=int, metavar="DAYS",
-                   help="re-calibration interval of the profile, days (default 180)")
+    p.add_argument("--recal-months", type=int, metavar="MONTHS",
+                   help="re-calibration interval of the profile, months (default about 6: 180 days)")
+    p.add_argument("--recal-days", type=int, help=argparse.SUPPRESS)  # older name, in days; kept working
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.set_defaults(func=run)
+
+
+def _recal_days(args):
+    from .bench import _recal_days as days  # one conversion for 'bench' and 'calibrate'
+
+    return days(args)
 
 
 def _progress(msg: str, quiet: bool) -> None:
@@ -112,7 +119,7 @@ def run(args) -> int:
         entry = prof.calibration_entry(cal, operator=args.operator)
         saved = prof.record_calibration(
             args.bench, entry, camera=args.camera, lens=args.lens, source=args.source,
-            wavelength_nm=args.wavelength, medium_index=args.medium_index, recalibration_days=args.recal_days,
+            wavelength_nm=args.wavelength, medium_index=args.medium_index, recalibration_days=_recal_days(args),
         )
     if args.json:
         doc = {"calibration": cal.to_dict(), "bench": None if saved is None else saved.to_dict(),
@@ -122,7 +129,7 @@ def run(args) -> int:
     print(format_calibration(cal))
     if saved is not None:
         print(f"\nSaved as bench '{saved.name}' (calibrated {saved.calibrated}; recalibrate within "
-              f"{saved.recalibration_days} days) in {prof.store_path()}")
+              f"{saved.recalibration_days / (365.25 / 12):.0f} months) in {prof.store_path()}")
         src = saved.light_source()
         if src is not None and src.hazard:
             print(f"Safety: {src.hazard}")
@@ -147,11 +154,11 @@ def format_calibration(cal) -> str:
     k = cal.budget_x.k
     if cal.scale_y is None:
         lines.append(f"  pixel scale (x = y assumed): {format_value(cal.scale_x.value, k * cal.scale_x.u, 'µm/px')}"
-                     f"  (k = {k:.2g})")
+                     f"  (± U, k = {k:.2g})")
     else:
-        lines.append(f"  pixel scale x: {format_value(cal.scale_x.value, k * cal.scale_x.u, 'µm/px')}  (k = {k:.2g})")
+        lines.append(f"  pixel scale x: {format_value(cal.scale_x.value, k * cal.scale_x.u, 'µm/px')}  (± U, k = {k:.2g})")
         ky = cal.budget_y.k
-        lines.append(f"  pixel scale y: {format_value(cal.scale_y.value, ky * cal.scale_y.u, 'µm/px')}  (k = {ky:.2g})")
+        lines.append(f"  pixel scale y: {format_value(cal.scale_y.value, ky * cal.scale_y.u, 'µm/px')}  (± U, k = {ky:.2g})")
         d = cal.scale_x.value - cal.scale_y.value
         lines.append(f"  x - y: {format_value(d, 2 * cal.difference_u_um, 'µm/px')}  (k = 2)"
                      + ("  -> anisotropic" if cal.anisotropic else "  -> x and y agree"))
@@ -175,8 +182,8 @@ def format_calibration(cal) -> str:
         for r in b.rows:
             lines.append(f"    {r.quantity:30s} {r.estimate:>12.6g} {r.estimate_unit:>3s} {r.u:>10.3g} "
                          f"{r.distribution:>28s} {r.contribution:>12.3g} {100 * r.share:>5.1f}%")
-        lines.append(f"    {'combined standard uncertainty':30s} {b.u_c:>38.3g} µm/px; k = {b.k:.2g}, "
-                     f"U = {b.U:.2g} µm/px")
+        lines.append(f"    {'combined standard uncertainty u (k = 1)':40s} {b.u_c:>28.3g} µm/px; expanded "
+                     f"U = {b.U:.2g} µm/px (k = {b.k:.2g})")
     for w in cal.warnings:
         lines.append(f"  warning: {w}")
     return "\n".join(lines)

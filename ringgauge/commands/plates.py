@@ -6,6 +6,7 @@ import argparse
 import datetime as _dt
 
 from ..errors import InputError
+from ._help import ExampleFormatter
 
 
 def _float(text: str) -> float:
@@ -25,6 +26,7 @@ def register(sub) -> None:
     )
     act = p.add_subparsers(dest="plates_action", metavar="ACTION")
     a = act.add_parser("add", help="add a plate", description="Add a test plate to the register.",
+                       formatter_class=ExampleFormatter,
                        epilog="Example: ringgauge plates add TP-0412 --radius 51.68 --radius-u 0.002 --kind "
                        "concave --calibrated 2026-03-14 --diameter 40")
     a.add_argument("id", help="identifier engraved on the plate, e.g. TP-0412")
@@ -34,10 +36,13 @@ def register(sub) -> None:
     a.add_argument("--kind", choices=("convex", "concave", "flat"), required=True,
                    help="the plate's working surface (a convex plate tests concave parts)")
     a.add_argument("--calibrated", required=True, metavar="YYYY-MM-DD", help="date of the radius certificate")
-    a.add_argument("--interval", type=int, default=24, metavar="MONTHS",
-                   help="calibration interval in months (default 24)")
+    a.add_argument("--recal-months", dest="interval", type=int, default=24, metavar="MONTHS",
+                   help="re-calibration interval, months (default 24), as for bench profiles")
+    a.add_argument("--interval", dest="interval", type=int, help=argparse.SUPPRESS)  # older name, kept working
     a.add_argument("--diameter", type=_float, metavar="MM", help="plate diameter, mm")
-    a.add_argument("--note", default="", help="free text (certificate number, storage place)")
+    a.add_argument("--notes", dest="note", default="", metavar="TEXT",
+                   help="free text (certificate number, storage place)")
+    a.add_argument("--note", dest="note", help=argparse.SUPPRESS)  # older spelling, kept working
     ls = act.add_parser("list", help="list the plates", description="List the plates in the register.")
     ls.add_argument("--all", action="store_true", help="include retired plates")
     sh = act.add_parser("show", help="show one plate", description="Show one plate and its calibration state.")

@@ -131,8 +131,10 @@ def run_list(args) -> int:
     if not recs:
         print("no records match", file=sys.stderr)
         return 0
-    head = ("id", "measured (UTC)", "lot", "serial", "part", "verdict", "R ± U", "power ± U", "operator")
-    rows = [(str(r.id), r.created_utc[:16].replace("T", " "), r.meta.lot or "—", r.meta.serial or "—",
+    from ..report.text import local_time
+
+    head = ("id", "recorded (local)", "lot", "serial", "part", "verdict", "R ± U", "power ± U", "operator")
+    rows = [(str(r.id), local_time(r.created_utc), r.meta.lot or "—", r.meta.serial or "—",
              r.meta.part or "—", _verdict(r), _pm(r.radius_mm, r.radius_U_mm, "mm"),
              _pm(r.power_fringes, r.power_U_fringes, "fringes"), r.meta.operator or "—") for r in recs]
     widths = [max(len(h), *(len(row[i]) for row in rows)) for i, h in enumerate(head)]
@@ -184,7 +186,9 @@ def run_show(args) -> int:
             f"λ = {_pm(s.get('wavelength_nm'), _k2(s.get('wavelength_u_nm')), 'nm')}",
             f"  pixel size      {_pixel_text(s)}, bench {s.get('bench') or '—'}"
             + (f", calibrated {s['bench_calibrated']}" if s.get("bench_calibrated") else ""),
-            f"  medium index    {_pm(s.get('medium_index'), _k2(s.get('medium_index_u')) or None, '')}",
+            f"  medium index    "
+            + (_pm(s.get('medium_index'), _k2(s.get('medium_index_u')), '').strip() if s.get('medium_index_u')
+               else f"{s.get('medium_index', 1.0):g} (taken as exact)"),
             f"  test plate      {json.dumps(s.get('test_plate'), ensure_ascii=False) if s.get('test_plate') else '—'}",
             f"  tolerance       {s.get('tolerance') or '—'}",
         ]

@@ -8,6 +8,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from ..errors import InputError
+from ._help import ExampleFormatter
 from ..sources import SOURCES, get_source
 
 
@@ -20,6 +21,7 @@ def register(sub) -> None:
             "integration, blur, uneven light, stray light, shot and read noise, quantisation, dust) and write it "
             "with a JSON file of the truth beside it."
         ),
+        formatter_class=ExampleFormatter,
         epilog="Example: ringgauge simulate --radius 1500 --source sodium-d --pixel-size 8 --out lens.png",
     )
     p.add_argument("--out", required=True, metavar="FILE.png", help="image file to write (PNG or TIFF)")

@@ -11,7 +11,7 @@ import argparse
 from ..errors import InputError
 from .sign import GAP_CHANGES, PRESS_CHOICES
 
-FORM_DESTS = ("test_diameter", "tolerance", "test_plate", "test_plate_radius", "press_test")
+FORM_DESTS = ("test_diameter", "tolerance", "test_plate", "test_plate_radius", "test_plate_kind", "press_test")
 
 
 def _pos_float(text: str) -> float:
@@ -51,9 +51,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                    help="the plate's certified radius, mm, when it is not in the register")
     g.add_argument("--test-plate-radius-u", type=_nonneg_float, metavar="MM", default=None,
                    help="its certified standard uncertainty (k = 1), mm")
-    g.add_argument("--test-plate-kind", choices=("convex", "concave"),
-                   help="the plate's working surface (a convex plate tests concave parts); needed for the "
-                   "surface radius from a hand-given plate radius")
+    g.add_argument("--test-plate-kind", choices=("convex", "concave", "flat"),
+                   help="the plate's working surface (a convex plate tests concave parts; a flat one tests "
+                   "flats, and needs no radius); needed for the surface radius from a hand-given plate radius")
     g.add_argument("--press-test", choices=PRESS_CHOICES,
                    help="what the rings did when the part was pressed gently at its centre: rings-spread "
                    "(outward: centre contact) or rings-shrink (inward: edge contact); gives the power's sign")
@@ -108,3 +108,10 @@ def setup_kwargs(args) -> tuple[dict, list[str]]:
         extras["mode"] = args.mode
     kw["extras"] = extras
     return kw, warnings
+        if getattr(args, "test_plate_kind", None) == "flat":
+            raise InputError("a flat test plate has no radius: drop --test-plate-radius, or give "
+                             "--test-plate-kind convex or concave")
+    elif getattr(args, "test_plate_kind", None) == "flat":
+        # a reference flat: form (power, irregularity) against it, no radius to compare
+        kw["test_plate"] = {"id": None, "radius_mm": None, "radius_u_mm": None, "kind": "flat",
+                            "calibrated": None, "due": None}

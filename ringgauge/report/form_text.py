@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from ..uncertainty import format_value
+from .labels import term_label
 
 _ROWS = (
     ("power_fringes", "power (sagitta deviation, A)"),
@@ -31,8 +32,11 @@ def _pm(v, u, unit, k):
     return format_value(v, None if u is None else k * u, unit)
 
 
-def format_form(d: dict) -> str:
-    """The fixed sections of the form report: set-up, aperture, form terms, sign, radius, verdict."""
+def format_form(d: dict, *, skip_warnings=()) -> str:
+    """The fixed sections of the form report: set-up, aperture, form terms, sign, radius, verdict.
+
+    ``skip_warnings``: warnings the caller prints itself (the whole result's list), left out here so that
+    none is printed twice."""
     k = d.get("k", 2.0)
     lam = d["wavelength_nm"]
     out = ["Surface form against a test plate (ISO 10110-5 terms)"]
@@ -100,12 +104,13 @@ def format_form(d: dict) -> str:
     tol = d.get("tolerance")
     if tol:
         out.append(f"Tolerance {tol['text']} (fringes of λ = {tol['wavelength_nm']:g} nm"
-                   f"{'' if tol['wavelength_stated'] else ', λ not stated: default'})")
+                   f"{'' if tol['wavelength_stated'] else ', λ not stated: default'}; U = expanded uncertainty, "
+                   f"k = {k:g})")
         for t in v.get("terms", []):
             U = "n/a" if t["U_fringes"] is None else f"{t['U_fringes']:.3f}"
             out.append(
-                f"  {t['term']:26s} measured {t['value_fringes']:.3f} fr (U {U}) vs limit {t['limit_fringes']:g} fr: "
-                f"{t['verdict']}"
+                f"  {term_label(t['term']):40s} measured {t['value_fringes']:.3f} fr (U {U}) vs limit "
+                f"{t['limit_fringes']:g} fr: {t['verdict']}"
             )
     out.append(f"  verdict: {_WORDS.get(v.get('overall'), v.get('overall'))}")
     if v.get("meaning"):
@@ -116,7 +121,9 @@ def format_form(d: dict) -> str:
     if d.get("notes"):
         out.append("")
         out.extend(f"  note: {n}" for n in d["notes"])
-    if d.get("warnings"):
+    skip = set(skip_warnings)
+    own = [w for w in d.get("warnings") or [] if w not in skip]
+    if own:
         out.append("")
-        out.extend(f"  ! {w}" for w in d["warnings"])
+        out.extend(f"  ! {w}" for w in own)
     return "\n".join(out)

@@ -7,6 +7,23 @@ import math
 from ..uncertainty import format_value, round_uncertainty
 
 
+def local_time(iso: str | None, *, seconds: bool = False) -> str:
+    """A stored UTC time stamp ("2026-12-02T13:05:09Z", "…+00:00") as local time a person reads:
+    "2026-12-02 14:05 CET". Anything that is not a time stamp comes back unchanged (never raises)."""
+    from datetime import datetime, timezone
+
+    if not iso:
+        return "—"
+    try:
+        t = datetime.fromisoformat(str(iso).strip().replace("Z", "+00:00"))
+    except ValueError:
+        return str(iso)
+    if t.tzinfo is None:
+        t = t.replace(tzinfo=timezone.utc)
+    t = t.astimezone()
+    return t.strftime("%Y-%m-%d %H:%M" + (":%S" if seconds else "") + " %Z").strip()
+
+
 def _num(v, fmt="{:.4g}"):
     return "n/a" if v is None else fmt.format(v)
 
@@ -25,8 +42,9 @@ def format_budget(b: dict) -> str:
         )
     dof = "∞" if b["dof_eff"] is None else ("over 1000" if b["dof_eff"] > 1000 else f"{b['dof_eff']:.0f}")
     lines.append(
-        f"  combined standard uncertainty u_c = {b['u_c']:.3g} {b['unit']}; effective degrees of freedom {dof}; "
-        f"k = {b['k']:.2f}; expanded U = {round_uncertainty(b['U']):.2g} {b['unit']} ({b['coverage']})"
+        f"  combined standard uncertainty u_c = {b['u_c']:.3g} {b['unit']} (k = 1); effective degrees of freedom "
+        f"{dof}; expanded uncertainty U = {round_uncertainty(b['U']):.2g} {b['unit']} (k = {b['k']:.2f}, "
+        f"{b['coverage']})"
     )
     return "\n".join(lines)
 
@@ -43,8 +61,10 @@ def format_result(d: dict) -> str:
     )
     px, py = st["pixel_size_um"]
     ux, uy = st["pixel_size_u_um"]
+    k_hdr = 2.0  # the set-up values in this header are printed as ± U with k = 2, as 'ringgauge calibrate' does
+
     def _scale(v, u):
-        return format_value(v, u, "µm/px") + " (k = 1)" if u else f"{v:g} µm/px (no uncertainty given)"
+        return format_value(v, k_hdr * u, "µm/px") if u else f"{v:g} µm/px (no uncertainty given)"
 
     scale = (
         _scale(px, ux)
@@ -53,22 +73,24 @@ def format_result(d: dict) -> str:
     )
     bench = f" (bench profile '{st['bench']}', calibrated {st['bench_calibrated']})" if st.get("bench") else ""
     out.append(
-        f"  source {st['source']['name']}: λ = {st['wavelength_nm']:.4f} nm (u {st['wavelength_u_nm']:.2g} nm); "
+        f"  source {st['source']['name']}: λ = {st['wavelength_nm']:.4f} nm (U {k_hdr * st['wavelength_u_nm']:.2g} nm); "
         f"pixel scale {scale}{bench}; gap medium n = {st['medium_index']:g}"
     )
+    out.append(f"  (± and U here are expanded uncertainties, k = {k_hdr:g}; u is a standard uncertainty, k = 1)")
     if d.get("radius_mm") is not None:
         fr = d["fringes"]
         out.append("")
         out.append("Radius of curvature (lens on optical flat, Newton's rings)")
         out.append(
-            f"  R = {format_value(d['radius_mm'], d['radius_U_mm'], 'mm')}  (expanded, k = {d['k']:.2f}); "
-            f"standard uncertainty u = {d['radius_u_mm']:.3g} mm "
-            f"({1e6 * d['radius_u_mm'] / d['radius_mm']:.0f} ppm)"
+            f"  R = {format_value(d['radius_mm'], d['radius_U_mm'], 'mm')}  (± expanded uncertainty U, "
+            f"k = {d['k']:.2f}); standard uncertainty u = {d['radius_u_mm']:.3g} mm (k = 1, "
+            f"{1e6 * d['radius_u_mm'] / d['radius_mm']:.0f} ppm)"
         )
         cx, cy = d["centre_px"]
         ux_, uy_ = d["centre_u_px"]
         out.append(
-            f"  ring centre (x, y) = ({cx:.3f} ± {ux_:.1g}, {cy:.3f} ± {uy_:.1g}) px  [x = column, y = row, k = 1]"
+            f"  ring centre (x, y) = ({cx:.3f} ± {d['k'] * ux_:.1g}, {cy:.3f} ± {d['k'] * uy_:.1g}) px  "
+            f"[x = column, y = row; ± U, k = {d['k']:g}]"
         )
         out.append("")
         out.append(
@@ -78,9 +100,9 @@ def format_result(d: dict) -> str:
         conv = "r² = m·λR/n" if st["fringe_kind"] == "dark" else "r² = (m − ½)·λR/n"
         out.append(f"  convention: {st['fringe_kind']} rings in reflection, {conv}")
         out.append(
-            f"  slope {fr['slope_mm2_per_fringe']:.6g} ± {fr['slope_u_mm2_per_fringe']:.2g} mm²/fringe; intercept "
-            f"{fr['intercept_mm2']:.4g} ± {fr['intercept_u_mm2']:.2g} mm² (contact offset "
-            f"{fr['contact_offset_fringes']:.2f} fringe, modulo whole fringes)"
+            f"  slope {fr['slope_mm2_per_fringe']:.6g} mm²/fringe (u {fr['slope_u_mm2_per_fringe']:.2g}); intercept "
+            f"{fr['intercept_mm2']:.4g} mm² (u {fr['intercept_u_mm2']:.2g}) (contact offset "
+            f"{fr['contact_offset_fringes']:.2f} fringe, modulo whole fringes; u = standard uncertainty, k = 1)"
         )
         out.append(f"  reduced chi-square {fr['redchi']:.3g} ({fr['ndata']} rings, 2 parameters)")
         rings = fr["rings"]
@@ -111,7 +133,8 @@ def format_result(d: dict) -> str:
             out.append(json.dumps(d["form"], indent=2))
         else:
             out.append("")
-            out.append(format_form(d["form"]))
+            # the form's warnings are among the result's own, printed once under "Warnings" below
+            out.append(format_form(d["form"], skip_warnings=d.get("warnings") or ()))
     if d.get("warnings"):
         out.append("")
         out.append("Warnings")
