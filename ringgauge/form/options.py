@@ -92,6 +92,9 @@ def setup_kwargs(args) -> tuple[dict, list[str]]:
         kw["test_plate"] = pl.setup_dict()
         warnings += plate_warnings(pl)
     elif radius is not None:
+        if getattr(args, "test_plate_kind", None) == "flat":
+            raise InputError("a flat test plate has no radius: drop --test-plate-radius, or give "
+                             "--test-plate-kind convex or concave")
         u = getattr(args, "test_plate_radius_u", None)
         if u is None:
             warnings.append("test plate radius given without its certified uncertainty (--test-plate-radius-u): "
@@ -101,6 +104,10 @@ def setup_kwargs(args) -> tuple[dict, list[str]]:
                             "kind": getattr(args, "test_plate_kind", None), "calibrated": None, "due": None}
     elif getattr(args, "test_plate_radius_u", None) is not None:
         raise InputError("--test-plate-radius-u needs --test-plate-radius")
+    elif getattr(args, "test_plate_kind", None) == "flat":
+        # a reference flat: form (power, irregularity) against it, no radius to compare
+        kw["test_plate"] = {"id": None, "radius_mm": None, "radius_u_mm": None, "kind": "flat",
+                            "calibrated": None, "due": None}
     if getattr(args, "press_test", None):
         kw["press_test"] = args.press_test
     extras = {"gap_change": getattr(args, "gap_change", None) or "increasing"}
@@ -108,10 +115,3 @@ def setup_kwargs(args) -> tuple[dict, list[str]]:
         extras["mode"] = args.mode
     kw["extras"] = extras
     return kw, warnings
-        if getattr(args, "test_plate_kind", None) == "flat":
-            raise InputError("a flat test plate has no radius: drop --test-plate-radius, or give "
-                             "--test-plate-kind convex or concave")
-    elif getattr(args, "test_plate_kind", None) == "flat":
-        # a reference flat: form (power, irregularity) against it, no radius to compare
-        kw["test_plate"] = {"id": None, "radius_mm": None, "radius_u_mm": None, "kind": "flat",
-                            "calibrated": None, "due": None}
