@@ -109,6 +109,7 @@ def register(sub) -> None:
             "gives the radius of curvature with its uncertainty budget; with a test diameter, tolerance or test "
             "plate (or several frames with a changed gap) the surface form against a test plate is evaluated."
         ),
+        formatter_class=ExampleFormatter,
         epilog="Example: ringgauge analyze lens.png --source sodium-d --pixel-size 10 --pixel-size-u 0.01",
     )
     p.add_argument("images", nargs="+", metavar="IMAGE", help="image file(s): PNG, TIFF or JPEG, 8 or 16 bit")
@@ -120,7 +121,6 @@ def register(sub) -> None:
     if _has("ringgauge.records"):
         from . import _records_common as rc
 
-        formatter_class=ExampleFormatter,
         r = p.add_argument_group("keeping the result")
         r.add_argument(
             "--record", action="store_true",
