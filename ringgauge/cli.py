@@ -26,8 +26,26 @@ COMMANDS = (
     "records",
     "certificate",
     "gui",
+    "watch",
     "sources",
 )
+
+
+#: exit statuses of every command (printed by ``ringgauge --help``; the README lists the same)
+EXIT_CODES = (
+    (0, "success (for checks: everything verified)"),
+    (1, "a check found a problem: an altered record ('records check'), a document that did not verify"),
+    (2, "unusable input: a missing or unreadable file, a bad option or value (usage errors too)"),
+    (3, "no trustworthy measurement could be made from the image(s), or no usable calibration"),
+    (4, "the records store cannot be opened or written"),
+    (5, "out of memory"),
+    (70, "internal error (a bug): one line on the terminal, details in crash.log in the settings folder"),
+    (130, "interrupted (Ctrl+C); work already recorded is kept"),
+)
+
+
+def _exit_codes_text() -> str:
+    return "exit status:\n" + "\n".join(f"  {code:<4d} {what}" for code, what in EXIT_CODES)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -41,9 +59,11 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(
         prog="ringgauge",
         description=(
-            "Lens metrology with interference rings: radius of curvature from Newton's rings on an optical "
+            "Lens metrology with interference rings: radius of curvature from Newton's rings on an optical\n"
             "flat, surface form against a test plate (ISO 10110-5), uncertainty budgets, records, certificates."
         ),
+        epilog=_exit_codes_text(),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"ringgauge {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)

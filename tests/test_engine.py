@@ -217,6 +217,15 @@ def test_monte_carlo_coverage_of_the_reported_uncertainty():
     z = np.abs(np.array(z))
     within1 = float(np.mean(z <= 1))
     within3 = float(np.mean(z <= 3))
-    print(f"coverage: {within1:.2f} within 1u, {within3:.2f} within 3u, max |z| {z.max():.2f}")
+    mean_z2, median_z = float(np.mean(z**2)), float(np.median(z))
+    print(f"coverage: {within1:.2f} within 1u, {within3:.2f} within 3u, mean z² {mean_z2:.2f}, median |z| "
+          f"{median_z:.2f}, max |z| {z.max():.2f}")
+    # Two-sided: an overstated u is as wrong as an understated one. For a normal z, 68.3 % lie within 1u, E[z²] = 1
+    # and the median |z| is 0.674 (JCGM 100:2008 G.1; normal-distribution facts). The bounds allow for 30 runs:
+    # the binomial spread of the share (±0.085 at 1 sigma), chi-square/30 for mean z² (0.5 % quantile 0.46), and
+    # the sample median's spread (about ±0.15). Measured here: 0.60, 1.48, 0.81; with the Type A row 1.8 times too
+    # large they become 0.87, 0.47, 0.46.
     assert within3 >= 0.9
-    assert 0.45 <= within1 <= 0.95
+    assert 0.45 <= within1 <= 0.85
+    assert 0.5 <= mean_z2 <= 3.0
+    assert 0.5 <= median_z <= 1.0
