@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import sys
 from dataclasses import replace
 from pathlib import Path
 
@@ -24,7 +25,7 @@ def register(sub) -> None:
         formatter_class=ExampleFormatter,
         epilog="Example: ringgauge simulate --radius 1500 --source sodium-d --pixel-size 8 --out lens.png",
     )
-    p.add_argument("--out", required=True, metavar="FILE.png", help="image file to write (PNG or TIFF)")
+    p.add_argument("--out", required=True, metavar="FILE.png", help="image file to write (PNG or TIFF); with --sequence a .avi video or a folder")
     p.add_argument("--kind", choices=("rings", "test-plate"), default="rings",
                    help="rings: lens on an optical flat (default); test-plate: a few fringes over the part")
     p.add_argument("--source", default="sodium-d", help=f"lamp: {', '.join(SOURCES)}")
@@ -54,7 +55,56 @@ def register(sub) -> None:
     g.add_argument("--aperture", type=float, default=20.0, metavar="MM", help="part diameter, mm (default 20)")
     g.add_argument("--frames", type=int, default=1, help="frames with the gap stepped between them (sign)")
     g.add_argument("--gap-step", type=float, default=0.125, metavar="FRINGES", help="gap step between frames")
+    g = p.add_argument_group(
+        "a bench sequence (--sequence): the part settling, resting, pressed gently and released",
+        "Writes a video (--out NAME.avi, MJPG) or numbered frames (--out FOLDER) with NAME.truth.json / "
+        "FOLDER/truth.json: the gap of every frame, the events and the sign a correct reading gives. Uses "
+        "--radius, --source, --pixel-size, --width/--height, --blur, --falloff, --stray, --seed.",
+    )
+    g.add_argument("--sequence", action="store_true", help="write a sequence instead of one image")
+    g.add_argument("--contact", choices=("centre", "edge"), default="centre",
+                   help="centre contact (the gap grows outward, power +) or edge contact (gap widest in the "
+                   "middle, power −)")
+    g.add_argument("--fps", type=float, default=25.0, help="frame rate of the video, frames/s (default 25)")
+    g.add_argument("--settle-frames", type=int, default=40, metavar="N", help="frames of settling (default 40)")
+    g.add_argument("--rest-frames", type=int, default=15, metavar="N", help="still frames after settling (15)")
+    g.add_argument("--press-frames", type=int, default=16, metavar="N", help="frames of the press and release (16)")
+    g.add_argument("--after-frames", type=int, default=12, metavar="N", help="still frames at the end (12)")
+    g.add_argument("--start-gap", type=float, default=1200.0, metavar="NM", help="uniform gap at the start, nm")
+    g.add_argument("--rest-gap", type=float, default=300.0, metavar="NM", help="uniform gap once settled, nm")
+    g.add_argument("--press-depth", type=float, default=250.0, metavar="NM", help="gap closed by the press, nm")
     p.set_defaults(func=run)
+
+
+def _run_sequence(args: argparse.Namespace, src, cam, light) -> int:
+    from ..live.sequence import SequencePlan, write_sequence
+
+    counts = (args.settle_frames, args.rest_frames, args.press_frames, args.after_frames)
+    if min(counts) < 0 or args.settle_frames < 2 or sum(counts) > 5000:
+        raise InputError("frame counts must be non-negative, settling at least 2 frames, at most 5000 in all")
+    if not 0 < args.fps <= 1000:
+        raise InputError("--fps must lie between 0 and 1000 frames/s")
+    if args.start_gap < args.rest_gap or args.rest_gap < 0 or not 0 <= args.press_depth <= args.rest_gap:
+        raise InputError("gaps must satisfy start ≥ rest ≥ press depth ≥ 0 (nm): the part never touches harder "
+                         "than the rest gap allows")
+    if args.bits != 8:
+        raise InputError("sequences are written with 8-bit frames (drop --bits)")
+    plan = SequencePlan(
+        radius_mm=args.radius, contact=args.contact, settle_frames=args.settle_frames, rest_frames=args.rest_frames,
+        press_frames=args.press_frames, after_frames=args.after_frames, start_gap_nm=args.start_gap,
+        rest_gap_nm=args.rest_gap, press_depth_nm=args.press_depth, fps=args.fps,
+    )
+    progress = None
+    if sys.stderr.isatty():
+        def progress(frac: float, msg: str) -> None:
+            print(f"\r  {100 * frac:3.0f}%  {msg:<30s}", end="", file=sys.stderr, flush=True)
+    out, truth = write_sequence(args.out, plan, source=src, camera=cam, lighting=light,
+                                medium_index=args.medium_index, noise=not args.no_noise, rng=args.seed,
+                                progress=progress)
+    if progress:
+        print("\r" + " " * 40 + "\r", end="", file=sys.stderr)
+    print(f"wrote {out} ({plan.n_frames} frames at {plan.fps:g} frames/s; truth in {truth})")
+    return 0
 
 
 def run(args: argparse.Namespace) -> int:
@@ -71,6 +121,8 @@ def run(args: argparse.Namespace) -> int:
         full_well_e=args.full_well,
     )
     light = synth.Lighting(falloff=args.falloff, stray=args.stray)
+    if args.sequence:
+        return _run_sequence(args, src, cam, light)
     dust = synth.Dust(count=args.dust)
     out = Path(args.out)
     if not out.parent.exists():
