@@ -7,7 +7,18 @@ written.
 
 Records are never edited or deleted. A correction is a new record that names the record it supersedes and
 why; the old one stays, and listings show only the current end of each chain unless asked for history.
-The schema carries its version; :data:`MIGRATIONS` brings an older store up to date when it is opened.
+The schema carries its version; :data:`MIGRATIONS` brings an older store up to date when it is opened, and a
+store newer than this ringgauge is refused.
+
+Tamper evidence (schema 3). Triggers refuse UPDATE, DELETE and (SQLite) an INSERT that would replace a row,
+but someone with the database file or the owner's login can drop them. So every row written also gets an
+entry in the ``chain`` table, in the same transaction: the SHA-256 of the whole stored row, the hash of the
+previous entry, and an HMAC-SHA256 of both made with the shop's records key (:mod:`.keys`, a secret file in the
+ringgauge folder). :meth:`Store.check` walks the chain and names every altered, deleted, inserted or
+reordered row, every forged or missing entry, damaged JSON, and missing or disabled triggers; the ringgauge
+folder also keeps the last chain head each computer wrote (``chain-heads.json``), so cutting records off the
+end of the chain is found too. On opening, a store whose append-only triggers are missing or disabled is
+read-only until its owner repairs it.
 """
 
 from __future__ import annotations
@@ -18,13 +29,14 @@ import os
 import sqlite3
 import uuid
 from contextlib import contextmanager
-from dataclasses import asdict, dataclass, fields, replace
+from dataclasses import asdict, dataclass, field, fields, replace
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Iterator
 
 from .. import __version__
-from ..errors import InputError, StoreError
+from ..errors import InputError, RinggaugeError as RinggaugeErrorBase, StoreError
+from . import keys as _keys
 
 DEFAULT_STORE_NAME = "records.sqlite"
 
@@ -105,6 +117,14 @@ class InspectionRecord:
     superseded_by: int | None = None
     #: False when read without the full result (listings): ``result`` is then None even for a good record
     has_result: bool = True
+    #: where the result came from: "measured" (ringgauge analysed the image), "re-analysed" (a correction
+    #: measured again), "sealed result" (a result file ringgauge wrote and sealed), "manual" (typed by hand);
+    #: None for records written before origins were kept
+    origin: str | None = None
+
+    @property
+    def manual(self) -> bool:
+        return self.origin == "manual"
 
     @property
     def current(self) -> bool:
@@ -114,7 +134,7 @@ class InspectionRecord:
         """The fields the record checksum covers (everything but the database id and the chain link back)."""
         return _content(self.uid, self.created_utc, self.status, self.meta, self.software_version,
                         self.image_name, self.image_path, self.image_sha256, self.setup, self.result,
-                        self.failure_reason, self.supersedes, self.supersede_reason)
+                        self.failure_reason, self.supersedes, self.supersede_reason, self.origin)
 
     def intact(self) -> bool:
         """True when the stored fields still give the checksum written with them, and the searchable copies
@@ -148,6 +168,7 @@ class InspectionRecord:
             "supersede_reason": self.supersede_reason,
             "superseded_by": self.superseded_by,
             "content_sha256": self.content_sha256,
+            "origin": self.origin,
             "setup": self.setup,
         }
         if with_result:
@@ -187,8 +208,8 @@ class RecordFilter:
 
 
 def _content(uid, created, status, meta, version, image_name, image_path, sha, setup, result, failure,
-             supersedes, reason) -> dict:
-    return {
+             supersedes, reason, origin=None) -> dict:
+    out = {
         "uid": uid,
         "created_utc": created,
         "status": status,
@@ -203,6 +224,9 @@ def _content(uid, created, status, meta, version, image_name, image_path, sha, s
         "supersedes": supersedes,
         "supersede_reason": reason,
     }
+    if origin is not None:  # records from before origins were kept keep their checksum
+        out["origin"] = origin
+    return out
 
 
 # ----------------------------------------------------------------------------------------------- dialects
@@ -221,10 +245,31 @@ class _Dialect:
     def lock_key(self, cur, key: str) -> None:
         """Serialise writers that check-then-insert on the same key (a lot)."""
 
+    def no_replace(self, table: str, unique: tuple[str, ...]) -> list[str]:
+        """Statements refusing an INSERT that would take the place of an existing row (none needed)."""
+        return []
+
+    def guards(self, table: str, version: int = 99) -> list[str]:
+        """Names of the triggers that keep ``table`` append-only (in a store of schema ``version``)."""
+        raise NotImplementedError
+
 
 class _SQLite(_Dialect):
     name = "sqlite"
     identity = "INTEGER PRIMARY KEY AUTOINCREMENT"
+
+    def no_replace(self, table: str, unique: tuple[str, ...]) -> list[str]:
+        # REPLACE INTO / INSERT OR REPLACE delete the clashing row first; SQLite fires delete triggers for that
+        # only with recursive_triggers on, which a hand-opened connection does not set. A BEFORE INSERT
+        # trigger runs before the conflict is resolved, so it refuses the clash on any connection.
+        clash = " OR ".join(f"{c} = NEW.{c}" for c in unique)
+        return [f"CREATE TRIGGER {table}_no_replace BEFORE INSERT ON {table} "
+                f"WHEN EXISTS (SELECT 1 FROM {table} WHERE {clash}) "
+                f"BEGIN SELECT RAISE(ABORT, 'append-only: {table} rows cannot be replaced'); END"]
+
+    def guards(self, table: str, version: int = 99) -> list[str]:
+        return [f"{table}_no_update", f"{table}_no_delete"] + \
+            ([f"{table}_no_replace"] if table in _NO_REPLACE and version >= 3 else [])
 
     def append_only(self, table: str) -> list[str]:
         return [
@@ -254,6 +299,9 @@ class _Postgres(_Dialect):
 
     def lock_key(self, cur, key: str) -> None:
         cur.execute("SELECT pg_advisory_xact_lock(hashtext(%s))", (key,))
+
+    def guards(self, table: str, version: int = 99) -> list[str]:
+        return [f"{table}_append_only", f"{table}_no_truncate"]
 
 
 # --------------------------------------------------------------------------------------------- migrations
@@ -308,10 +356,52 @@ def _m2(d: _Dialect) -> list[str]:
     ]
 
 
+#: tables whose rows are chained, with the columns an INSERT must not clash on (SQLite REPLACE guard)
+_NO_REPLACE = {"inspection": ("id", "uid"), "issued_document": ("id", "number"), "issued_file": ("id",),
+               "chain": ("seq",), "store_info": ("name",)}
+CHAINED = ("inspection", "issued_document", "issued_file")
+GENESIS = "0" * 64
+
+
+def _m3(d: _Dialect) -> list[str]:
+    out = [
+        "ALTER TABLE inspection ADD COLUMN origin TEXT",
+        f"""CREATE TABLE issued_file (
+            id {d.identity},
+            number TEXT NOT NULL REFERENCES issued_document(number),
+            file_sha256 TEXT NOT NULL,
+            signed INTEGER NOT NULL,
+            signer TEXT,
+            written_utc TEXT NOT NULL
+        )""",
+        "CREATE INDEX issued_file_number ON issued_file (number)",
+        """CREATE TABLE chain (
+            seq BIGINT PRIMARY KEY,
+            tbl TEXT NOT NULL,
+            row_id BIGINT NOT NULL,
+            row_hash TEXT NOT NULL,
+            prev_hash TEXT NOT NULL,
+            entry_hash TEXT NOT NULL,
+            key_id TEXT NOT NULL,
+            mac TEXT NOT NULL,
+            legacy INTEGER NOT NULL,
+            created_utc TEXT NOT NULL,
+            UNIQUE (tbl, row_id)
+        )""",
+        "CREATE TABLE store_info (name TEXT PRIMARY KEY, value TEXT NOT NULL)",
+    ]
+    for t in ("issued_file", "chain", "store_info"):
+        out += d.append_only(t)
+    for t in ("inspection", "issued_document", "issued_file", "chain", "store_info"):
+        out += d.no_replace(t, _NO_REPLACE[t])
+    return out
+
+
 #: (version, what it does, statements for a dialect); append new ones, never edit old ones
 MIGRATIONS = (
     (1, "inspection records (append-only, supersede chains)", _m1),
     (2, "issued certificates and lot reports (append-only)", _m2),
+    (3, "hash chain sealed with the shop's records key; record origins; issued files; REPLACE refused", _m3),
 )
 SCHEMA_VERSION = MIGRATIONS[-1][0]
 
@@ -368,11 +458,15 @@ def open_store(target: str | os.PathLike | None = None, *, migrate_to: int | Non
             conn.execute("PRAGMA journal_mode=WAL")
             conn.execute("PRAGMA synchronous=FULL")
             conn.execute("PRAGMA foreign_keys=ON")
+            # a REPLACE's implicit delete then meets the delete trigger on this connection too
+            conn.execute("PRAGMA recursive_triggers=ON")
         except sqlite3.DatabaseError as exc:
             raise StoreError(f"{p} is not a ringgauge records store ({exc})") from None
         store = Store(conn, _SQLite(), str(p))
     try:
         store._migrate(migrate_to)
+        store._version = store.schema_version()
+        store._check_guards()
     except BaseException:
         store.close()
         raise
@@ -386,6 +480,10 @@ class Store:
         self._conn = conn
         self._d = dialect
         self.where = where
+        #: why this store may not be written (missing or disabled append-only triggers), or None
+        self.write_refusal: str | None = None
+        self._head: tuple[int, str] | None = None
+        self._version = SCHEMA_VERSION
 
     # -- plumbing
     @property
@@ -449,34 +547,271 @@ class Store:
             raise StoreError(f"records store {self.where}: {msg}") from None
 
     # -- schema
+    def _table_exists(self, name: str) -> bool:
+        if self._d.name == "sqlite":
+            rows = self._read("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = ?", (name,))
+        else:
+            rows = self._read("SELECT 1 FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace "
+                              "WHERE c.relname = ? AND n.nspname = current_schema() AND c.relkind = 'r'", (name,))
+        return bool(rows)
+
     def schema_version(self) -> int:
+        if not self._table_exists("schema_migration"):
+            return 0
         rows = self._read("SELECT MAX(version) FROM schema_migration")
         return int(rows[0][0] or 0)
 
     def _migrate(self, upto: int | None) -> None:
         target = SCHEMA_VERSION if upto is None else upto
-        with self._tx() as cur:
-            self._d.lock_key(cur, "ringgauge schema")
-            self._q(cur, "CREATE TABLE IF NOT EXISTS schema_migration (version INTEGER PRIMARY KEY, "
-                         "description TEXT NOT NULL, applied_utc TEXT NOT NULL)")
-            have = self._q(cur, "SELECT MAX(version) FROM schema_migration").fetchone()[0] or 0
+        have = self.schema_version()  # read first: a bench login may read but not create tables
         if have > SCHEMA_VERSION:
             raise StoreError(
                 f"records store {self.where} has schema version {have}, newer than this ringgauge "
                 f"({__version__}, schema {SCHEMA_VERSION}); upgrade ringgauge"
             )
-        for version, what, make in MIGRATIONS:
-            if version > target:
-                break
+        if have >= target:
+            return
+        try:
             with self._tx() as cur:
                 self._d.lock_key(cur, "ringgauge schema")
-                done = self._q(cur, "SELECT 1 FROM schema_migration WHERE version = ?", (version,)).fetchone()
-                if done:
-                    continue
-                for stmt in make(self._d):
-                    cur.execute(stmt)
-                self._q(cur, "INSERT INTO schema_migration (version, description, applied_utc) VALUES (?, ?, ?)",
-                        (version, what, utc_now()))
+                self._q(cur, "CREATE TABLE IF NOT EXISTS schema_migration (version INTEGER PRIMARY KEY, "
+                             "description TEXT NOT NULL, applied_utc TEXT NOT NULL)")
+            for version, what, make in MIGRATIONS:
+                if version > target:
+                    break
+                with self._tx() as cur:
+                    self._d.lock_key(cur, "ringgauge schema")
+                    done = self._q(cur, "SELECT 1 FROM schema_migration WHERE version = ?", (version,)).fetchone()
+                    if done:
+                        continue
+                    for stmt in make(self._d):
+                        cur.execute(stmt)
+                    if version == 3:
+                        self._q(cur, "INSERT INTO store_info (name, value) VALUES ('store_uid', ?)",
+                                (str(uuid.uuid4()),))
+                        self._seal_legacy(cur)
+                    self._q(cur, "INSERT INTO schema_migration (version, description, applied_utc) "
+                                 "VALUES (?, ?, ?)", (version, what, utc_now()))
+        except StoreError as exc:
+            if "permission denied" in str(exc) or "must be owner" in str(exc):
+                raise StoreError(f"records store {self.where} needs its schema brought to version {target} "
+                                 "and this login may not change tables; ask the store's owner to run "
+                                 "'ringgauge records init-server'") from None
+            raise
+        self._save_head()
+
+    def _seal_legacy(self, cur) -> None:
+        """Chain the rows written before the chain existed (marked legacy: edits before today are not provable)."""
+        for table in ("inspection", "issued_document"):
+            for (rid,) in self._q(cur, f"SELECT id FROM {table} ORDER BY id").fetchall():
+                self._chain(cur, table, int(rid), legacy=True)
+
+    def _check_guards(self) -> None:
+        """Refuse writes (not reads) when an append-only trigger is missing or disabled."""
+        problems = self.guard_problems()
+        if problems:
+            self.write_refusal = (f"records store {self.where} is not protected ({problems[0]}); writing refused "
+                                  "until its owner restores it with 'ringgauge records init-server' and runs "
+                                  "'ringgauge records check'")
+
+    def guard_problems(self) -> list[str]:
+        """Each append-only trigger that is missing or disabled, in words."""
+        tables = [t for t in ("inspection", "issued_document", "issued_file", "chain", "store_info")
+                  if self._table_exists(t)]
+        out = []
+        for t in tables:
+            want = self._d.guards(t, self._version)
+            if self._d.name == "sqlite":
+                have = {r[0]: "O" for r in self._read(
+                    "SELECT name FROM sqlite_master WHERE type = 'trigger' AND tbl_name = ?", (t,))}
+            else:
+                have = {r[0]: r[1] for r in self._read(
+                    "SELECT t.tgname, t.tgenabled FROM pg_trigger t JOIN pg_class c ON c.oid = t.tgrelid "
+                    "JOIN pg_namespace n ON n.oid = c.relnamespace WHERE c.relname = ? "
+                    "AND n.nspname = current_schema() AND NOT t.tgisinternal", (t,))}
+            for g in want:
+                state = have.get(g)
+                if isinstance(state, bytes):
+                    state = state.decode()
+                if state is None:
+                    out.append(f"append-only trigger {g} on {t} is missing")
+                elif state not in ("O", "A"):
+                    out.append(f"append-only trigger {g} on {t} is disabled")
+        return out
+
+    # -- the chain
+    def _store_info(self, cur=None) -> dict:
+        if not self._table_exists("store_info"):
+            return {}
+        sql = "SELECT name, value FROM store_info"
+        rows = self._q(cur, sql).fetchall() if cur is not None else self._read(sql)
+        return {r[0]: r[1] for r in rows}
+
+    def _write_key(self, cur) -> bytes:
+        """The records key for a write, checked against the key the store was sealed with."""
+        if self.write_refusal:
+            raise StoreError(self.write_refusal)
+        info = self._store_info(cur)
+        want = info.get("key_id")
+        if want is None:
+            key = _keys.load_key(create=True)
+            self._q(cur, "INSERT INTO store_info (name, value) VALUES ('key_id', ?)", (_keys.key_id(key),))
+            return key
+        key = _keys.load_key()
+        if key is None:
+            raise StoreError(f"records store {self.where} is sealed with records key {want}, and this ringgauge "
+                             f"folder has none ({_keys.key_path()}); copy the shop's records.key there "
+                             "(owner-only permissions) before writing")
+        if _keys.key_id(key) != want:
+            raise StoreError(f"records store {self.where} is sealed with records key {want}, but "
+                             f"{_keys.key_path()} is key {_keys.key_id(key)}; copy the shop's records.key there")
+        return key
+
+    def _row(self, cur, table: str, row_id: int) -> dict | None:
+        c = self._q(cur, f"SELECT * FROM {table} WHERE id = ?", (row_id,))
+        r = c.fetchone()
+        if r is None:
+            return None
+        return {d[0].lower(): v for d, v in zip(c.description, r)}
+
+    def _chain(self, cur, table: str, row_id: int, *, legacy: bool = False) -> None:
+        """Append the chain entry of a row just written (same transaction)."""
+        key = self._write_key(cur)
+        self._d.lock_key(cur, "ringgauge chain")
+        row = self._row(cur, table, row_id)
+        rh = row_hash(table, row)
+        last = self._q(cur, "SELECT seq, entry_hash FROM chain ORDER BY seq DESC LIMIT 1").fetchone()
+        seq = int(last[0]) + 1 if last else 1
+        prev = last[1] if last else GENESIS
+        eh = entry_hash(seq, table, row_id, rh, prev)
+        self._q(cur, "INSERT INTO chain (seq, tbl, row_id, row_hash, prev_hash, entry_hash, key_id, mac, legacy, "
+                     "created_utc) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (seq, table, row_id, rh, prev, eh, _keys.key_id(key), _keys.mac(key, eh), int(legacy), utc_now()))
+        self._head = (seq, eh)
+
+    def _save_head(self) -> None:
+        """Remember, in this computer's ringgauge folder, the last chain entry it wrote to this store."""
+        if self._head is None:
+            return
+        seq, eh = self._head
+        self._head = None
+        try:
+            uid = self._store_info().get("store_uid")
+            if not uid:
+                return
+            from ..settings import locked, path, read_json, write_json_atomic
+
+            p = path(HEADS_FILE)
+            with locked(p):
+                heads = read_json(p, what="chain heads file", missing={})
+                if not isinstance(heads, dict):
+                    heads = {}
+                old = heads.get(uid) or {}
+                if not isinstance(old, dict) or int(old.get("seq") or 0) < seq:
+                    heads[uid] = {"seq": seq, "entry_hash": eh, "store": self.where, "utc": utc_now()}
+                    write_json_atomic(p, heads, what="chain heads file")
+        except Exception:  # noqa: BLE001 - the record is committed; a lost head only weakens the tail check
+            pass
+
+    def check(self) -> "CheckReport":
+        """Walk the chain and every row; name each altered, deleted, inserted, reordered or forged one."""
+        rep = CheckReport(self.where)
+        for g in self.guard_problems():
+            rep.add(None, None, "UNPROTECTED", g)
+        if not self._table_exists("chain"):
+            rep.notes.append(f"schema {self.schema_version()}: no hash chain yet (open with this ringgauge to add it)")
+        info = self._store_info()
+        key = _keys.load_key()
+        want = info.get("key_id")
+        if key is None and want:
+            rep.add(None, None, "UNVERIFIABLE", f"no records key in this ringgauge folder ({_keys.key_path()}); "
+                    f"the seals (key {want}) cannot be checked")
+        elif key is not None and want and _keys.key_id(key) != want:
+            rep.add(None, None, "UNVERIFIABLE", f"this ringgauge folder's records key {_keys.key_id(key)} is not "
+                    f"the store's key {want}; the seals cannot be checked")
+            key = None
+        entries = self._read("SELECT seq, tbl, row_id, row_hash, prev_hash, entry_hash, key_id, mac, legacy "
+                             "FROM chain ORDER BY seq") if self._table_exists("chain") else []
+        rep.entries = len(entries)
+        expect, prev = 1, GENESIS
+        by_row: dict[tuple[str, int], tuple] = {}
+        last_id: dict[str, int] = {}
+        legacy = 0
+        for seq, tbl, rid, rh, ph, eh, kid, mac, leg in entries:
+            seq, rid = int(seq), int(rid)
+            legacy += bool(leg)
+            if seq != expect:
+                rep.add(None, None, "MISSING", f"chain entries {expect}–{seq - 1} are missing (rows and their "
+                        "entries were removed)" if seq > expect + 1 else f"chain entry {expect} is missing")
+            elif ph != prev:
+                rep.add(None, None, "BROKEN LINK", f"chain entry {seq} does not follow entry {seq - 1} "
+                        "(an entry was inserted, replaced or reordered)")
+            if entry_hash(seq, tbl, rid, rh, ph) != eh:
+                rep.add(tbl, rid, "FORGED", f"chain entry {seq} was altered (its hash does not match its fields)")
+            elif key is not None and not _keys.mac_ok(key, eh, mac):
+                rep.add(tbl, rid, "FORGED", f"chain entry {seq} is not sealed by the shop's records key")
+            if tbl in last_id and rid < last_id[tbl]:
+                rep.add(tbl, rid, "REORDERED", f"{_label(tbl, rid)} is chained after {_label(tbl, last_id[tbl])}")
+            last_id[tbl] = max(rid, last_id.get(tbl, rid))
+            by_row[(tbl, rid)] = (seq, rh)
+            expect, prev = seq + 1, eh
+        if legacy:
+            rep.notes.append(f"{legacy} row(s) written before the chain existed were sealed when the store was "
+                             "upgraded; changes made before that cannot be detected")
+        for tbl in CHAINED:
+            if not self._table_exists(tbl):
+                continue
+            c = self._conn.cursor()
+            try:
+                c.execute(f"SELECT * FROM {tbl} ORDER BY id")
+                names = [d[0].lower() for d in c.description]
+                rows = [dict(zip(names, r)) for r in c.fetchall()]
+            finally:
+                c.close()
+            seen = set()
+            for row in rows:
+                rid = int(row["id"])
+                seen.add(rid)
+                if tbl == "inspection":
+                    rep.records += 1
+                elif tbl == "issued_document":
+                    rep.documents += 1
+                reasons = _content_problems(tbl, row)
+                sealed = by_row.get((tbl, rid))
+                if entries and sealed is None:
+                    rep.add(tbl, rid, "INSERTED", f"{_label(tbl, rid)} is not in the chain (inserted outside "
+                            "ringgauge)")
+                elif sealed is not None and row_hash(tbl, row) != sealed[1]:
+                    reasons.insert(0, f"its stored row no longer matches chain entry {sealed[0]}")
+                if reasons:
+                    kind = "DAMAGED" if any("damaged JSON" in r for r in reasons) else "ALTERED"
+                    rep.add(tbl, rid, kind, f"{_label(tbl, rid)}: {kind} — " + "; ".join(reasons))
+            for (t, rid), (seq, _) in by_row.items():
+                if t == tbl and rid not in seen:
+                    rep.add(tbl, rid, "DELETED", f"{_label(tbl, rid)} is in the chain (entry {seq}) but no longer "
+                            "in the store")
+        if entries:
+            uid = info.get("store_uid")
+            try:
+                from ..settings import path, read_json
+
+                heads = read_json(path(HEADS_FILE), what="chain heads file", missing={})
+            except Exception:  # noqa: BLE001 - a damaged heads file is reported, not fatal
+                heads = {}
+                rep.notes.append("the chain heads file in the ringgauge folder is unreadable; the end of the chain "
+                                 "was not checked against it")
+            head = heads.get(uid) if isinstance(heads, dict) else None
+            if isinstance(head, dict) and head.get("seq"):
+                hseq = int(head["seq"])
+                got = {int(e[0]): e[5] for e in entries}
+                if hseq > max(got):
+                    rep.add(None, None, "END REMOVED", f"this computer wrote chain entry {hseq} on "
+                            f"{str(head.get('utc', ''))[:19]}, but the chain now ends at entry {max(got)}: the "
+                            "newest rows were removed")
+                elif hseq in got and got[hseq] != head.get("entry_hash"):
+                    rep.add(None, None, "REWRITTEN", f"chain entry {hseq} differs from the one this computer "
+                            "wrote: the chain was rebuilt")
+        return rep
 
     # -- writing
     def add(
@@ -489,14 +824,16 @@ class Store:
         failure: str | None = None,
         setup: dict | None = None,
         once_per_lot: bool = False,
+        origin: str = "measured",
     ) -> InspectionRecord:
         """Append one record: a result (``failure`` None) or a failed analysis with its reason.
 
         ``once_per_lot``: refuse (return the existing current record instead) when the lot already holds a
         current record of the same image checksum — the batch runner's guard against doubles.
+        ``origin``: where the result came from (:data:`ORIGINS`); "manual" marks a value typed by hand.
         """
         return self._insert(meta, result, image_path=image_path, image_sha256=image_sha256, failure=failure,
-                            setup=setup, once_per_lot=once_per_lot)
+                            setup=setup, once_per_lot=once_per_lot, origin=origin)
 
     def supersede(
         self,
@@ -508,11 +845,14 @@ class Store:
         failure: str | None = None,
         image_path: str | None = None,
         image_sha256: str | None = None,
+        origin: str | None = None,
     ) -> InspectionRecord:
         """Append a correction of ``record_id``: a copy with the given changes, linked back, with a reason.
 
         Only the current end of a chain can be superseded; the store refuses a second correction of the same
-        record (it names the record that already replaced it).
+        record (it names the record that already replaced it). ``origin`` says where a new ``result`` came
+        from (:data:`ORIGINS`); a new result without one is stored as "manual" (nothing proves it was
+        measured). A correction of details only keeps the old record's origin.
         """
         reason = (reason or "").strip()
         if not reason:
@@ -528,14 +868,23 @@ class Store:
         meta = replace(old.meta, **(meta_changes or {}))
         if result is None and failure is None:
             result, failure = old.result, old.failure_reason
+            origin = old.origin
+        elif origin is None:
+            origin = "manual" if result is not None else "measured"
         return self._insert(
             meta, result, image_path=image_path or old.image_path,
             image_sha256=image_sha256 or (result or {}).get("image", {}).get("sha256") or old.image_sha256,
-            failure=failure, setup=None if result else old.setup, supersedes=old.id, reason=reason,
+            failure=failure, setup=None if result else old.setup, supersedes=old.id, reason=reason, origin=origin,
         )
 
     def _insert(self, meta, result, *, image_path, image_sha256, failure, setup, once_per_lot=False,
-                supersedes=None, reason=None) -> InspectionRecord:
+                supersedes=None, reason=None, origin="measured") -> InspectionRecord:
+        if self.write_refusal:
+            raise StoreError(self.write_refusal)
+        if origin is not None and origin not in ORIGINS:
+            raise InputError(f"unknown record origin {origin!r}; one of {', '.join(ORIGINS)}")
+        if self._version < 3:
+            origin = None  # an old schema (tests of upgrades) has no column for it
         if result is None and not failure:
             raise InputError("a record needs either a result or the reason the analysis failed")
         if result is not None and failure:
@@ -556,7 +905,7 @@ class Store:
         created = utc_now()
         image_name = os.path.basename(image_path) if image_path else None
         content = _content(uid, created, status, meta, __version__, image_name, image_path, image_sha256,
-                           setup, result, failure, supersedes, reason)
+                           setup, result, failure, supersedes, reason, origin)
         checksum = sha256_text(canonical_json(content))
         cols = _columns(result, setup)
         row = {
@@ -568,6 +917,8 @@ class Store:
             "failure_reason": failure, "supersedes": supersedes, "supersede_reason": reason,
             "content_sha256": checksum,
         }
+        if self._version >= 3:
+            row["origin"] = origin
         names = list(row)
         sql = (f"INSERT INTO inspection ({', '.join(names)}) VALUES ({', '.join('?' for _ in names)}) "
                "RETURNING id")
@@ -581,8 +932,11 @@ class Store:
                     existing = int(hit[0])
             if existing is None:
                 new_id = int(self._q(cur, sql, [row[n] for n in names]).fetchone()[0])
+                if self._version >= 3:
+                    self._chain(cur, "inspection", new_id)
         if existing is not None:
             return self.get(existing)
+        self._save_head()
         return self.get(new_id)
 
     # -- reading
@@ -591,10 +945,14 @@ class Store:
             rid = int(record_id)
         except (TypeError, ValueError):
             raise InputError(f"record id must be a whole number, got {record_id!r}") from None
-        rows = self._read(f"SELECT {_SELECT} FROM inspection i WHERE i.id = ?", (rid,))
+        rows = self._read(f"SELECT {self._select()} FROM inspection i WHERE i.id = ?", (rid,))
         if not rows:
             raise StoreError(f"no record {rid} in {self.where}; list them with 'ringgauge records list'")
         return _record(rows[0])
+
+    def _select(self, light: bool = False) -> str:
+        sel = _SELECT_LIGHT if light else _SELECT
+        return sel + (", i.origin" if self._version >= 3 else ", NULL")
 
     def history(self, record_id: int) -> list[InspectionRecord]:
         """The whole correction chain that ``record_id`` belongs to, oldest first."""
@@ -623,7 +981,7 @@ class Store:
             params.append(_iso_bound(flt.until, end=True))
         if not flt.include_superseded:
             where.append(_CURRENT)
-        sql = f"SELECT {_SELECT if with_result else _SELECT_LIGHT} FROM inspection i"
+        sql = f"SELECT {self._select(not with_result)} FROM inspection i"
         if where:
             sql += " WHERE " + " AND ".join(where)
         sql += " ORDER BY i.id"
@@ -650,6 +1008,8 @@ class Store:
         """Give a document its unique number and keep exactly what it prints (append-only)."""
         if kind not in ("certificate", "lot report"):
             raise ValueError(f"unknown document kind {kind!r}")
+        if self.write_refusal:
+            raise StoreError(self.write_refusal)
         issued = utc_now()
         with self._tx() as cur:
             # Numbers count up under a lock (SQLite: the write transaction; PostgreSQL: an advisory lock), so
@@ -664,7 +1024,31 @@ class Store:
                      "content_sha256) VALUES (?, ?, ?, ?, ?, ?, ?)",
                 (number, kind, record_id, lot, issued, text, sha256_text(text)),
             )
+            if self._version >= 3:
+                did = int(self._q(cur, "SELECT id FROM issued_document WHERE number = ?", (number,)).fetchone()[0])
+                self._chain(cur, "issued_document", did)
+        self._save_head()
         return self.document(number)
+
+    def record_file(self, number: str, file_sha256: str, *, signed: bool, signer: str | None = None) -> None:
+        """Keep the SHA-256 of a PDF written for an issued document (each print or reprint), chained."""
+        if self.write_refusal:
+            raise StoreError(self.write_refusal)
+        self.document(number)
+        with self._tx() as cur:
+            self._q(cur, "INSERT INTO issued_file (number, file_sha256, signed, signer, written_utc) "
+                         "VALUES (?, ?, ?, ?, ?) RETURNING id", (number, file_sha256, int(signed), signer, utc_now()))
+            fid = int(cur.fetchone()[0])
+            self._chain(cur, "issued_file", fid)
+        self._save_head()
+
+    def issued_files(self, number: str) -> list[dict]:
+        """Every PDF written for document ``number``: file SHA-256, signed or not, signer, when."""
+        if not self._table_exists("issued_file"):
+            return []
+        rows = self._read("SELECT file_sha256, signed, signer, written_utc FROM issued_file WHERE number = ? "
+                          "ORDER BY id", (number,))
+        return [{"file_sha256": r[0], "signed": bool(r[1]), "signer": r[2], "written_utc": r[3]} for r in rows]
 
     def document(self, number: str) -> IssuedDocument:
         rows = self._read("SELECT id, number, kind, record_id, lot, issued_utc, content_json, content_sha256 "
@@ -672,7 +1056,12 @@ class Store:
         if not rows:
             raise StoreError(f"no certificate or lot report numbered {number} in {self.where}")
         r = rows[0]
-        return IssuedDocument(int(r[0]), r[1], r[2], r[3], r[4], r[5], json.loads(r[6]), r[7])
+        try:
+            content = json.loads(r[6])
+        except (TypeError, ValueError):
+            raise StoreError(f"issued document {number} in {self.where} has damaged stored content (not valid "
+                             "JSON); run 'ringgauge records check'") from None
+        return IssuedDocument(int(r[0]), r[1], r[2], r[3], r[4], r[5], content, r[7])
 
     def documents(self, *, record_id: int | None = None, lot: str | None = None) -> list[IssuedDocument]:
         where, params = [], []
@@ -706,22 +1095,32 @@ _SELECT = ", ".join(f"i.{c}" for c in _SELECT_COLS) + \
 _SELECT_LIGHT = _SELECT.replace("i.result_json", "NULL")
 
 
+def _json_field(d: dict, name: str):
+    if d[name] is None:
+        return None
+    try:
+        return json.loads(d[name])
+    except (TypeError, ValueError):
+        raise StoreError(f"record {d['id']} has damaged JSON in its stored {name.replace('_json', '')} (altered "
+                         "outside ringgauge); run 'ringgauge records check'") from None
+
+
 def _record(row, with_result: bool = True) -> InspectionRecord:
-    d = dict(zip(_SELECT_COLS + ("superseded_by",), row))
+    d = dict(zip(_SELECT_COLS + ("superseded_by", "origin"), row))
     meta = RecordMeta(**{k: d[k] for k in META_FIELDS}, temperature_c=d["temperature_c"], notes=d["notes"])
     return InspectionRecord(
         id=int(d["id"]), uid=d["uid"], created_utc=d["created_utc"], status=d["status"], meta=meta,
         software_version=d["software_version"], image_name=d["image_name"], image_path=d["image_path"],
         image_sha256=d["image_sha256"],
-        setup=None if d["setup_json"] is None else json.loads(d["setup_json"]),
-        result=None if d["result_json"] is None else json.loads(d["result_json"]),
+        setup=_json_field(d, "setup_json"),
+        result=_json_field(d, "result_json"),
         verdict=d["verdict"], radius_mm=d["radius_mm"], radius_U_mm=d["radius_U_mm"],
         power_fringes=d["power_fringes"], power_U_fringes=d["power_U_fringes"],
         failure_reason=d["failure_reason"],
         supersedes=None if d["supersedes"] is None else int(d["supersedes"]),
         supersede_reason=d["supersede_reason"], content_sha256=d["content_sha256"],
         superseded_by=None if d["superseded_by"] is None else int(d["superseded_by"]),
-        has_result=with_result,
+        has_result=with_result, origin=d.get("origin"),
     )
 
 
@@ -779,3 +1178,91 @@ def _iso_bound(text: str, *, end: bool) -> str:
     if dt.tzinfo is not None:
         dt = dt.astimezone(timezone.utc).replace(tzinfo=None)
     return dt.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+# ----------------------------------------------------------------------------------------- chain helpers
+
+#: where a record's result came from (see :attr:`InspectionRecord.origin`)
+ORIGINS = ("measured", "re-analysed", "sealed result", "manual")
+ORIGIN_TEXT = {
+    "measured": "measured by ringgauge from the image",
+    "re-analysed": "measured again by ringgauge from the image (correction)",
+    "sealed result": "result file written and sealed by ringgauge",
+    "manual": "MANUAL ENTRY — values typed by hand, not measured by ringgauge",
+    None: "measured (record written before origins were kept)",
+}
+HEADS_FILE = "chain-heads.json"
+
+
+def row_hash(table: str, row: dict) -> str:
+    """SHA-256 of a whole stored row (every column, the id included), independent of column order."""
+    return sha256_text(canonical_json({"table": table, "row": {k.lower(): v for k, v in row.items()}}))
+
+
+def entry_hash(seq: int, table: str, row_id: int, rh: str, prev: str) -> str:
+    return sha256_text(canonical_json([int(seq), table, int(row_id), rh, prev]))
+
+
+def _label(table: str | None, rid: int | None) -> str:
+    return {"inspection": "record", "issued_document": "issued document", "issued_file": "issued file entry"}.get(
+        table or "", table or "") + f" {rid}"
+
+
+def _content_problems(table: str, row: dict) -> list[str]:
+    """What is wrong with a stored row by its own checksums (damaged JSON, checksum, searchable copies)."""
+    out = []
+    if table == "inspection":
+        for col in ("setup_json", "result_json"):
+            if row.get(col) is not None:
+                try:
+                    json.loads(row[col])
+                except (TypeError, ValueError):
+                    out.append(f"damaged JSON in its stored {col.replace('_json', '')}")
+        if out:
+            return out
+        vals = [row.get(c.lower()) for c in _SELECT_COLS] + [None, row.get("origin")]
+        try:
+            rec = _record(vals)
+        except (RinggaugeErrorBase, TypeError, ValueError) as exc:
+            return [f"unreadable ({exc})"]
+        if not rec.intact():
+            out.append("its content no longer matches the checksum written with it")
+    elif table == "issued_document":
+        text = row.get("content_json")
+        try:
+            json.loads(text)
+        except (TypeError, ValueError):
+            return ["damaged JSON in its stored content"]
+        if sha256_text(text) != row.get("content_sha256"):
+            out.append("its content no longer matches the checksum written with it")
+    return out
+
+
+@dataclass
+class CheckFinding:
+    table: str | None
+    row_id: int | None
+    kind: str
+    message: str
+
+
+@dataclass
+class CheckReport:
+    """What :meth:`Store.check` found: every problem as one line, and counts."""
+
+    where: str
+    records: int = 0
+    documents: int = 0
+    entries: int = 0
+    findings: list = field(default_factory=list)
+    notes: list = field(default_factory=list)
+
+    def add(self, table, rid, kind, message) -> None:
+        self.findings.append(CheckFinding(table, rid, kind, message))
+
+    @property
+    def ok(self) -> bool:
+        return not self.findings
+
+    def bad_records(self) -> set[int]:
+        return {f.row_id for f in self.findings if f.table == "inspection" and f.row_id is not None}
