@@ -56,6 +56,12 @@ def add_setup_arguments(p: argparse.ArgumentParser) -> None:
         from ..form import options as form_options
 
         form_options.add_arguments(p)
+    g = p.add_argument_group("radius tolerance (one of; judged under --decision-rule)")
+    g.add_argument("--radius-tolerance", metavar="TEXT",
+                   help="radius of curvature tolerance in mm: '1000 ± 5', '1000 +/- 5', '1000 ± 0.5 %%', "
+                        "'995..1005' or '1000 +5/-3'; each part gets pass / fail / conditional")
+    g.add_argument("--radius-limits", nargs=2, type=_float, metavar=("LO_MM", "HI_MM"),
+                   help="the same as lower and upper limits in mm")
 
 
 def setup_from_args(args: argparse.Namespace) -> tuple[BenchSetup, list[str]]:
@@ -97,6 +103,11 @@ def setup_from_args(args: argparse.Namespace) -> tuple[BenchSetup, list[str]]:
         fkw, fw = form_options.setup_kwargs(args)
         kw.update(fkw)
         warnings += fw
+    from ..conformity import radius_tolerance_from
+
+    rt = radius_tolerance_from(getattr(args, "radius_tolerance", None), getattr(args, "radius_limits", None))
+    if rt is not None:
+        kw["radius_tolerance"] = rt.text
     return BenchSetup(**kw), warnings
 
 

@@ -30,15 +30,16 @@ def register(sub) -> None:
     )
     p.add_argument("folder", metavar="FOLDER", help="folder holding the lot's images (PNG, TIFF, JPEG)")
     add_setup_arguments(p)
-    add_meta_arguments(p, lot_required=True, serial=False)
+    add_meta_arguments(p, lot_required=False, serial=False)
     g = p.add_argument_group("lot run")
+    g.add_argument("--lot-sheet", metavar="FILE.json",
+                   help="the lot's details, set-up and tolerances (default: lot.json in FOLDER if there); "
+                        "options given here override it — fields in the README")
     g.add_argument("--workers", type=int, metavar="N",
                    help=f"parallel analyses (default: all {os.cpu_count() or 1} cores)")
     g.add_argument("--recursive", action="store_true", help="also take images from sub-folders")
     g.add_argument("--retry-failed", action="store_true",
                    help="analyse again the images that failed last time (the new record supersedes the failure)")
-    g.add_argument("--radius-limits", nargs=2, type=float, metavar=("LSL_MM", "USL_MM"),
-                   help="radius specification limits in mm, for Cp/Cpk of the radius")
     g.add_argument("--chart", metavar="FILE.png",
                    help="where to write the control chart (default: <lot>-control-chart.png here)")
     g.add_argument("--report", metavar="FILE.pdf", help="also issue the lot report as a PDF")
@@ -46,6 +47,18 @@ def register(sub) -> None:
     g.add_argument("--quiet", action="store_true", help="no progress bar")
     add_db_argument(p)
     p.set_defaults(func=run)
+    from ..records.lotsheet import track_given
+
+    track_given(p)  # the lot sheet fills only what the command line left out
+
+
+def _radius_limits(setup):
+    from ..conformity import parse_radius_tolerance
+
+    if not setup.radius_tolerance:
+        return None
+    t = parse_radius_tolerance(setup.radius_tolerance)
+    return (t.lower, t.upper)
 
 
 def _safe(name: str) -> str:
@@ -59,10 +72,16 @@ def run(args) -> int:
     from ..records.store import RecordFilter
     from .analyze import setup_from_args
 
+    from ..records.lotsheet import apply_sheet, find_sheet, read_sheet
+
     if args.workers is not None and args.workers < 1:
         raise InputError("--workers must be at least 1")
+    sheet_path = find_sheet(args.folder, getattr(args, "lot_sheet", None))
+    if sheet_path is not None:
+        used = apply_sheet(args, read_sheet(sheet_path), getattr(args, "_given", set()))
+        print(f"lot sheet {sheet_path}: {len(used)} field(s) used", file=sys.stderr)
     if not args.lot or not args.lot.strip():
-        raise InputError("give the lot name: --lot LOT")
+        raise InputError("give the lot name: --lot LOT (or \"lot\" in the lot sheet)")
     setup, warnings = setup_from_args(args)
     for w in warnings:
         print(f"ringgauge: warning: {w}", file=sys.stderr)
@@ -74,7 +93,7 @@ def run(args) -> int:
                        progress=not args.quiet, warnings=warnings)
         records = store.find(RecordFilter(lot=meta.lot), with_result=False)
         limits = power_limits_from_tolerance(setup.tolerance, setup.wavelength_nm)
-        radius_limits = tuple(args.radius_limits) if args.radius_limits else None
+        radius_limits = _radius_limits(setup)
         summary = summarise_lot(records, meta.lot, power_limits=limits, radius_limits=radius_limits)
         chart = Path(args.chart) if args.chart else Path(f"{_safe(meta.lot)}-control-chart.png")
         chart_written = False
@@ -114,20 +133,34 @@ def _summary_text(run_, summary, chart, report) -> str:
         f"  records in the lot: {summary.n_records} — "
         + ", ".join(f"{k} {summary.counts[k]}" for k in sorted(summary.counts, key=verdict_sort_key)),
     ]
+    if summary.radius_tolerance:
+        from ..conformity import RULE_NAMES
+
+        lines.append(f"  radius tolerance {summary.radius_tolerance}, decision rule: "
+                     f"{RULE_NAMES.get(summary.decision_rule, 'differs between parts')}")
+        lines.append("  radius verdicts: " + ", ".join(f"{k} {summary.radius_counts[k]}" for k in
+                                                       sorted(summary.radius_counts, key=verdict_sort_key))
+                     + f" — accepted {summary.accepted} of {summary.n_records}")
+    from ..records.lot import fmt_fixed
+
+    dec = {"mm": summary.decimals.get("radius", 3), "fringes": summary.decimals.get("power", 3)}
     for sp in (summary.radius, summary.power):
         if sp.n:
-            dig = 7 if sp.unit == "mm" else 3
-            sd = "—" if sp.sd is None else f"{sp.sd:.3g} {sp.unit}"
-            lines.append(f"  {sp.quantity}: mean {sp.mean:.{dig}g} {sp.unit}, standard deviation {sd} (n = {sp.n})")
+            d = dec[sp.unit]
+            sd = "—" if sp.sd is None else fmt_fixed(sp.sd, d + 1, sp.unit)
+            lines.append(f"  {sp.quantity}: mean {fmt_fixed(sp.mean, d, sp.unit)}, standard deviation {sd} "
+                         f"(n = {sp.n})")
     for c in summary.capabilities:
+        d = dec.get(c.unit, 3)
         cp = "—" if c.cp is None else f"{c.cp:.2f}"
-        lo = "—" if c.lsl is None else f"{c.lsl:.4g}"
-        hi = "—" if c.usl is None else f"{c.usl:.4g}"
+        lo = "—" if c.lsl is None else fmt_fixed(c.lsl, d)
+        hi = "—" if c.usl is None else fmt_fixed(c.usl, d)
         lines.append(f"  capability of {c.quantity} ({lo} to {hi} {c.unit}): Cp {cp}, Cpk {c.cpk:.2f}")
     for ch in summary.charts:
+        d = dec.get(ch.unit, 3)
         flag = f"; {len(ch.out_of_limits)} point(s) outside the limits" if ch.out_of_limits else ""
-        lines.append(f"  individuals chart of {ch.quantity}: centre {ch.centre:.5g} {ch.unit}, limits "
-                     f"{ch.lcl:.5g} to {ch.ucl:.5g} {ch.unit}{flag}")
+        lines.append(f"  individuals chart of {ch.quantity}: centre {fmt_fixed(ch.centre, d, ch.unit)}, limits "
+                     f"{fmt_fixed(ch.lcl, d)} to {fmt_fixed(ch.ucl, d, ch.unit)}{flag}")
     for n in summary.notes:
         lines.append(f"  note: {n}")
     if chart:

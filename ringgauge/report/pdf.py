@@ -402,37 +402,18 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
 
 def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
                        tolerance: str | None = None, approver: str | None = None) -> dict:
-    """What a lot report says: every current record of the lot, the statistics and the control chart data."""
-    from ..records.lot import verdict_sort_key
+    """What a lot report says: every current record of the lot (by serial), the verdicts and the rule they were
+    reached under, the statistics and the control chart data — figures as text with one number of digits per
+    quantity (``records.lot.lot_tables``, shared with the window's lot review)."""
+    from ..conformity import RULE_NAMES, RULE_WORDING
+    from ..records.lot import lot_tables
 
-    rows = []
-    ks = set()
-    for r in sorted(records, key=lambda r: r.id):
-        if r.result and r.result.get("k"):
-            ks.add(float(r.result["k"]))
-        rows.append({
-            "record": str(r.id), "serial": r.meta.serial or "—", "image": r.image_name or "—",
-            "verdict": "analysis failed" if r.status == "failed" else (r.verdict or "not evaluated"),
-            "radius": _pm(r.radius_mm, r.radius_U_mm),
-            "power": _pm(r.power_fringes, r.power_U_fringes),
-            "note": (r.failure_reason or "")[:80],
-        })
+    ks = {float(r.result["k"]) for r in records if r.result and r.result.get("k")}
+    t = lot_tables(records, summary)
     s = summary.to_dict()
-
-    def spread_text(sp: dict) -> dict:
-        if not sp["n"]:
-            return {"n": "0", "mean": "—", "sd": "—", "range": "—"}
-        dig = 6 if sp["unit"] == "mm" else 3
-        return {"n": str(sp["n"]), "mean": f"{sp['mean']:.{dig}g} {sp['unit']}",
-                "sd": "—" if sp["sd"] is None else f"{sp['sd']:.3g} {sp['unit']}",
-                "range": f"{sp['minimum']:.{dig}g} to {sp['maximum']:.{dig}g} {sp['unit']}"}
-
-    caps = [{"quantity": c["quantity"], "limits": f"{_lim(c['lsl'])} to {_lim(c['usl'])} {c['unit']}",
-             "n": str(c["n"]), "mean": f"{c['mean']:.4g} {c['unit']}", "s": f"{c['sd']:.3g} {c['unit']}",
-             "Cp": "—" if c["cp"] is None else _index(c["cp"]), "Cpk": _index(c["cpk"])}
-            for c in s["capability"]]
     first = min((r.created_utc for r in records), default="")
     last = max((r.created_utc for r in records), default="")
+    rule = summary.decision_rule
     return {
         "kind": "lot report",
         "title": TITLE_LOT,
@@ -440,24 +421,32 @@ def lot_report_content(records, summary, shop: dict, *, part: str | None = None,
         "shop": {k: shop.get(k) for k in ("name", "address", "contact", "accreditation")},
         "lot": summary.lot,
         "part": part or ", ".join(sorted({r.meta.part for r in records if r.meta.part})) or "—",
+        "drawing": ", ".join(sorted({r.meta.drawing for r in records if r.meta.drawing})) or "—",
         "customer": ", ".join(sorted({r.meta.customer for r in records if r.meta.customer})) or "—",
+        "order": ", ".join(sorted({r.meta.order_ref for r in records if r.meta.order_ref})) or "—",
         "tolerance": tolerance or ", ".join(sorted({(r.setup or {}).get("tolerance") for r in records
                                                     if (r.setup or {}).get("tolerance")})) or "not specified",
+        "radius_tolerance": summary.radius_tolerance or "not specified",
+        "decision_rule": RULE_NAMES.get(rule, "—") if rule else "—",
+        "rule_note": RULE_WORDING.get(rule, "") if rule else "",
         "period": f"{first[:19].replace('T', ' ')} to {last[:19].replace('T', ' ')} UTC" if first else "—",
         # a list, not a dict: the stored content's keys are sorted, and the verdicts have an order of their own
-        "counts": [[k, str(s["counts"][k])] for k in sorted(s["counts"], key=verdict_sort_key)],
+        "counts": t["counts"],
+        "radius_counts": t["radius_counts"],
+        "accepted": t["accepted"],
         "k": "k = " + (", ".join(f"{k:g}" for k in sorted(ks)) or "2"),
         "n_records": str(s["n_records"]),
-        "radius": spread_text(s["radius"]),
-        "power": spread_text(s["power"]),
-        "capability": caps,
+        "radius": t["radius"],
+        "power": t["power"],
+        "capability": t["capability"],
         "capability_note": "Cp = (USL − LSL)/6s, Cpk = min(USL − x̄, x̄ − LSL)/3s with s the sample standard "
                            "deviation (NIST/SEMATECH e-Handbook of Statistical Methods §6.1.6).",
         "charts": [{k: c[k] for k in ("quantity", "unit", "labels", "values", "centre", "mr_bar", "ucl", "lcl",
-                                      "out_of_limits")} for c in s["charts"]],
-        "chart_note": "Individuals chart: limits x̄ ± 3·MR̄/d2, d2 = 1.128 (moving ranges of two).",
+                                      "out_of_limits", "lsl", "usl", "decimals")} for c in s["charts"]],
+        "chart_note": "Individuals chart: control limits x̄ ± 3·MR̄/d2, d2 = 1.128 (moving ranges of two); "
+                      "specification limits (USL, LSL) dash-dotted.",
         "notes": s["notes"],
-        "rows": rows,
+        "rows": t["rows"],
         "operators": ", ".join(sorted({r.meta.operator for r in records if r.meta.operator})) or "—",
         "approver": approver or shop.get("approver") or "",
         "record_checksums": _canonical_digest([r.content_sha256 for r in sorted(records, key=lambda r: r.id)]),
@@ -863,12 +852,24 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
     c = content
     story = _header_block(c, st, W)
     story.append(_kv_table(
-        [("Lot", c["lot"]), ("Part", c["part"]), ("Customer", c["customer"]), ("Tolerance", c["tolerance"]),
+        [("Lot", c["lot"]), ("Part", c["part"]), ("Drawing", c.get("drawing", "—")), ("Customer", c["customer"]),
+         ("Order", c.get("order", "—")), ("Radius tolerance", c.get("radius_tolerance", "not specified")),
+         ("Form tolerance", c["tolerance"]), ("Decision rule", c.get("decision_rule", "—")),
          ("Inspected", c["period"]), ("Operators", c["operators"]), ("Records", c["n_records"])],
         st, [34 * mm, W - 34 * mm]))
+    if c.get("rule_note"):
+        story.append(Paragraph(_esc(c["rule_note"]), st["small"]))
     story.append(Paragraph("Summary", st["h2"]))
-    story.append(_grid_table(["Verdict", "Parts"], [[k, v] for k, v in c["counts"]], st,
-                             [W * 0.4, W * 0.15], zebra=False))
+    counts = [[k, v] for k, v in c["counts"]]
+    story.append(_grid_table(["Verdict (all specified characteristics)", "Parts"], counts, st,
+                             [W * 0.45, W * 0.15], zebra=False))
+    if c.get("radius_counts"):
+        story.append(Spacer(1, 4))
+        story.append(_grid_table(["Radius verdict", "Parts"], [[k, v] for k, v in c["radius_counts"]], st,
+                                 [W * 0.45, W * 0.15], zebra=False))
+        if c.get("accepted"):
+            story.append(Paragraph(_esc(f"Accepted on radius under {c.get('decision_rule')}: {c['accepted']} "
+                                        "parts."), st["small"]))
     story.append(Spacer(1, 4))
     story.append(_grid_table(
         ["Quantity", "n", "Mean", "Standard deviation s", "Range"],
@@ -888,24 +889,34 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
         if c["charts"]:
             charts = [IndividualsChart(ch["quantity"], ch["unit"], tuple(ch["labels"]), tuple(ch["values"]),
                                        ch["centre"], ch["mr_bar"], ch["ucl"], ch["lcl"], 3.267 * ch["mr_bar"],
-                                       tuple(ch["out_of_limits"])) for ch in c["charts"]]
+                                       tuple(ch["out_of_limits"]), ch.get("lsl"), ch.get("usl"),
+                                       ch.get("decimals")) for ch in c["charts"]]
             p = Path(tmp) / "chart.png"
             chart_png(charts, p)
             story.append(CondPageBreak(95 * mm))
             story.append(Paragraph("Control chart (individuals)", st["h2"]))
             story.append(_image_flowable(p, W, 110 * mm))
             story.append(Paragraph(_esc(c["chart_note"]), st["small"]))
-        story.append(Paragraph("Parts", st["h2"]))
+        story.append(Paragraph("Parts (by serial)", st["h2"]))
         story.append(Paragraph(f"R: radius of curvature; U: expanded uncertainty ({_esc(c['k'])}, about 95 %).",
                                st["small"]))
         story.append(Spacer(1, 3))
-        story.append(_grid_table(["Record", "Serial", "Verdict", "R ± U / mm", "Power ± U / fringes", "Note"],
-                                 [[r["record"], r["serial"], r["verdict"], r["radius"], r["power"], r["note"]]
-                                  for r in c["rows"]], st,
-                                 [W * x for x in (0.08, 0.12, 0.13, 0.24, 0.17, 0.26)]))
+        has_radius = any(r.get("radius_verdict", "—") != "—" for r in c["rows"])
+        if has_radius:
+            header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
+            rows = [[r["serial"], r["record"], r["verdict"],
+                     r["radius_verdict"] + ("" if r.get("accepted") is None else
+                                            (" (accepted)" if r["accepted"] else " (not accepted)")),
+                     r["radius"], r["power"], r["note"]] for r in c["rows"]]
+            widths = (0.12, 0.085, 0.12, 0.15, 0.165, 0.13, 0.23)
+        else:
+            header = ["Serial", "Record", "Verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
+            rows = [[r["serial"], r["record"], r["verdict"], r["radius"], r["power"], r["note"]] for r in c["rows"]]
+            widths = (0.12, 0.08, 0.13, 0.22, 0.17, 0.28)
+        story.append(_grid_table(header, rows, st, [W * x for x in widths]))
         story.append(KeepTogether([
-            Paragraph("Authorisation", st["h2"]),
-            _signoff(c, st, W),
+            Paragraph("Lot sign-off", st["h2"]),
+            _lot_approval(c, st, W),
             Paragraph("Checksums (SHA-256)", st["h2"]),
             Paragraph(f"Records listed: {_esc(c['record_checksums'])}", st["mono"]),
             Paragraph(f"Report content: {content_checksum(content)}", st["mono"]),
@@ -914,6 +925,26 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
         ]))
         doc.build(story, canvasmaker=_canvas_class(c["number"], "Lot report", c["shop"].get("name") or ""))
     return _finish(buf, content, out)
+
+
+def _lot_approval(content, st, width):
+    """The QA sign-off block: disposition boxes, prepared by / approved by with name, date and signature lines."""
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    line = "_" * 26
+    box = "☐"
+    disp = Paragraph(f"<b>Lot disposition</b>&nbsp;&nbsp; {box} accepted &nbsp;&nbsp; {box} rejected &nbsp;&nbsp; "
+                     f"{box} accepted with concession &nbsp;&nbsp; {box} sorted / rework", st["cell"])
+    cells = [
+        Paragraph(f"<b>Prepared by</b><br/>{_esc(content.get('operators') or '')}<br/><br/>Name {line}"
+                  f"<br/><br/>Date {line}<br/><br/>Signature {line}", st["cell"]),
+        Paragraph(f"<b>Approved by (QA)</b><br/>{_esc(content.get('approver') or '')}<br/><br/>Name {line}"
+                  f"<br/><br/>Date {line}<br/><br/>Signature {line}", st["cell"]),
+    ]
+    t = Table([[disp, ""], cells], colWidths=[width / 2, width / 2])
+    t.setStyle(TableStyle([("SPAN", (0, 0), (1, 0)), ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                           ("LEFTPADDING", (0, 0), (-1, -1), 3), ("BOTTOMPADDING", (0, 0), (-1, 0), 8)]))
+    return t
 
 
 def _finish(buf: io.BytesIO, content: dict, out) -> Path:
