@@ -75,52 +75,18 @@ def _progress(msg: str, quiet: bool) -> None:
 
 
 def run(args) -> int:
-    from ..calibration import measure_disc, measure_grating, measure_line_pair
     from ..calibration import profiles as prof
-    from ..imaging import load_frame
+    from ..calibration.procedure import calibrate  # the window's calibration dialog calls the same
 
-    if len(args.images) > 2:
-        raise InputError("give one calibration image, or two of a line scale turned by about 90°")
-    if args.disc_diameter is not None and args.pitch_u is not None:
-        raise InputError("--pitch-u goes with --grating-pitch; for a disc give --diameter-u")
-    if args.grating_pitch is not None and args.diameter_u is not None:
-        raise InputError("--diameter-u goes with --disc-diameter; for a line scale give --pitch-u")
-    if args.disc_diameter is not None and len(args.images) != 1:
-        raise InputError("a disc calibration takes one image")
-    if args.source and args.wavelength:
-        raise InputError("give either --source or --wavelength, not both")
-    if args.bench:
-        prof.check_name(args.bench)
-    # check profile options before the (slower) measurement, so a typo costs nothing
-    from ..sources import custom_source, get_source
-
-    source = get_source(args.source) if args.source else None
-    if args.wavelength:
-        custom_source(args.wavelength)
     quiet = False
-    frames = []
-    for path in args.images:
-        _progress(f"reading {path} ...", quiet)
-        frames.append(load_frame(path))
-    if args.disc_diameter is not None:
-        _progress("finding the disc edge and fitting it ...", quiet)
-        cal = measure_disc(frames[0], args.disc_diameter, args.diameter_u, target_id=args.target_id)
-    elif len(frames) == 2:
-        if args.target not in ("auto", "lines"):
-            raise InputError("two images are read as one line scale turned by 90°; use --target lines or auto")
-        _progress("finding the line period in both images ...", quiet)
-        cal = measure_line_pair(frames[0], frames[1], args.grating_pitch, args.pitch_u, target_id=args.target_id)
-    else:
-        _progress("finding the line pattern and fitting its period ...", quiet)
-        cal = measure_grating(frames[0], args.grating_pitch, args.pitch_u, kind=args.target,
-                              target_id=args.target_id)
-    saved = None
-    if args.bench:
-        entry = prof.calibration_entry(cal, operator=args.operator)
-        saved = prof.record_calibration(
-            args.bench, entry, camera=args.camera, lens=args.lens, source=args.source,
-            wavelength_nm=args.wavelength, medium_index=args.medium_index, recalibration_days=_recal_days(args),
-        )
+    done = calibrate(
+        args.images, grating_pitch_um=args.grating_pitch, pitch_u_um=args.pitch_u,
+        disc_diameter_mm=args.disc_diameter, diameter_u_mm=args.diameter_u, target=args.target,
+        target_id=args.target_id, bench=args.bench, operator=args.operator, camera=args.camera, lens=args.lens,
+        source=args.source, wavelength_nm=args.wavelength, medium_index=args.medium_index,
+        recalibration_days=_recal_days(args), progress=lambda m: _progress(m, quiet),
+    )
+    cal, saved = done.calibration, done.profile
     if args.json:
         doc = {"calibration": cal.to_dict(), "bench": None if saved is None else saved.to_dict(),
                "saved_to": None if saved is None else str(prof.store_path())}

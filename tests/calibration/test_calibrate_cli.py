@@ -41,7 +41,7 @@ def test_calibrate_grid_saves_profile_and_prints_units(images, capsys):
     vx, _, Ux, unit = lines["pixel scale x"].split()[:4]
     assert float(vx) == pytest.approx(2.0, rel=5e-4) and float(Ux) > 0 and unit == "µm/px"
     assert float(lines["pixel scale y"].split()[0]) == pytest.approx(2.03, rel=5e-4)
-    assert "(k = 2)" in lines["pixel scale x"]
+    assert "(± U, k = 2)" in lines["pixel scale x"]  # the ± is named as the expanded uncertainty
     assert "anisotropic" in out
     assert "Saved as bench 'Bench 2 / 0.5x'" in out
     assert "Mercury lamps emit ultraviolet" in out  # the lamp's safety note
