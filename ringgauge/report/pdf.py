@@ -275,6 +275,25 @@ def _verdict_terms(verdict: dict) -> dict:
     return {"header": header, "rows": rows} if rows else {"header": [], "rows": []}
 
 
+def _with_radius_row(table: dict, verdict: dict) -> dict:
+    """The per-term verdict table with the radius verdict (ringgauge.conformity) as a row of its own."""
+    rv = verdict.get("radius")
+    if not isinstance(rv, dict):
+        return table
+    header = table.get("header") or ["Term", "Measured", "Limit", "λ of the tolerance", "Verdict", "Note"]
+    if rv.get("value") is None:
+        measured = "—"
+    else:
+        v, U = _value_u(rv["value"], rv.get("U"), "mm")
+        measured = v if U in ("—", "not available") else f"{v.replace(' mm', '')} ± {U}"
+    word = str(rv.get("verdict", ""))
+    if rv.get("accepted") is not None:
+        word += " (accepted)" if rv["accepted"] else " (not accepted)"
+    row = [str(rv.get("quantity", "radius")).capitalize(), measured,
+           f"{_fmt(rv.get('lower'))} … {_fmt(rv.get('upper'))} mm", "—", word, str(rv.get("note") or "")]
+    return {"header": header, "rows": list(table.get("rows") or []) + [row[:len(header)]]}
+
+
 def _method(result: dict) -> str:
     if result.get("form"):
         form = result["form"] if isinstance(result["form"], dict) else {}
@@ -360,7 +379,8 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
                    if _num(form.get("test_diameter_mm")) else "full clear aperture")],
             ["Wavelength", f"{_fmt(setup.get('wavelength_nm'), 7)} nm" if setup.get("wavelength_nm") else "—"],
             ["Gap medium index", _fmt(setup.get("medium_index"))],
-        ] + ([] if form else [["Fringes counted", setup.get("fringe_kind") or "—"]]),
+        ] + ([["Radius tolerance", verdict["radius"]["tolerance"]["described"]]]
+             if isinstance(verdict.get("radius"), dict) else []) + ([] if form else [["Fringes counted", setup.get("fringe_kind") or "—"]]),
         "mode": "radius" if res.get("radius_mm") is not None or not form else "form",
         "method": _method(res),
         "dates": {"measured (UTC)": record.created_utc[:19].replace("T", " "),
@@ -371,11 +391,13 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
         "budgets": _budgets(res),
         "form_budget": _form_budget(res),
         "decision": {"verdict": verdict.get("overall") or "not evaluated",
-                     "rule": verdict.get("decision_rule") or setup.get("decision_rule") or "simple",
-                     "rule_note": _rule_note(verdict.get("rule") or verdict.get("decision_rule")
-                                             or setup.get("decision_rule")),
+                     "rule": (verdict["radius"]["rule_name"] if isinstance(verdict.get("radius"), dict)
+                              else verdict.get("decision_rule") or setup.get("decision_rule") or "simple"),
+                     "rule_note": (verdict["radius"]["rule_wording"] if isinstance(verdict.get("radius"), dict)
+                                   else _rule_note(verdict.get("rule") or verdict.get("decision_rule")
+                                                   or setup.get("decision_rule"))),
                      "meaning": " ".join(str(verdict[k]) for k in ("meaning", "power_note") if verdict.get(k)),
-                     "terms": _verdict_terms(verdict)},
+                     "terms": _with_radius_row(_verdict_terms(verdict), verdict)},
         "traceability": {
             "test plate": _plate_text(plate),
             "wavelength source": f"{src.get('name', '—')}, {_fmt(setup.get('wavelength_nm'), 7)} nm, "
@@ -732,7 +754,7 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
                              st, [W * 0.38, W * 0.26, W * 0.26, W * 0.10]))
     story.append(Paragraph(_esc(c["coverage"]), st["small"]))
     d = c["decision"]
-    verdict_colour = {"pass": "#1e7b34", "fail": "#b00020"}.get(d["verdict"].split()[-1], "#7a5b00")
+    verdict_colour = {"pass": "#1e7b34", "fail": "#b00020"}.get(d["verdict"], "#7a5b00")  # conditional: amber
     story.append(Paragraph("Conformity statement", st["h2"]))
     story.append(Paragraph(f"Verdict: <font color='{verdict_colour}'>{_esc(d['verdict'].upper())}</font>",
                            st["verdict"]))
