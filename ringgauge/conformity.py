@@ -417,3 +417,30 @@ def with_radius_verdict(result):
             radius["note"] = (block.get("surface_radius_note") or
                               "no test-plate radius given: the surface radius (plate radius ± ΔR) is not known")
     return replace(result, verdict=combined_verdict(result.verdict, radius, rule))
+
+
+def verdict_lines(radius: dict) -> list[str]:
+    """The radius verdict as printed by the text report (one block, every number with its unit)."""
+    tol = radius["tolerance"]["described"]
+    lines = [f"Radius verdict ({radius['quantity']} against {tol})"]
+    if radius.get("value") is None:
+        lines.append(f"  NOT EVALUATED — {radius.get('note') or 'no value'}")
+        return lines
+    U = radius.get("U")
+    from .uncertainty import format_value
+
+    meas = f"{radius['value']:.6g} mm (U not available)" if U is None else \
+        f"{format_value(float(radius['value']), float(U), 'mm')} (k = 2)"
+    acc = radius.get("accepted")
+    lines.append(f"  {radius['verdict'].upper()}: measured {meas}"
+                 + ("" if acc is None else f" — {'accepted' if acc else 'not accepted'}"))
+    lines.append(f"  decision rule: {radius['rule_name']}")
+    al = (radius.get("acceptance_lower"), radius.get("acceptance_upper"))
+    if radius["rule"] == "guard-banded" and None not in al:
+        lines.append(f"  acceptance limits (TL ∓ U): {al[0]:.6g} … {al[1]:.6g} mm")
+    if radius.get("p_conform") is not None:
+        lines.append(f"  probability that the radius is within the tolerance: {100 * radius['p_conform']:.1f} % "
+                     "(normal distribution)")
+    if radius.get("note"):
+        lines.append(f"  note: {radius['note']}")
+    return lines

@@ -135,6 +135,10 @@ def format_result(d: dict) -> str:
             out.append("")
             # the form's warnings are among the result's own, printed once under "Warnings" below
             out.append(format_form(d["form"], skip_warnings=d.get("warnings") or ()))
+    if isinstance(d.get("verdict"), dict) and isinstance(d["verdict"].get("radius"), dict):
+        from ..conformity import verdict_lines
+
+        out += [""] + verdict_lines(d["verdict"]["radius"])
     if d.get("warnings"):
         out.append("")
         out.append("Warnings")
