@@ -5,10 +5,9 @@ Usage: python scripts/demo_records.py [LOT_FOLDER] [--out demo_output] [--certif
 The scenario is invented: the Fernhill Optical Workshop inspects lot L-0042 of plano-convex lenses
 (part PCX-25-1000, nominal radius 1000 mm ± 0.5 %) for the Harbour Optics Guild. When LOT_FOLDER is not
 given, ``sample_images/lot-L0042`` is used if it holds images; otherwise a small lot is generated with the
-synthetic interferogram model (seeded, so every run makes the same images). A ``lot.json`` in the folder may
-give the bench set-up (``source``, ``pixel_size_um``, ``pixel_size_u_um``, ``medium_index``), the lot details
-(``lot``, ``part``, ``drawing``, ``surface``, ``operator``, ``customer``, ``order``, ``temperature_c``) and
-``radius_limits_mm`` for the capability figures.
+synthetic interferogram model (seeded, so every run makes the same images). The folder's ``lot.json`` (the lot
+sheet, read by ``ringgauge batch`` itself) gives the bench set-up, the lot details, the radius tolerance and the
+decision rule; every part gets a radius verdict under that rule.
 """
 
 from __future__ import annotations
@@ -40,7 +39,7 @@ DEMO_LOT = {
     "lot": "L-0042", "part": "PCX-25-1000", "drawing": "FOW-D-1204 rev C", "surface": "S1",
     "operator": "A. Kestrel", "customer": "Harbour Optics Guild", "order": "HOG-PO-5531",
     "temperature_c": 20.3, "source": "sodium-d", "pixel_size_um": 10.0, "pixel_size_u_um": 0.01,
-    "radius_limits_mm": [995.0, 1005.0],
+    "radius_tolerance": "1000 ± 0.5 %", "decision_rule": "guard-banded",
 }
 
 
@@ -98,16 +97,12 @@ def main() -> int:
         print(f"demo: wrote the invented shop's details to {shop_path()}", file=sys.stderr)
     shop = load_shop()
     t0 = time.monotonic()
-    args = ["batch", str(folder), "--lot", lot["lot"], "--part", lot["part"], "--drawing", lot["drawing"],
-            "--surface", lot["surface"], "--operator", lot["operator"], "--customer", lot["customer"],
-            "--order", lot["order"], "--temperature", str(lot["temperature_c"]), "--source", lot["source"],
-            "--pixel-size", str(lot["pixel_size_um"]), "--pixel-size-u", str(lot["pixel_size_u_um"]),
-            "--chart", str(out / f"{lot['lot']}-control-chart.png")]
-    if lot.get("medium_index") is not None:
-        args += ["--medium-index", str(lot["medium_index"])]
-    if lot.get("radius_limits_mm"):
-        args += ["--radius-limits", *(str(x) for x in lot["radius_limits_mm"])]
-    run(args)
+    if not (folder / "lot.json").exists():
+        (folder / "lot.json").write_text(json.dumps(DEMO_LOT, indent=2, ensure_ascii=False) + "\n")
+    # the lot sheet beside the images carries the details, set-up, radius tolerance and decision rule
+    print(f"demo: ringgauge batch {folder} (details, set-up and tolerance from {folder / 'lot.json'})",
+          file=sys.stderr)
+    run(["batch", str(folder), "--chart", str(out / f"{lot['lot']}-control-chart.png")])
     print(f"demo: lot processed in {time.monotonic() - t0:.1f} s", file=sys.stderr)
 
     from ringgauge.records import RecordFilter, open_store
@@ -121,9 +116,8 @@ def main() -> int:
             doc, path, _ = issue_certificate(store, rec.id, tmp, shop)
             final = path.replace(out / f"{doc.number}.pdf")
             written.append(final)
-        doc, path = issue_lot_report(store, lot["lot"], out / ".lot-report.pdf", shop,
-                                     radius_limits=tuple(lot["radius_limits_mm"]) if lot.get("radius_limits_mm")
-                                     else None)
+        _print_radius_verdicts(store.find(RecordFilter(lot=lot["lot"])))
+        doc, path = issue_lot_report(store, lot["lot"], out / ".lot-report.pdf", shop)
         written.append(path.replace(out / f"{doc.number}-lot-report.pdf"))
         where = store.where
     print(f"demo: records store {where}")
@@ -132,6 +126,23 @@ def main() -> int:
     if written:
         run(["certificate", "verify", str(written[0])])
     return 0
+
+
+def _print_radius_verdicts(records) -> None:
+    """Each part's radius verdict, by serial, as the lot report lists them."""
+    from ringgauge.records.lot import lot_tables, summarise_lot
+
+    if not records:
+        return
+    summary = summarise_lot(records, records[0].meta.lot or "")
+    t = lot_tables(records, summary)
+    print(f"demo: radius verdicts against {summary.radius_tolerance or 'no tolerance'} "
+          f"({summary.decision_rule or 'no rule'}):")
+    for r in t["rows"]:
+        acc = "" if r["accepted"] is None else (" (accepted)" if r["accepted"] else " (not accepted)")
+        print(f"  {r['serial']:<14} R = {r['radius']:<18} mm  {r['radius_verdict']}{acc}")
+    print("  counts: " + ", ".join(f"{k} {v}" for k, v in t["radius_counts"])
+          + (f"; accepted {t['accepted']}" if t["accepted"] else ""))
 
 
 if __name__ == "__main__":

@@ -384,7 +384,8 @@ def lot_tables(records, summary: LotSummary) -> dict:
         rows.append({
             "record": "—" if e.record_id is None else str(e.record_id), "serial": e.label,
             "image": e.image_name or "—", "verdict": e.verdict,
-            "radius_verdict": rv.get("verdict") or ("—" if not e.radius_tolerance else "not evaluated"),
+            "radius_verdict": ("analysis failed" if e.status == "failed" else
+                               rv.get("verdict") or ("—" if not e.radius_tolerance else "not evaluated")),
             "accepted": None if not rv or rv.get("accepted") is None else bool(rv["accepted"]),
             "radius": pm(e.radius_mm, e.radius_U_mm, dr),
             "power": pm(e.power_fringes, e.power_U_fringes, dp),
