@@ -55,17 +55,27 @@ class BenchSetup:
         check_positive("pixel size", self.pixel_size_um, "µm")
         if self.pixel_size_y_um is not None:
             check_positive("pixel size along y", self.pixel_size_y_um, "µm")
-        if self.pixel_size_u_um < 0 or (self.pixel_size_y_u_um or 0) < 0:
-            raise InputError("pixel size uncertainty cannot be negative")
-        if self.pixel_size_u_um > 0.2 * self.pixel_size_um:
+        # "not (u >= 0)" also refuses NaN, which slips through "u < 0"
+        if not (self.pixel_size_u_um >= 0) or not ((self.pixel_size_y_u_um or 0) >= 0):
+            raise InputError("pixel size uncertainty must be a finite number, not negative")
+        if not (self.pixel_size_u_um <= 0.2 * self.pixel_size_um) or not (
+                (self.pixel_size_y_u_um or 0) <= 0.2 * (self.pixel_size_y_um or self.pixel_size_um)):
             raise InputError(
                 f"pixel size uncertainty {self.pixel_size_u_um} µm is over 20 % of the pixel size; recalibrate"
             )
         check_positive("medium index", self.medium_index, "")
         if not 1.0 <= self.medium_index <= 2.5:
             raise InputError(f"gap medium index {self.medium_index} is outside 1.0-2.5 (air is 1.0, water 1.333)")
-        if self.medium_index_u < 0:
-            raise InputError("medium index uncertainty cannot be negative")
+        if not (0 <= self.medium_index_u <= 0.5):
+            raise InputError(f"medium index uncertainty must be a finite number from 0 to 0.5, got {self.medium_index_u}")
+        u_wl = self.source.wavelength_u_nm
+        if u_wl is not None and not (0 <= u_wl <= 0.1 * self.source.wavelength_nm):
+            raise InputError(f"wavelength uncertainty must be a finite number from 0 to 10 % of the wavelength, got "
+                             f"{u_wl} nm")
+        fwhm = getattr(self.source, "fwhm_nm", 0.0) or 0.0
+        if not (0 <= fwhm <= 0.5 * self.source.wavelength_nm):
+            raise InputError(f"source bandwidth (FWHM) must be a finite number from 0 to half the wavelength, got "
+                             f"{fwhm} nm")
         if self.fringe_kind not in ("dark", "bright"):
             raise InputError("fringe kind must be 'dark' or 'bright'")
         if self.test_diameter_mm is not None:

@@ -166,6 +166,22 @@ def _fsync_dir(folder: Path) -> None:
         os.close(dfd)
 
 
+def check_target(target: str | os.PathLike, what: str) -> Path:
+    """Refuse an output file that cannot be written, before any work is done (one-line message naming ``what``):
+    a folder, a special file, a missing or read-only folder."""
+    p = Path(target)
+    if p.is_dir():
+        raise InputError(f"{what} {p} is a folder; give a file name in it, e.g. {p / 'out'}")
+    if p.exists() and not p.is_file():
+        raise InputError(f"{what} {p} is not a regular file")
+    parent = p.parent
+    if not parent.is_dir():
+        raise InputError(f"{what} {p}: folder {parent} does not exist")
+    if not os.access(parent, os.W_OK | os.X_OK) or (p.exists() and not os.access(p, os.W_OK)):
+        raise InputError(f"{what} {p}: no permission to write there")
+    return p
+
+
 def dumps_json(obj: Any, *, what: str = "output", indent: int | None = 2) -> str:
     """``json.dumps`` that never writes NaN or Infinity (invalid JSON); a non-finite number is a one-line error."""
     try:

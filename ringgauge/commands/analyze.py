@@ -9,15 +9,14 @@ import sys
 
 from ..bench_setup import BenchSetup
 from ..errors import InputError
+from ..options import add_max_megapixels, number
 from ._help import ExampleFormatter
 from ..sources import SOURCES, custom_source, get_source
 
 
 def _float(text: str) -> float:
-    try:
-        return float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+    """Any finite number (kept for commands that import it; new options use ringgauge.options.number)."""
+    return number("")(text)
 
 
 def _has(mod: str) -> bool:
@@ -29,20 +28,21 @@ def _has(mod: str) -> bool:
 
 def add_setup_arguments(p: argparse.ArgumentParser) -> None:
     """Bench set-up options shared by ``analyze`` and ``batch``."""
+    add_max_megapixels(p)
     g = p.add_argument_group("light source (one of)")
     g.add_argument("--source", metavar="NAME", help=f"built-in lamp: {', '.join(SOURCES)} (see 'ringgauge sources')")
-    g.add_argument("--wavelength", type=_float, metavar="NM", help="wavelength in nm (standard air), e.g. 589.29")
-    g.add_argument("--wavelength-u", type=_float, metavar="NM", help="its standard uncertainty in nm")
-    g.add_argument("--bandwidth", type=_float, default=0.0, metavar="NM", help="FWHM of a broadband (LED) source, nm")
+    g.add_argument("--wavelength", type=number("--wavelength", lo=200, hi=2000, unit="nm"), metavar="NM", help="wavelength in nm (standard air), e.g. 589.29")
+    g.add_argument("--wavelength-u", type=number("--wavelength-u", lo=0, hi=50, unit="nm"), metavar="NM", help="its standard uncertainty in nm")
+    g.add_argument("--bandwidth", type=number("--bandwidth", lo=0, hi=500, unit="nm"), default=0.0, metavar="NM", help="FWHM of a broadband (LED) source, nm")
     g = p.add_argument_group("pixel scale (one of)")
-    g.add_argument("--pixel-size", type=_float, metavar="UM", help="object-space pixel size, µm per pixel")
-    g.add_argument("--pixel-size-u", type=_float, default=0.0, metavar="UM", help="its standard uncertainty (k = 1), µm")
-    g.add_argument("--pixel-size-y", type=_float, metavar="UM", help="pixel size along rows if it differs from x, µm")
-    g.add_argument("--pixel-size-y-u", type=_float, metavar="UM", help="its standard uncertainty, µm")
+    g.add_argument("--pixel-size", type=number("--pixel-size", lo=0, hi=1e4, lo_open=True, unit="µm"), metavar="UM", help="object-space pixel size, µm per pixel")
+    g.add_argument("--pixel-size-u", type=number("--pixel-size-u", lo=0, hi=1e3, unit="µm"), default=0.0, metavar="UM", help="its standard uncertainty (k = 1), µm")
+    g.add_argument("--pixel-size-y", type=number("--pixel-size-y", lo=0, hi=1e4, lo_open=True, unit="µm"), metavar="UM", help="pixel size along rows if it differs from x, µm")
+    g.add_argument("--pixel-size-y-u", type=number("--pixel-size-y-u", lo=0, hi=1e3, unit="µm"), metavar="UM", help="its standard uncertainty, µm")
     g.add_argument("--bench", metavar="NAME", help="use a calibrated bench profile (see 'ringgauge calibrate')")
     g = p.add_argument_group("gap and fringes")
-    g.add_argument("--medium-index", type=_float, default=1.0, metavar="N", help="refractive index of the gap (air 1.0)")
-    g.add_argument("--medium-index-u", type=_float, default=0.0, metavar="U", help="its standard uncertainty")
+    g.add_argument("--medium-index", type=number("--medium-index", lo=1, hi=2.5), default=1.0, metavar="N", help="refractive index of the gap (air 1.0)")
+    g.add_argument("--medium-index-u", type=number("--medium-index-u", lo=0, hi=0.5), default=0.0, metavar="U", help="its standard uncertainty")
     g.add_argument(
         "--fringe-kind", choices=("dark", "bright"), default="dark",
         help="rings counted as orders: dark (r² = mλR/n, default) or bright (r² = (m − ½)λR/n)",
@@ -60,7 +60,8 @@ def add_setup_arguments(p: argparse.ArgumentParser) -> None:
     g.add_argument("--radius-tolerance", metavar="TEXT",
                    help="radius of curvature tolerance in mm: '1000 ± 5', '1000 +/- 5', '1000 ± 0.5 %%', "
                         "'995..1005' or '1000 +5/-3'; each part gets pass / fail / conditional")
-    g.add_argument("--radius-limits", nargs=2, type=_float, metavar=("LO_MM", "HI_MM"),
+    g.add_argument("--radius-limits", nargs=2, type=number("--radius-limits", lo=-1e7, hi=1e7, unit="mm"),
+                   metavar=("LO_MM", "HI_MM"),
                    help="the same as lower and upper limits in mm")
 
 
@@ -146,6 +147,10 @@ def run(args: argparse.Namespace) -> int:
     from ..pipeline import analyse_files
     from ..report.text import format_result
 
+    from ..settings import check_target, dumps_json, write_text_atomic
+
+    if args.out:
+        check_target(args.out, "--out")  # before the analysis, not after it
     setup, warnings = setup_from_args(args)
     progress = None
     if not args.quiet and sys.stderr.isatty():
@@ -156,14 +161,11 @@ def run(args: argparse.Namespace) -> int:
         print("\r" + " " * 60 + "\r", end="", file=sys.stderr)
     d = result.to_dict()
     d["warnings"] = warnings + d["warnings"]
+    text = dumps_json(d, what="the result") if (args.out or args.json) else None  # never NaN/Infinity
     if args.out:
-        try:
-            with open(args.out, "w", encoding="utf-8") as fh:
-                json.dump(d, fh, indent=2, ensure_ascii=False)
-        except OSError as exc:
-            raise InputError(f"cannot write {args.out}: {exc.strerror or exc}") from None
+        write_text_atomic(args.out, text + "\n")
     if args.json:
-        print(json.dumps(d, indent=2, ensure_ascii=False))
+        print(text)
     else:
         print(format_result(d))
     if getattr(args, "record", False):

@@ -8,6 +8,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
+from ..options import integer
 from ._help import ExampleFormatter
 from ._records_common import add_db_argument, add_meta_arguments, meta_from_args, open_from_args
 
@@ -35,7 +36,7 @@ def register(sub) -> None:
     g.add_argument("--lot-sheet", metavar="FILE.json",
                    help="the lot's details, set-up and tolerances (default: lot.json in FOLDER if there); "
                         "options given here override it — fields in the README")
-    g.add_argument("--workers", type=int, metavar="N",
+    g.add_argument("--workers", type=integer("--workers", lo=1, hi=256), metavar="N",
                    help=f"parallel analyses (default: all {os.cpu_count() or 1} cores)")
     g.add_argument("--recursive", action="store_true", help="also take images from sub-folders")
     g.add_argument("--retry-failed", action="store_true",
@@ -87,6 +88,12 @@ def run(args) -> int:
         print(f"ringgauge: warning: {w}", file=sys.stderr)
     images = find_images(args.folder, recursive=args.recursive)
     meta = meta_from_args(args)
+    from ..settings import check_target, dumps_json
+
+    # output files are checked before the lot runs (a folder given as --chart used to fail after the records)
+    check_target(Path(args.chart) if args.chart else Path(f"{_safe(meta.lot)}-control-chart.png"), "--chart")
+    if args.report:
+        check_target(args.report, "--report")
     with open_from_args(args) as store:
         print(f"lot {meta.lot}: {len(images)} image(s) in {args.folder}; records store {store.where}", file=sys.stderr)
         run_ = run_lot(store, images, setup, meta, workers=args.workers, retry_failed=args.retry_failed,
@@ -113,8 +120,7 @@ def run(args) -> int:
                        "skipped": run_.skipped, "interrupted": run_.interrupted, "elapsed_s": run_.elapsed_s},
                "summary": summary.to_dict(), "chart": str(chart) if chart_written else None,
                "report": None if report is None else {"number": report[0], "path": report[1]}}
-        json.dump(out, sys.stdout, indent=2, ensure_ascii=False)
-        sys.stdout.write("\n")
+        print(dumps_json(out, what="the lot summary"))
     else:
         print(_summary_text(run_, summary, chart if chart_written else None, report))
     if run_.interrupted:
