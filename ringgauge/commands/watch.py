@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 
 from ..errors import InputError
@@ -76,7 +77,16 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--open-timeout must lie between 0 and 120 s")
     for w in warnings:
         print(f"warning: {w}", file=sys.stderr)
-    source = open_source(args.camera, pace=args.realtime, timeout_s=timeout)
+    try:
+        source = open_source(args.camera, pace=args.realtime, timeout_s=timeout)
+    except InputError as exc:
+        from ..live import source as live_source
+
+        if live_source.STUCK_OPEN:  # a native thread still blocked in the backend: leave without waiting for it
+            print(f"ringgauge: {exc}", file=sys.stderr, flush=True)
+            sys.stdout.flush()
+            os._exit(exc.exit_code)
+        raise
     opts = LiveOptions(settle_frames=settle_frames, settle_fringes=settle_fringes)
     try:
         session = LiveSession(source, setup, opts)

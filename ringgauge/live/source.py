@@ -46,13 +46,14 @@ class SourceFrame:
 
 
 def _quiet_opencv():
+    # FFmpeg's own log lines ("[http @ 0x…] …") would follow our one-line message on the terminal
+    os.environ.setdefault("OPENCV_FFMPEG_LOGLEVEL", "-8")
     import cv2
 
     try:
         cv2.utils.logging.setLogLevel(cv2.utils.logging.LOG_LEVEL_SILENT)
     except AttributeError:  # pragma: no cover - older builds
         pass
-    os.environ.setdefault("OPENCV_FFMPEG_LOGLEVEL", "-8")
     return cv2
 
 
@@ -179,13 +180,22 @@ def _open_capture(spec, timeout_s: float):
             box["error"] = exc
 
     th = threading.Thread(target=work, name="ringgauge-open-source", daemon=True)
+    t0 = time.monotonic()
     th.start()
-    th.join(timeout_s)
+    # the backend honours the open timeout itself; the wait here is the backstop for one that does not
+    th.join(timeout_s + 3.0)
     if th.is_alive():
+        global STUCK_OPEN
+        STUCK_OPEN = True
         raise InputError(f"{spec}: the source did not answer within {timeout_s:g} s; check the address or cable")
     if "error" in box:
         raise InputError(f"{spec}: cannot open it ({box['error']})")
-    return box["cap"], box["ok"], box["first"]
+    return box["cap"], box["ok"], box["first"], time.monotonic() - t0 >= 0.9 * timeout_s
+
+
+#: set when a backend ignored the open timeout and its thread is still blocked: a command-line run then ends
+#: with os._exit so the blocked native thread cannot abort the interpreter's shutdown
+STUCK_OPEN = False
 
 
 class CaptureSource(FrameSource):
@@ -199,10 +209,13 @@ class CaptureSource(FrameSource):
                 raise InputError(f"{spec}: no such file")
             if not os.path.isfile(spec):
                 raise InputError(f"{spec}: not a file")
-        cap, ok, first = _open_capture(spec, timeout_s)
+        cap, ok, first, slow = _open_capture(spec, timeout_s)
         if not ok or first is None:
             if cap is not None:
                 cap.release()
+            if slow:
+                raise InputError(f"{spec}: the source did not answer within {timeout_s:g} s; check the address "
+                                 "or cable")
             if self.kind == "camera":
                 raise InputError(f"camera {spec}: no such camera, or it is in use by another program")
             if self.kind == "stream":

@@ -165,6 +165,9 @@ class RingTracker:
         scale = max(self.r_fit, 10.0)
         model = _Model(xs, ys, vals, self.aspect, self.lam_px_over_n, scale, self.p[:2])
         p0 = self.p.copy()
+        # the phase is linear in the model once centre and scale are fixed: a fresh linear estimate at the last
+        # centre and scale starts the fit near the right fringe however far the rings moved since the last frame
+        p0[3] = _start_phase(xs, ys, vals, p0[:3], self.aspect)
         nf = self.r_fit**2 * p0[2] / (2 * math.pi)
         x_scale = np.array([1.0, 1.0, p0[2] / max(1.0, nf * 2 * math.pi) + 1e-12, 1.0])
         res = least_squares(model.residual, p0, jac=model.jac, method="lm", x_scale=x_scale, xtol=1e-7,
@@ -186,8 +189,13 @@ class RingTracker:
         phase = float(p[3]) + (math.pi if m_med < 0 else 0.0)
         if self.phase_unwrapped is None:
             un = math.remainder(phase, 2 * math.pi)
+            self._velocity = 0.0
         else:
-            un = self.phase_unwrapped + math.remainder(phase - self.phase_unwrapped, 2 * math.pi)
+            # unwrapped against the phase predicted from the last two frames (constant ring speed), so rings moving
+            # up to half a fringe per frame faster or slower than in the last frame stay on the right fringe
+            pred = self.phase_unwrapped + self._velocity
+            un = pred + math.remainder(phase - pred, 2 * math.pi)
+            self._velocity = un - self.phase_unwrapped
         self.phase_unwrapped = un
         self.p = p
         # statistical uncertainty of q from the fit (covariance scaled by the residual variance)
