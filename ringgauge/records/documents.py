@@ -3,6 +3,10 @@
 A certificate is issued once per record; asking again reprints the issued content (same number, same
 content checksum) unless a new issue is asked for. A lot report is issued anew each time (the lot may have
 grown), and any issued document can be reprinted by its number.
+
+Every PDF written here is signed with the shop's key (:mod:`ringgauge.report.signing`; a key is made on the
+first issue when the shop has none, with a message), and the SHA-256 of the signed file is kept in the
+store, chained, so ``ringgauge certificate verify`` can tell the file is the one that was issued.
 """
 
 from __future__ import annotations
@@ -57,16 +61,21 @@ def issue_certificate(store: Store, record_id: int, out: str | Path, shop: dict,
     if not rec.intact():
         raise InputError(f"record {rec.id} fails its integrity check (its stored content was altered); "
                          "no certificate can be issued")
+    _refuse_broken_record(store, rec.id)
     earlier = store.documents(record_id=rec.id)
     if earlier and not new_issue:
         doc, reprint = earlier[-1], True
     else:
         content = certificate_content(rec, shop, approver=approver)
+        if rec.manual:
+            content["origin"] = "manual"
+            content["warnings"] = [MANUAL_NOTE] + list(content.get("warnings") or [])
         doc, reprint = store.issue("certificate", content, record_id=rec.id, lot=rec.meta.lot,
                                    prefix=shop.get("certificate_prefix") or "RG"), False
     image01, note = load_record_image(rec)
     path = render_certificate(doc.content, out, paper=paper or shop.get("paper") or "A4", result=rec.result,
                               image01=image01, image_note=note)
+    sign_and_keep(store, doc, path, shop)
     return doc, path, reprint
 
 
@@ -87,6 +96,7 @@ def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, pap
     content = lot_report_content(records, summary, shop, tolerance=tol, approver=approver)
     doc = store.issue("lot report", content, lot=lot, prefix=shop.get("certificate_prefix") or "RG")
     path = render_lot_report(doc.content, out, paper=paper or shop.get("paper") or "A4")
+    sign_and_keep(store, doc, path, shop)
     if chart_out is not None and summary.charts:
         chart_png(summary.charts, chart_out, title=f"Lot {lot}")
     return doc, path
@@ -108,8 +118,37 @@ def reprint(store: Store, number: str, out: str | Path, *, paper: str = "A4") ->
 
     doc = store.document(number)
     if doc.kind == "lot report":
-        return doc, render_lot_report(doc.content, out, paper=paper)
-    rec = store.get(doc.record_id)
-    image01, note = load_record_image(rec)
-    return doc, render_certificate(doc.content, out, paper=paper, result=rec.result, image01=image01,
-                                   image_note=note)
+        path = render_lot_report(doc.content, out, paper=paper)
+    else:
+        rec = store.get(doc.record_id)
+        image01, note = load_record_image(rec)
+        path = render_certificate(doc.content, out, paper=paper, result=rec.result, image01=image01,
+                                  image_note=note)
+    sign_and_keep(store, doc, path, {})
+    return doc, path
+
+
+MANUAL_NOTE = ("MANUAL ENTRY: the results of this record were typed in by hand, not measured by ringgauge from "
+               "the image.")
+
+
+def _refuse_broken_record(store: Store, record_id: int) -> None:
+    """No document for a record the chain check finds altered, forged or out of place."""
+    rep = store.check()
+    bad = [f for f in rep.findings if f.table == "inspection" and f.row_id == record_id]
+    if bad:
+        raise InputError(f"record {record_id} fails the records check ({bad[0].kind.lower()}: {bad[0].message}); "
+                         "no document can be issued for it")
+
+
+def sign_and_keep(store: Store, doc: IssuedDocument, path: Path, shop: dict) -> str:
+    """Sign the written PDF with the shop's key and keep its SHA-256 in the store; returns the fingerprint."""
+    import hashlib
+
+    from ..report.signing import ensure_key, sign_pdf_file, signature_box
+
+    ensure_key(shop)
+    fp = sign_pdf_file(path, reason=f"{doc.kind.capitalize()} {doc.number} issued",
+                       location=", ".join((shop.get("address") or [])[-1:]) or None, box=signature_box(path))
+    store.record_file(doc.number, hashlib.sha256(Path(path).read_bytes()).hexdigest(), signed=True, signer=fp)
+    return fp
