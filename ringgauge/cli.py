@@ -25,9 +25,11 @@ COMMANDS = (
     "batch",
     "records",
     "certificate",
+    "shop",
     "gui",
     "watch",
     "sources",
+    "paths",
 )
 
 
@@ -39,7 +41,7 @@ EXIT_CODES = (
     (3, "no trustworthy measurement could be made from the image(s), or no usable calibration"),
     (4, "the records store cannot be opened or written"),
     (5, "out of memory"),
-    (70, "internal error (a bug): one line on the terminal, details in crash.log in the settings folder"),
+    (70, "internal error (a bug): one line on the terminal, details in crash.log (see 'ringgauge paths')"),
     (130, "interrupted (Ctrl+C); work already recorded is kept"),
 )
 
@@ -66,13 +68,46 @@ def build_parser() -> argparse.ArgumentParser:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"ringgauge {__version__}")
+    _add_log_options(parser, top=True)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
         modname = f"ringgauge.commands.{name}"
         if importlib.util.find_spec(modname) is None:
             continue
         importlib.import_module(modname).register(sub)
+    _add_log_options_below(parser)
     return parser
+
+
+def _add_log_options(p: argparse.ArgumentParser, *, top: bool = False) -> None:
+    """-v / --debug / --quiet, accepted before or after the command (a sub-command's own --quiet is kept)."""
+    taken = p._option_string_actions
+    kw = {} if top else {"default": argparse.SUPPRESS}
+    g = p.add_argument_group("logging")
+    if "-v" not in taken and "--verbose" not in taken:
+        g.add_argument("-v", "--verbose", dest="log_verbose", action="count",
+                       help="more messages on the terminal (progress details)", **({"default": 0} if top else kw))
+    if "--debug" not in taken:
+        g.add_argument("--debug", dest="log_debug", action="store_true",
+                       help="everything on the terminal and in the log file", **kw)
+    if "--quiet" not in taken:
+        g.add_argument("--quiet", dest="log_quiet", action="store_true", help="errors only on the terminal", **kw)
+
+
+def _add_log_options_below(parser: argparse.ArgumentParser) -> None:
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for sp in dict.fromkeys(action.choices.values()):  # aliases map to the same parser
+                _add_log_options(sp)
+                _add_log_options_below(sp)
+
+
+def _verbosity(args) -> int:
+    if getattr(args, "log_debug", False):
+        return 2
+    if getattr(args, "log_quiet", False) or getattr(args, "quiet", False) is True:
+        return -1
+    return min(int(getattr(args, "log_verbose", 0) or 0), 1)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -81,10 +116,21 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help(sys.stderr)
         return 2
+    import logging
+
+    from . import logs
+
+    log = logs.setup(_verbosity(args))
+    log.info("ringgauge %s: %s started", __version__, getattr(args, "command", ""), extra={logs.FILE_ONLY: True})
     try:
+        if getattr(args, "max_megapixels", None) is not None:
+            from .imaging import set_pixel_budget
+
+            set_pixel_budget(args.max_megapixels)
         return int(args.func(args) or 0)
     except RinggaugeError as exc:
         print(f"ringgauge: {exc}", file=sys.stderr)
+        log.error("%s (exit %d)", exc, exc.exit_code, extra={logs.FILE_ONLY: True})
         return exc.exit_code
     except KeyboardInterrupt:
         print("ringgauge: interrupted", file=sys.stderr)
@@ -95,25 +141,18 @@ def main(argv: list[str] | None = None) -> int:
         print("ringgauge: out of memory; try a smaller image or fewer workers", file=sys.stderr)
         return 5
     except Exception as exc:  # noqa: BLE001 - last line of defence: one line, details to a log file
-        log = _write_crash_log()
-        print(
-            f"ringgauge: internal error ({type(exc).__name__}: {exc}); details in {log} — please report it",
-            file=sys.stderr,
-        )
+        where = _write_crash_log()
+        what = logs.redact_text(" ".join(f"{type(exc).__name__}: {exc}".split()))[:300]
+        print(f"ringgauge: internal error ({what}); details in {where} — please report it", file=sys.stderr)
+        logging.getLogger("ringgauge").error("internal error %s", what, extra={logs.FILE_ONLY: True})
         return 70
 
 
 def _write_crash_log() -> str:
-    try:
-        from .settings import path
+    """The traceback goes to the bounded crash log in the log folder (never fails; says where it went)."""
+    from .logs import write_crash
 
-        p = path("crash.log")
-        with open(p, "a", encoding="utf-8") as fh:
-            fh.write(traceback.format_exc())
-            fh.write("\n")
-        return str(p)
-    except Exception:  # noqa: BLE001
-        return "(no log could be written)"
+    return write_crash(traceback.format_exc())
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -386,7 +386,7 @@ def load_frame(path: str | os.PathLike, *, max_megapixels: float | None = None) 
     if header.megapixels > budget:
         raise ImageError(
             f"{p}: the {header.format} header declares {header.width}x{header.height} pixels "
-            f"({header.megapixels:.0f} megapixels), more than the limit of {budget:g} megapixels; "
+            f"({header.megapixels:.3g} megapixels), more than the limit of {budget:g} megapixels; "
             "raise it with --max-megapixels if the image is genuine"
         )
     if header.complex_valued:

@@ -416,39 +416,45 @@ def default_store_path() -> Path:
 
 
 def is_server_url(target: str | os.PathLike | None) -> bool:
-    return isinstance(target, str) and target.split(":", 1)[0].lower() in ("postgresql", "postgres")
+    from .address import looks_like_server
+
+    return looks_like_server(target)
 
 
 def describe_target(target: str | os.PathLike | None) -> str:
-    """The store's location for messages, with any password hidden."""
-    if target is None:
-        return str(default_store_path())
-    if is_server_url(target):
-        import re
+    """The store's location for messages, with any password hidden (``user@host:port/dbname``)."""
+    from .address import display
 
-        return re.sub(r"://([^:/@]+):[^@]*@", r"://\1:***@", str(target))
-    return str(target)
+    return display(target)
 
 
 def open_store(target: str | os.PathLike | None = None, *, migrate_to: int | None = None) -> "Store":
     """Open (and create or upgrade) the store at ``target``.
 
-    ``None`` is the default SQLite file in the user's ringgauge folder; a ``postgresql://`` URL is a shared
-    server; anything else is a SQLite file path. ``migrate_to`` stops the upgrade at a schema version (tests).
+    ``None`` is ``RINGGAUGE_DB`` when set, else the default SQLite file in the user's ringgauge folder; a server
+    address (``postgresql://`` URL, key=value string, ``service=NAME``) is a shared server; a SQLite path
+    otherwise (see :mod:`ringgauge.records.address`; anything else is refused). The password of a server
+    address is used to connect and never shown. ``migrate_to`` stops the upgrade at a schema version (tests).
     """
-    if is_server_url(target):
+    from .address import parse_address
+
+    if target is None:
+        target = os.environ.get("RINGGAUGE_DB") or None
+    addr = parse_address(target, option="--db" if target is None or not os.environ.get("RINGGAUGE_DB")
+                         or target != os.environ.get("RINGGAUGE_DB") else "RINGGAUGE_DB")
+    if addr.is_server:
         try:
             import psycopg
         except ImportError:  # pragma: no cover - psycopg is a declared dependency
             raise StoreError("PostgreSQL support needs the 'psycopg' package; reinstall ringgauge") from None
         try:
-            conn = psycopg.connect(str(target), autocommit=True, connect_timeout=10)
+            conn = psycopg.connect(addr.conninfo, autocommit=True, connect_timeout=10)
         except psycopg.Error as exc:
             first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-            raise StoreError(f"cannot reach the records server {describe_target(target)}: {first}") from None
-        store = Store(conn, _Postgres(), describe_target(target))
+            raise StoreError(f"cannot reach the records server {addr.display}: {addr.scrub(first)}") from None
+        store = Store(conn, _Postgres(), addr.display)
     else:
-        p = Path(target) if target is not None else default_store_path()
+        p = addr.path
         if p.is_dir():
             raise StoreError(f"{p} is a folder; give the records store as a file, e.g. {p / DEFAULT_STORE_NAME}")
         if not p.parent.exists():
