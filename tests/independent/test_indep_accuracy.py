@@ -14,10 +14,14 @@ from __future__ import annotations
 import math
 import zlib
 
+import numpy as np
 import pytest
 
 import rings_model as M
 from engine_runs import COVERAGE_MIN, measure, summary, coverage
+
+#: two-sided coverage: beyond these the reported uncertainty is too large (see test_random_coverage)
+COVER1_MAX, Z2_MIN = 0.90, 0.5
 
 W, H = 640, 480
 PIX_UM = 6.0
@@ -164,11 +168,34 @@ def test_random_radius_and_centre(seed):
     assert not o.failures(), f"{o.line()}: {'; '.join(o.failures())}"
 
 
+def _z_figures(outs):
+    z = np.array([abs(o.z) for o in outs if o.ok])
+    return float(np.mean(z <= 1)), float(np.mean(z**2)), float(np.median(z))
+
+
 @pytest.mark.slow
 def test_random_coverage():
     outs = [_rand(s) for s in RANDOM_SEEDS]
     print("\n" + "\n".join(o.line() for o in outs) + "\n" + summary(outs))
     assert coverage(outs) >= COVERAGE_MIN, summary(outs)
+    # Two-sided: the reported u must not be overstated either. For a normal z 68.3 % lie within 1u and E[z²] = 1
+    # (JCGM 100:2008 G.1); for 48 runs the share's binomial spread is ±0.07 (1 sigma), so more than 90 % within 1u,
+    # or a mean z² below 0.5, means u is too large. Measured: 0.44 within 1u, mean z² 2.7.
+    within1, mean_z2, _ = _z_figures(outs)
+    assert within1 <= COVER1_MAX, summary(outs)
+    assert mean_z2 >= Z2_MIN, f"mean z² {mean_z2:.2f}: the reported u is too large"
+
+
+@pytest.mark.slow
+@pytest.mark.xfail(strict=True, reason=(
+    "the engine understates u on these independently made images: 0.44 within 1u, mean z² 2.7, median |z| 1.05 "
+    "(a normal z gives 0.68, 1, 0.67) — Type A (sector scatter) is about 96 % of the budget and about 1.6 times "
+    "too small here; reported to the engine's owner"
+))
+def test_random_coverage_is_not_understated():
+    # the lower side at the same statistical margin as the upper side above (JCGM 100:2008 G.1)
+    within1, mean_z2, _ = _z_figures([_rand(s) for s in RANDOM_SEEDS])
+    assert within1 >= 0.55 and mean_z2 <= 2.0
 
 
 #: large frames (2.0 to 5.0 megapixels), each with its own effects

@@ -1,7 +1,8 @@
 """Harsh images: the seeded random scenes with every camera effect turned up (low visibility, strong stray light,
 blur, few electrons, mottled light). The issue sets no accuracy target for such severity, so only honesty is
 asserted: the engine either refuses with a message, or its radius lies within 3 reported standard uncertainties
-of the truth. A confident wrong answer is the one outcome an inspector cannot detect.
+of the truth. A confident wrong answer is the one outcome an inspector cannot detect; refusing nearly everything
+is the other way to fail, so the number of refusals is capped.
 """
 
 from __future__ import annotations
@@ -12,6 +13,10 @@ import rings_model as M
 from engine_runs import measure, summary
 
 SEEDS = list(range(40))
+#: Refusing is honest, but an engine that refuses everything would pass every per-image test above: at most this
+#: many of the 40 may be refused (measured: 10 refused, the other 30 measured). Invented scenes, so the cap is
+#: the project's own choice (common practice, no source): about a quarter of images this harsh, plus 2.
+MAX_REFUSED = 12
 
 #: seeds where the engine gives a confident wrong radius; reported to its owner with the figures, marked until fixed
 KNOWN_FAILURES: dict[int, str] = {}
@@ -45,3 +50,5 @@ def test_harsh_figures():
     for o in outs:
         if not o.ok:
             assert o.error and "\n" not in o.error
+    refused = sum(not o.ok for o in outs)
+    assert refused <= MAX_REFUSED, f"{refused} of {len(outs)} harsh images refused (at most {MAX_REFUSED}): " + summary(outs)
