@@ -47,7 +47,10 @@ def analyse_image(path: str, setup) -> dict:
     return analyse_files([path], setup).to_dict()
 
 
-def _worker_init() -> None:
+def _worker_init(parent_pid: int | None = None) -> None:
+    # A worker must never outlive the lot run that started it (a killed parent used to leave its workers and
+    # the multiprocessing helper running): see _die_with_parent.
+    _die_with_parent(parent_pid)
     # Ctrl-C goes to the whole process group; only the parent decides what to do with it.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     # Each worker uses one core: numerical libraries must not start their own thread pools on top.
@@ -55,6 +58,42 @@ def _worker_init() -> None:
         os.environ.setdefault(var, "1")
     # a damaged file is recorded as failed with its reason; the decoder's own log line would only be noise
     os.environ.setdefault("OPENCV_LOG_LEVEL", "OFF")
+
+
+#: how often a worker checks that its parent is still alive (seconds)
+PARENT_WATCH_S = 0.5
+
+
+def _die_with_parent(parent_pid: int | None) -> None:
+    """Make this (worker) process end when ``parent_pid`` ends, however it ends (even SIGKILL).
+
+    On Linux the kernel does it: ``prctl(PR_SET_PDEATHSIG, SIGKILL)``. Everywhere, a daemon thread also watches
+    ``os.getppid()``: when the parent dies the worker is re-parented and the pid changes, and the worker exits
+    at once. Workers write nothing (only the parent writes the store), so ending them abruptly loses nothing.
+    Once the workers are gone, multiprocessing's resource tracker sees its last pipe close and exits too.
+    """
+    import threading
+
+    parent = parent_pid if parent_pid is not None else os.getppid()
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            libc = ctypes.CDLL(None, use_errno=True)
+            pr_set_pdeathsig = 1
+            libc.prctl(pr_set_pdeathsig, int(signal.SIGKILL), 0, 0, 0)
+        except (OSError, AttributeError):  # pragma: no cover - no prctl: the watch thread still works
+            pass
+    if os.getppid() != parent:  # the parent died before the kernel watch was in place
+        os._exit(1)
+
+    def watch() -> None:
+        while True:
+            time.sleep(PARENT_WATCH_S)
+            if os.getppid() != parent:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="ringgauge-parent-watch", daemon=True).start()
 
 
 def _run_one(fn: Callable, path: str, setup) -> tuple[dict | None, str | None]:
@@ -201,7 +240,8 @@ def run_lot(
     ctx = multiprocessing.get_context("spawn")
 
     def new_pool(n: int) -> ProcessPoolExecutor:
-        return ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_worker_init)
+        return ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_worker_init,
+                                   initargs=(os.getpid(),))
 
     pool = new_pool(min(n_workers, len(todo)))
     pending: dict = {}
