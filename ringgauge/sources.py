@@ -109,7 +109,7 @@ SOURCES: dict[str, LightSource] = {
     )
 }
 
-#: The usual default when a drawing states none (Hg e-line) — from memory (DOMAIN.md §3).
+#: The usual default when a drawing states none (Hg e-line) — from memory (common practice, no source).
 DEFAULT_SOURCE = "mercury-e"
 
 

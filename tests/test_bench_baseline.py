@@ -30,7 +30,8 @@ def edge_circles(R_mm, lam_nm, px_um, m_values, centre=(400.0, 300.0)):
 
 
 def test_worked_example_radius_recovered_from_exact_edges():
-    # R = 1 m, lambda = 589.3 nm gives r_10 = 2.4276 mm (DOMAIN worked check, derived from r^2 = m lambda R)
+    # R = 1 m, lambda = 589.3 nm gives r_10 = 2.4276 mm (derived from r^2 = m lambda R: Hecht, Optics, Newton's
+    # rings — from memory)
     assert math.sqrt(10 * 589.3e-6 * 1000.0) == pytest.approx(2.4276, abs=1e-4)
     circles = edge_circles(1000.0, 589.3, 5.0, range(1, 15))
     R, centre, n = bb.fit_radius(circles, px_mm=5e-3, lam_mm=589.3e-6)

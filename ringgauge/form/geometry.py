@@ -14,7 +14,7 @@ viewing direction, i.e. along the optical axis; it is the one used for the repor
 References
 ----------
 "Analysis of using Newton's ring to test lens surface radius", Opt. Eng. 61(12) 125107 (2022): exact forms and
-the steep-part error. Worked example (project domain notes §3, derived): R = 50 mm, D = 25 mm, N = 3,
+the steep-part error. Worked example (computed by hand from those forms): R = 50 mm, D = 25 mm, N = 3,
 lambda = 546.07 nm -> 26.21 µm paraxial, 25.80 µm normal, 24.98 µm axial.
 """
 
@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from ..errors import InputError
 from ..uncertainty import Budget, BudgetRow, make_budget
 
-STEEP_LIMIT = 0.2  # h / R above which the paraxial shop formula is flagged (domain notes §3)
+STEEP_LIMIT = 0.2  # h / R above which the paraxial shop formula is flagged (Opt. Eng. 61(12) 125107 (2022))
 
 
 @dataclass(frozen=True)

@@ -95,7 +95,7 @@ def test_generated_images_of_known_form(name, results):
     ax, ay = s.truth["aperture_centre_px"]
     assert r.aperture.centre_px == pytest.approx((ax, ay), abs=1.0)
     assert r.aperture_diameter_mm == pytest.approx(APERTURE_MM, rel=0.01)
-    # units: one fringe = λ/2 (domain notes §3)
+    # units: one fringe = λ/2 of surface height (ISO 10110-5:2015, fringe spacing in reflection — from memory)
     d = r.to_dict()
     assert d["power_nm"] == pytest.approx(d["power_fringes"] * 546.074 / 2)
     assert d["power_u_fringes"] > 0 and d["power_u_nm"] > 0

@@ -14,8 +14,9 @@ from ringgauge.form.geometry import (
 )
 
 
-def test_worked_example_of_the_domain_notes():
-    # Domain notes §3 worked example (derived there from the Opt. Eng. 61(12) 125107 (2022) formulas):
+def test_worked_example_of_the_exact_radius_difference():
+    # Worked example computed by hand from the exact forms of Opt. Eng. 61(12) 125107 (2022), "Analysis of using
+    # Newton's ring to test lens surface radius" (and the paraxial shop formula 4 N λ R² / D²):
     # R = 50 mm, D = 25 mm, N = 3, λ = 546.07 nm -> 26.21 µm paraxial, 25.80 µm normal, 24.98 µm axial
     assert 1e3 * delta_r_paraxial(3, 25, 50, 546.07) == pytest.approx(26.21, abs=0.005)
     assert 1e3 * delta_r_normal(3, 25, 50, 546.07) == pytest.approx(25.80, abs=0.005)
@@ -61,7 +62,7 @@ def test_budget_includes_the_plate_radius():
     assert row.contribution == pytest.approx(abs(row.sensitivity) * 0.002)
     assert b_rs.value == pytest.approx(50.0 - 1e-3 * 24.976, abs=1e-5)
     assert b_dr.u_c > 0
-    assert warn and "steep" in warn[0]  # h/R = 0.25 > 0.2 (domain notes §3)
+    assert warn and "steep" in warn[0]  # h/R = 0.25 > 0.2: steep (Opt. Eng. 61(12) 125107 (2022))
     _, _, warn = radius_budget(1.0, 0.02, 10.0, 0.01, 50.0, 0.002, 546.07, 0.001)
     assert not warn
 

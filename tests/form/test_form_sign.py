@@ -1,7 +1,7 @@
 """Sign of the power: frames with a changed gap, the press test, and "unknown" without evidence.
 
-Physics (domain notes §1, common practice): when the gap grows uniformly, fringes move toward the contact
-point; pressing gently moves fringes toward the wider gap.
+Physics (common practice, no source; follows from fringes being contours of equal gap): when the gap grows
+uniformly, fringes move toward the contact point; pressing gently moves fringes toward the wider gap.
 """
 
 import numpy as np

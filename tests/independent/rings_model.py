@@ -2,7 +2,7 @@
 
 A spherical lens of radius R rests on an optical flat; the gap t(r) between them is the exact sphere sagitta
 t = R - sqrt(R^2 - r^2) (or the paraxial r^2 / 2R) plus a contact offset t0 (dust or a film lifting the lens).
-In reflection, contact is dark [DOMAIN.md §1: half-wave phase flip at one face]. The fringe shape is either the
+In reflection, contact is dark [half-wave phase flip at one face: Hecht, *Optics*, Newton's rings — from memory]. The fringe shape is either the
 two-beam one, (1 - cos delta) / 2, or the multiple-beam Airy reflectance F sin^2(delta/2) / (1 + F sin^2(delta/2))
 with F = 4 rho / (1 - rho)^2 [Hecht, *Optics*, thin-film chapter], delta = 4 pi n t / lambda; both are 0 at
 contact. Broadband light averages the fringe shape over the spectrum (lines with weights, or a Gaussian band).

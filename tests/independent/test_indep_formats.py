@@ -148,7 +148,8 @@ def test_text_report_gives_radius_with_unit_and_expanded_uncertainty(files, caps
     assert m, out
     R, U = float(m.group(1)), float(m.group(2))
     assert abs(R - scene.radius_mm) / scene.radius_mm <= RADIUS_TOL
-    # The pixel scale enters R squared, so u(R)/R = 2 u_p / p dominates here (DOMAIN.md §2, derived); GUM
+    # The pixel scale enters R squared, so u(R)/R = 2 u_p / p dominates here (derived from R = n s / lambda, s in
+    # px^2 times p^2; sensitivity by JCGM 100:2008 5.1.3); GUM
     # expanded uncertainty U = k u_c with k = 2 (JCGM 100:2008). U is printed to two significant digits.
     expected_U = 2.0 * 2.0 * scene.radius_mm * u_pix / scene.pixel_um
     assert U == pytest.approx(expected_U, rel=0.05), out

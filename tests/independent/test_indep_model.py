@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+import tmm
 from scipy.optimize import least_squares
 
 import rings_model as M
@@ -21,19 +22,22 @@ def _dark_ring_radius_mm(scene: M.Scene, m: int) -> float:
 
 
 def test_dark_ring_textbook_examples():
-    # lambda = 500 nm, D10 (dark) = 5.0 mm gives R = 1.25 m: textbook exercise quoted in DOMAIN.md §2
+    # lambda = 500 nm, D10 (dark) = 5.0 mm gives R = 1.25 m: course exercise, original book not traced (common
+    # practice, no source); it follows from r_m^2 = m lambda R (Hecht, Optics, Newton's rings — from memory)
     sc = M.Scene(radius_mm=1250.0, spectrum=((500.0, 1.0),), sag="paraxial")
     assert 2 * _dark_ring_radius_mm(sc, 10) == pytest.approx(5.0, abs=1e-4)
-    # R = 3 m, D8 (dark) = 7.2 mm gives lambda = 540 nm: Amrita virtual lab, quoted in DOMAIN.md §2
+    # R = 3 m, D8 (dark) = 7.2 mm gives lambda = 540 nm: Amrita Virtual Lab, Newton's rings exercises,
+    # http://vlab.amrita.edu/?sub=1&brch=189&sim=335&cnt=5
     sc = M.Scene(radius_mm=3000.0, spectrum=((540.0, 1.0),), sag="paraxial")
     assert 2 * _dark_ring_radius_mm(sc, 8) == pytest.approx(7.2, abs=1e-4)
-    # R = 1 m, lambda = 589.3 nm: r10 = 2.4276 mm (DOMAIN.md §2, derived there from r^2 = m lambda R)
+    # R = 1 m, lambda = 589.3 nm: r10 = sqrt(10 * 589.3e-6 * 1000) = 2.4276 mm (derived from r^2 = m lambda R)
     sc = M.Scene(radius_mm=1000.0, spectrum=((589.3, 1.0),), sag="exact")
     assert _dark_ring_radius_mm(sc, 10) == pytest.approx(2.4276, abs=1e-4)
 
 
 def test_liquid_gap_shrinks_rings_by_root_n():
-    # D10 of 14 mm in air becomes 12.7 mm with a liquid of n = 1.215: Amrita virtual lab (DOMAIN.md §2)
+    # D10 of 14 mm in air becomes 12.7 mm with a liquid of n = 1.215: Amrita Virtual Lab, refractive index by
+    # Newton's rings, http://vlab.amrita.edu/?sub=1&brch=189&sim=1520&cnt=5
     lam = 589.3
     R = (7.0**2) / (10 * lam * 1e-6)  # the radius that gives D10 = 14 mm in air
     sc = M.Scene(radius_mm=R, spectrum=((lam, 1.0),), sag="paraxial", medium_index=1.215)
@@ -41,10 +45,9 @@ def test_liquid_gap_shrinks_rings_by_root_n():
 
 
 def test_airy_shape_matches_transfer_matrix_reference():
-    tmm = pytest.importorskip("tmm")
     # gap reflectance of an air film between two n = 1.5 glasses at normal incidence: the general-purpose
     # transfer-matrix package tmm is the reference (Airy formula, Hecht, Optics, thin-film chapter)
-    rho = ((1.5 - 1.0) / (1.5 + 1.0)) ** 2  # Fresnel, 4 % per face (DOMAIN.md §1)
+    rho = ((1.5 - 1.0) / (1.5 + 1.0)) ** 2  # Fresnel, 4 % per face (Hecht, Optics, Fresnel equations — from memory)
     sc = M.Scene(spectrum=((546.074, 1.0),), face_reflectance=rho)
     F = 4 * rho / (1 - rho) ** 2
     rmax = F / (1 + F)
@@ -52,7 +55,7 @@ def test_airy_shape_matches_transfer_matrix_reference():
         ours = rmax * float(M._fringe_shape(np.array([d_nm * 1e-6]), sc)[0])
         ref = tmm.coh_tmm("s", [1.5, 1.0, 1.5], [math.inf, d_nm, math.inf], 0.0, 546.074)["R"]
         assert ours == pytest.approx(ref, abs=1e-9)
-    assert rmax == pytest.approx(0.148, abs=0.001)  # 14.8 % peak for rho = 0.04 (DOMAIN.md §1, derived)
+    assert rmax == pytest.approx(0.148, abs=0.001)  # 14.8 % peak for rho = 0.04 (derived: F / (1 + F))
 
 
 def _visibility_at_order(scene: M.Scene, m: float) -> float:
@@ -68,7 +71,7 @@ def test_sodium_doublet_beats_near_490_orders_with_contrast_one_third():
     sc = M.Scene(spectrum=M.sodium_doublet())
     orders = np.arange(400, 600, 2.0)
     vis = np.array([_visibility_at_order(sc, m) for m in orders])
-    # beat at lambda / delta-lambda / 2 = about 490 orders (DOMAIN.md §4, derived); D2 twice as bright as D1 (NIST,
+    # beat at lambda / delta-lambda / 2 = about 490 orders (derived from the NIST ASD lines); D2 twice as bright as D1 (NIST,
     # HyperPhysics) leaves a visibility of (2 - 1) / (2 + 1) = 1/3 at the beat (derived)
     assert 470 <= orders[np.argmin(vis)] <= 510
     assert vis.min() == pytest.approx(1 / 3, abs=0.01)
