@@ -163,7 +163,9 @@ def run(args: argparse.Namespace) -> int:
     d["warnings"] = warnings + d["warnings"]
     text = dumps_json(d, what="the result") if (args.out or args.json) else None  # never NaN/Infinity
     if args.out:
-        write_text_atomic(args.out, text + "\n")
+        from ..records.keys import seal_result  # sealed: 'records supersede --result' takes it as measured
+
+        write_text_atomic(args.out, dumps_json(seal_result(d), what="the result") + "\n")
     if args.json:
         print(text)
     else:

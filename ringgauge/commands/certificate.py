@@ -11,7 +11,11 @@ from ._records_common import add_db_argument, db_target, open_from_args
 USAGE = """ringgauge certificate RECORD_ID [--out FILE.pdf]      certificate of one inspection record
        ringgauge certificate --lot LOT [--out FILE.pdf]    lot report (statistics, control chart, all parts)
        ringgauge certificate --reprint NUMBER [--out ...]  lay out an issued document again
-       ringgauge certificate verify FILE.pdf               check a certificate or lot report"""
+       ringgauge certificate verify FILE.pdf               check a certificate or lot report
+
+Every certificate and lot report is signed with the shop's key when issued (see 'ringgauge shop').
+'verify' checks the signature, that it covers the whole file, the signer, the embedded content, every printed
+table cell, and (with the records store) the issued file, the records chain and the record."""
 
 
 def register(sub) -> None:
@@ -92,7 +96,7 @@ def run(args) -> int:
 
 
 def run_verify(args, file: str) -> int:
-    from ..report.pdf import verify_pdf
+    from ..report.verify import verify_pdf
 
     store = None
     target = db_target(args)
@@ -106,17 +110,19 @@ def run_verify(args, file: str) -> int:
     finally:
         if store is not None:
             store.close()
-    print(f"{v.path}: {v.kind or 'document'} {v.number or '?'}, {v.pages} page(s)")
+    print(f"{v.path}: {v.kind or 'document'} {v.number or '?'}, {v.pages} page(s), "
+          f"{'signed' if v.signed else 'UNSIGNED'}")
     for ok, what in v.checks:
         print(f"  {'ok  ' if ok else 'FAIL'}  {what}")
     if v.checksum:
         print(f"  content checksum {v.checksum}")
+    print(f"  file SHA-256 {v.file_sha256}")
     if store is None:
         print("  (no records store to compare with; give --db to check it was issued there)")
     if not v.ok:
-        print(f"ringgauge: {file} did NOT verify", file=sys.stderr)
+        print(f"ringgauge: {file} did NOT verify (failed: {', '.join(dict.fromkeys(v.failed()))})", file=sys.stderr)
         return 1
-    print("verified")
+    print("verified: signature valid and trusted" if v.signed else "verified (unsigned document, by the older checks)")
     return 0
 
 

@@ -7,6 +7,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
+from ..options import number
 from ..uncertainty import format_value
 from ._records_common import add_db_argument, open_from_args
 
@@ -57,21 +58,51 @@ def register(sub) -> None:
 
     q = rs.add_parser("supersede", help="correct a record: append a new record that replaces it, with a reason",
                       description="Append a corrected copy of a record. Give the reason and what changes: "
-                                  "details (serial, lot, ...) and/or a new result from 'ringgauge analyze --json'.")
+                                  "details (serial, lot, ...) and/or a new measurement: --reanalyse measures the "
+                                  "record's image again with its bench set-up (--image names another image), "
+                                  "--result takes a result file written and sealed by 'ringgauge analyze --out'. "
+                                  "A result ringgauge did not seal (typed or edited by hand) is refused unless "
+                                  "--manual is given; it is then kept as a MANUAL ENTRY, shown as such by "
+                                  "'records show' and on the certificate.")
     add_db_argument(q)
     q.add_argument("record_id", type=int, metavar="RECORD_ID")
     q.add_argument("--reason", required=True, help="why the record is corrected (kept with the correction)")
     for name in ("lot", "part", "drawing", "surface", "serial", "operator", "customer"):
         q.add_argument(f"--{name}", help=f"corrected {name}")
     q.add_argument("--order", dest="order_ref", help="corrected order reference")
-    q.add_argument("--temperature", dest="temperature_c", type=float, metavar="DEG_C", help="corrected temperature")
+    q.add_argument("--temperature", dest="temperature_c", type=number("--temperature", lo=-40, hi=80, unit="°C"),
+                   metavar="DEG_C", help="corrected temperature")
     q.add_argument("--notes", help="corrected notes")
-    q.add_argument("--result", metavar="FILE.json", help="a new result (JSON from 'ringgauge analyze --json')")
+    q.add_argument("--result", metavar="FILE.json", help="a new result written by 'ringgauge analyze --out FILE.json'")
+    q.add_argument("--reanalyse", action="store_true", help="measure the record's image again with its set-up")
+    q.add_argument("--image", metavar="PATH", help="with --reanalyse: measure this image instead of the stored one")
+    q.add_argument("--manual", action="store_true",
+                   help="accept a --result ringgauge did not seal, kept and shown as a manual (hand-typed) entry")
     q.set_defaults(func=run_supersede)
 
-    q = rs.add_parser("check", help="check every record's checksum (finds records altered outside ringgauge)")
-    filters(q)
-    q.set_defaults(func=run_check, include_superseded=True)
+    q = rs.add_parser("check", help="walk the records' hash chain: finds altered, deleted, inserted, reordered or "
+                                    "forged records, damaged JSON, and disabled protection",
+                      description="Check the whole store: every row against the hash chain sealed with the shop's "
+                                  "records key, every record against its own checksum, the append-only triggers, "
+                                  "and the end of the chain against the one this computer last wrote. Names every "
+                                  "problem; exit status 1 when there is one.")
+    add_db_argument(q)
+    q.set_defaults(func=run_check)
+
+    q = rs.add_parser("init-server", help="set up a PostgreSQL store: an owner role holds the tables, the benches' "
+                                          "login may only insert and read",
+                      description="Run once by the database administrator, with --db naming the database as a "
+                                  "login that may create roles. Creates (or repairs) the owner role that holds the "
+                                  "tables and their append-only triggers and the benches' login role with INSERT "
+                                  "and SELECT only, brings the schema up to date as the owner, re-enables any "
+                                  "disabled trigger, and binds the store to this ringgauge folder's records key. "
+                                  "The bench password is read from RINGGAUGE_BENCH_PASSWORD (or none: set it "
+                                  "yourself). --print-sql prints the statements instead of running them.")
+    add_db_argument(q)
+    q.add_argument("--owner", default="ringgauge_owner", metavar="ROLE", help="owner role (default ringgauge_owner)")
+    q.add_argument("--bench", default="ringgauge_bench", metavar="ROLE", help="benches' login (default ringgauge_bench)")
+    q.add_argument("--print-sql", action="store_true", help="print the SQL script, run nothing")
+    q.set_defaults(func=run_init_server)
 
     q = rs.add_parser("lots", help="list the lots in the store with their record counts")
     add_db_argument(q)
@@ -154,6 +185,7 @@ def run_show(args) -> int:
     if args.json:
         d = rec.to_dict()
         d["intact"] = rec.intact()
+        d["manual_entry"] = rec.manual
         d["history"] = [{"id": r.id, "created_utc": r.created_utc, "supersede_reason": r.supersede_reason}
                         for r in chain]
         d["documents"] = [{"number": x.number, "issued_utc": x.issued_utc} for x in docs]
@@ -200,6 +232,9 @@ def run_show(args) -> int:
             f"  radius          {_pm(rec.radius_mm, rec.radius_U_mm, 'mm')}",
             f"  power           {_pm(rec.power_fringes, rec.power_U_fringes, 'fringes')}",
         ]
+    from ..records.store import ORIGIN_TEXT
+
+    lines.append(f"  origin          {ORIGIN_TEXT.get(rec.origin, rec.origin)}")
     lines.append(f"  integrity       {'intact (checksum matches)' if rec.intact() else 'ALTERED: checksum does not match'}")
     if len(chain) > 1:
         lines.append("  history:")
@@ -248,38 +283,85 @@ def run_supersede(args) -> int:
     changes = {k: getattr(args, k) for k in ("lot", "part", "drawing", "surface", "serial", "operator",
                                               "customer", "order_ref", "temperature_c", "notes")
                if getattr(args, k) is not None}
-    result = None
+    if args.result and args.reanalyse:
+        raise InputError("give either --result FILE.json or --reanalyse, not both")
+    if args.image and not args.reanalyse:
+        raise InputError("--image goes with --reanalyse (measure that image again)")
+    if args.manual and not args.result:
+        raise InputError("--manual goes with --result FILE.json (a result typed or edited by hand)")
+    result, origin, how = None, None, ""
     if args.result:
+        from ..records.keys import check_seal
+
         p = Path(args.result)
         try:
             result = json.loads(p.read_text(encoding="utf-8"))
         except FileNotFoundError:
             raise InputError(f"{p}: no such file") from None
+        except (OSError, UnicodeDecodeError) as exc:
+            raise InputError(f"{p}: cannot be read ({getattr(exc, 'strerror', None) or exc})") from None
         except json.JSONDecodeError as exc:
             raise InputError(f"{p}: not valid JSON (line {exc.lineno}: {exc.msg})") from None
         if not isinstance(result, dict) or "setup" not in result or "image" not in result:
-            raise InputError(f"{p}: not a ringgauge result (expected the JSON of 'ringgauge analyze --json')")
-    if not changes and result is None:
-        raise InputError("nothing to correct: give the corrected details (e.g. --serial) and/or --result FILE.json")
+            raise InputError(f"{p}: not a ringgauge result (expected the JSON of 'ringgauge analyze --out')")
+        why = check_seal(result)
+        if why is None:
+            origin, how = "sealed result", "new result (sealed by ringgauge)"
+        elif args.manual:
+            origin, how = "manual", "MANUAL ENTRY (typed or edited by hand)"
+        else:
+            raise InputError(f"{p} is not accepted as a measurement: {why}. Re-measure with --reanalyse, or keep "
+                             "it as a hand-typed value with --manual (flagged as a manual entry)")
+        from ..records.keys import SEAL_KEY
+
+        result = {k: v for k, v in result.items() if k != SEAL_KEY}
+    if not changes and result is None and not args.reanalyse:
+        raise InputError("nothing to correct: give the corrected details (e.g. --serial), --reanalyse, or "
+                         "--result FILE.json")
     with open_from_args(args) as store:
-        new = store.supersede(args.record_id, args.reason, meta_changes=changes, result=result)
-    what = ", ".join(f"{k} = {v}" for k, v in changes.items()) + (", new result" if result is not None else "")
-    print(f"record {new.id} supersedes record {args.record_id} ({what.strip(', ')}); reason: {args.reason}")
+        if args.reanalyse:
+            from ..records.reanalyse import reanalyse
+
+            old = store.get(args.record_id)
+            result, note = reanalyse(old, args.image)
+            origin, how = "re-analysed", f"measured again ({note})"
+        new = store.supersede(args.record_id, args.reason, meta_changes=changes, result=result, origin=origin)
+    what = ", ".join([f"{k} = {v}" for k, v in changes.items()] + ([how] if how else []))
+    print(f"record {new.id} supersedes record {args.record_id} ({what}); reason: {args.reason}")
+    if new.manual:
+        print(f"record {new.id} is a MANUAL ENTRY: its results were not measured by ringgauge, and its "
+              "certificate will say so", file=sys.stderr)
     return 0
 
 
 def run_check(args) -> int:
-    from ..records import RecordFilter
-
-    flt = _filter(args)
     with open_from_args(args) as store:
-        recs = store.find(RecordFilter(**{**flt.__dict__, "include_superseded": True}))
+        rep = store.check()
         where = store.where
-    bad = [r for r in recs if not r.intact()]
-    for r in bad:
-        print(f"record {r.id}: ALTERED — its stored content no longer matches the checksum written with it")
-    print(f"{len(recs)} record(s) checked in {where}: {len(recs) - len(bad)} intact, {len(bad)} altered")
-    return 1 if bad else 0
+    for f in rep.findings:
+        print(f.message if f.message.startswith(("record ", "issued ")) else f"{f.kind}: {f.message}")
+    for n in rep.notes:
+        print(f"note: {n}")
+    bad = rep.bad_records()
+    print(f"{rep.records} record(s) checked in {where}: {rep.records - len(bad)} intact, {len(bad)} altered; "
+          f"{rep.documents} issued document(s); chain of {rep.entries} entries "
+          + ("intact" if rep.ok else f"— {len(rep.findings)} problem(s)"))
+    return 0 if rep.ok else 1
+
+
+def run_init_server(args) -> int:
+    from ..records.server import init_server, init_sql
+    from ._records_common import db_target
+
+    target = db_target(args)
+    if args.print_sql:
+        print(init_sql(args.owner, args.bench))
+        return 0
+    if not target:
+        raise InputError("give the PostgreSQL database: --db postgresql://ADMIN@HOST/DBNAME (or set RINGGAUGE_DB)")
+    for line in init_server(target, args.owner, args.bench):
+        print(line)
+    return 0
 
 
 def run_lots(args) -> int:

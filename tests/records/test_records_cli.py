@@ -63,13 +63,21 @@ def test_supersede_and_show_history(db, capsys):
 
 
 def test_supersede_with_a_new_result_file(db, capsys, tmp_path, make_result):
+    from ringgauge.records.keys import seal_result
+
     f = tmp_path / "new.json"
+    # a result file ringgauge did not write (made or edited by hand) is not a measurement
     f.write_text(json.dumps(make_result("1", radius_mm=51.9)))
+    code, _, err = run(capsys, "records", "supersede", "1", "--db", db, "--reason", "re-analysed", "--result", str(f))
+    assert code == 2 and "not accepted as a measurement" in err and "no ringgauge seal" in err
+    # one sealed by ringgauge (what 'analyze --out' writes) is
+    f.write_text(json.dumps(seal_result(make_result("1", radius_mm=51.9))))
     code, out, _ = run(capsys, "records", "supersede", "1", "--db", db, "--reason", "re-analysed", "--result", str(f))
-    assert code == 0
+    assert code == 0 and "sealed by ringgauge" in out
     code, out, _ = run(capsys, "records", "show", "4", "--db", db, "--json")
     d = json.loads(out)
     assert d["radius_mm"] == 51.9 and [h["id"] for h in d["history"]] == [1, 4] and d["intact"]
+    assert d["origin"] == "sealed result" and not d["manual_entry"] and "ringgauge_seal" not in d["result"]
     f.write_text("{broken")
     code, _, err = run(capsys, "records", "supersede", "4", "--db", db, "--reason", "x", "--result", str(f))
     assert code == 2 and "not valid JSON" in err
@@ -193,7 +201,7 @@ def test_commands_against_postgresql(pg_url, tmp_path, capsys, monkeypatch, make
     code, out, _ = run(capsys, "certificate", "2", "--out", "c.pdf")
     assert code == 0
     code, out, _ = run(capsys, "certificate", "verify", "c.pdf")
-    assert code == 0 and "identical to certificate" in out and "postgresql://" in out
+    assert code == 0 and "identical to certificate" in out and pg_url.split("/")[3].split("?")[0] in out
 
 
 @pytest.mark.slow
