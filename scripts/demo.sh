@@ -33,7 +33,7 @@ done
 hr "4. Part A-0093 against test plate TP-0517: two frames with the gap changed, tolerance 3/2(0.5)"
 $RG analyze "$S"/testplate/PCC-51-A_frame1.png "$S"/testplate/PCC-51-A_frame2.png \
     --source mercury-e --pixel-size 25 --pixel-size-u 0.02 --test-diameter 18 --tolerance "3/2(0.5)" \
-    --test-plate-radius 51.68 --test-plate-radius-u 0.002 || exit 1
+    --test-plate-radius 51.68 --test-plate-radius-u 0.002 --test-plate-kind convex || exit 1
 
 if [ -f scripts/demo_records.py ]; then
   hr "5. Lot FH-2604 into the records store, certificates and lot report"

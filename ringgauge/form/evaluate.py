@@ -25,7 +25,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..errors import AnalysisError, InputError
-from .aperture import Aperture, find_aperture
+from .aperture import Aperture, aperture_for
 from .fit import GapFit, finesse_coefficient, fit_gap
 from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxial, radius_budget
 from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
@@ -261,7 +261,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
             raise InputError(f"{f.name}: frame size {f.data.shape[::-1]} differs from the first frame's "
                              f"{shape0[::-1]}; frames of one part must come from the same camera set-up")
     say(0.0, "finding the part's edge")
-    ap = find_aperture(frames[0].data, aspect=aspect)
+    ap = aperture_for(frames[0].data, aspect=aspect, extras=setup.extras)
     warnings += list(ap.notes)
     F = finesse_coefficient(GLASS_INDEX, n)
     fits: list[GapFit] = []
@@ -270,18 +270,19 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     for i, fr_ in enumerate(frames):
         f0 = 0.05 + 0.85 * i / len(frames)
         say(f0, f"frame {i + 1}/{len(frames)}: fitting the gap")
-        data = np.asarray(fr_.data, dtype=np.float64)
+        data = np.asarray(fr_.data, dtype=np.float32)
         sat = data >= 0.999 if fr_.saturated_fraction > 0 else None
         if sat is not None:
             from scipy import ndimage
 
             sat = ndimage.binary_dilation(sat, iterations=2)
         try:
-            # later frames use the fringe shape the first frame chose: with another shape their piston (and so
-            # the frame step that gives the sign) would not be comparable
+            # later frames start from the first frame's fit (shape, light, contrast, fringe shape; piston and
+            # tilt free first): fitted alone, cos(2 pi W) lets each frame land on W or -W or in another minimum,
+            # and their pistons -- the frame steps that give the sign -- would not be comparable
             g = fit_gap(data, ap.centre_px, ap.radius_px, aspect=aspect, exclude=sat,
-                        finesse=F if i == 0 else fits[0].finesse,
-                        finesse_candidates=finesse_candidates(n) if i == 0 else None,
+                        finesse=F, finesse_candidates=finesse_candidates(n) if i == 0 else None,
+                        prior=fits[0] if i > 0 else None,
                         progress=(lambda m, i=i, f0=f0: say(f0, f"frame {i + 1}: {m}")))
         except np.linalg.LinAlgError:
             raise AnalysisError(f"{fr_.name}: the gap model could not be fitted (singular); check focus and "
@@ -295,7 +296,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     # Only an outward move is taken: the ray finder's known failure is reading the rim small when a fringe
     # runs along it, while the model's own edge reads slightly inside on a blurred bright rim.
     fit_radius = ap.radius_px
-    scale = max(1.0, fits[0].edge_scale)
+    scale = 1.0 if ap.manual else max(1.0, fits[0].edge_scale)  # a hand-set aperture is evaluated as given
     if scale != 1.0:
         notes.append(f"part edge refined from the fringe model: radius {ap.radius_px:.2f} -> "
                      f"{ap.radius_px * scale:.2f} px")
@@ -360,10 +361,8 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     if setup.press_test:
         sign = sign_from_press(setup.press_test)
     if len(fits) > 1:
-        # cos(2 pi W) cannot tell W from -W: each frame's fit may land on either. Orient every frame like the
-        # first (same sign of the shape terms) before comparing pistons, or a step of d reads as -d (mod 1).
-        ref = np.asarray(fits[0].coeffs[1:])
-        orient = [1.0 if float(np.dot(np.asarray(f.coeffs[1:]), ref)) >= 0 else -1.0 for f in fits]
+        # every later frame was fitted from the first frame's parameters and keeps its orientation of W
+        orient = [1.0] * len(fits)
         pist = [o * f.coeffs[0] for o, f in zip(orient, fits)]
         upist = [math.sqrt(f.covariance[0, 0]) if f.covariance is not None else 0.05 for f in fits]
         sf = sign_from_pistons(pist, upist, gap_change=(setup.extras or {}).get("gap_change", "increasing"))

@@ -96,7 +96,20 @@ def gap_basis(u, v, nterms: int = len(TERMS)) -> np.ndarray:
 
 def _poly2(u, v, degree: int) -> np.ndarray:
     """Monomials u^i v^j with i + j <= degree, (n, N) array."""
-    return np.stack([u**i * v**j for d in range(degree + 1) for i in range(d, -1, -1) for j in [d - i]])
+    u = np.asarray(u, dtype=np.float64)
+    v = np.asarray(v, dtype=np.float64)
+    up = [np.ones_like(u)]
+    vp = [np.ones_like(v)]
+    for _ in range(degree):
+        up.append(up[-1] * u)
+        vp.append(vp[-1] * v)
+    out = np.empty((sum(d + 1 for d in range(degree + 1)),) + u.shape)
+    k = 0
+    for d in range(degree + 1):
+        for i in range(d, -1, -1):
+            np.multiply(up[i], vp[d - i], out=out[k])
+            k += 1
+    return out
 
 
 @dataclass(frozen=True)
@@ -135,6 +148,9 @@ class GapFit:
     alternatives: dict = field(default_factory=dict)  # model-choice label -> coefficients refitted under it
     edge_scale: float = 1.0  # part edge found from the model, as a multiple of radius_px (1 = as given)
     finesse: float = 0.0  # coefficient of finesse of the fringe shape the fit used (0 = two-beam cosine)
+    params: np.ndarray | None = None  # raw parameter vector (gap, modulation, light) before the orientation
+    transform: tuple[bool, bool] = (False, False)  # (half-fringe shift, W -> -W) taking params to coeffs
+    illum_degree: int = 3
 
     def gap(self, u, v) -> np.ndarray:
         """Gap in fringes at normalised coordinates."""
@@ -145,32 +161,53 @@ class _Problem:
     """Pixels of one frame inside the aperture, with the design pieces that do not change during a fit.
 
     Intensity model: I = s + L(u, v) · (1 + M(u, v) · cos(2 pi W(u, v))), with s a uniform stray level,
-    L the illumination (quadratic), M = m0 + m1 u + m2 v the fringe modulation and W the gap in fringes.
+    L the illumination (polynomial), M = m0 + m1 u + m2 v the fringe modulation and W the gap in fringes.
     The illumination multiplies the fringe term as it multiplies the light: a free amplitude polynomial
     would absorb a sub-fringe power (cos of a small quadratic is itself nearly quadratic).
-    Parameter vector: [gap terms (nw), m0, m1, m2, s, L terms (6)]; s and L enter linearly.
+    Parameter vector: [gap terms (nw), m0, m1, m2, s, L terms]; s and L enter linearly.
+    Arrays are (points, terms), C order, so products and the normal equations need no copies.
     """
 
     NM = 3
 
     def __init__(self, u, v, y, illum_degree=2, finesse=0.0):
         self.illum_degree = illum_degree
-        self.u, self.v, self.y = u, v, y
+        self.u = np.asarray(u, dtype=np.float64)
+        self.v = np.asarray(v, dtype=np.float64)
+        self.y = np.asarray(y, dtype=np.float64)
         self.F = float(finesse)
-        self.PL = _poly2(u, v, illum_degree)
-        self.PM = _poly2(u, v, 1)
-        self.Z = gap_basis(u, v)
+        self.PLT = np.ascontiguousarray(_poly2(self.u, self.v, illum_degree).T)
+        self.PMT = np.stack([np.ones_like(self.u), self.u, self.v], axis=1)
+        mono = _poly2(self.u, self.v, _MONO_DEG)  # (28, N) in the order of _illum_monomials
+        idx = [(i, d - i) for d in range(_MONO_DEG + 1) for i in range(d, -1, -1)]
+        Zc = np.array([[Cz[i, j] for (i, j) in idx] for Cz in _ZMONO])  # (terms, 28)
+        self.ZT = np.ascontiguousarray((Zc @ mono).T)  # (N, terms)
+
+    @property
+    def PL(self):
+        return self.PLT.T
+
+    @property
+    def PM(self):
+        return self.PMT.T
+
+    @property
+    def Z(self):
+        return self.ZT.T
 
     def _parts(self, c, m):
-        W = np.tensordot(c, self.Z[: len(c)], axes=1)
+        W = self.ZT[:, : len(c)] @ c
         ph = 2 * np.pi * W
-        M = m @ self.PM
+        M = self.PMT @ m
         return ph, M
 
     def design(self, c, m):
         ph, M = self._parts(c, m)
         f = 1.0 + M * self.shape(ph)
-        return np.vstack([np.ones_like(f), self.PL * f]).T
+        X = np.empty((f.size, 1 + self.PLT.shape[1]))
+        X[:, 0] = 1.0
+        np.multiply(self.PLT, f[:, None], out=X[:, 1:])
+        return X
 
     def shape(self, ph):
         """Fringe shape: cos(ph) for two-beam fringes; the multiple-beam (Airy) profile for F > 0, scaled to
@@ -188,7 +225,11 @@ class _Problem:
 
     def linear(self, c, m):
         X = self.design(c, m)
-        lin, *_ = np.linalg.lstsq(X, self.y, rcond=None)
+        A = X.T @ X
+        try:
+            lin = np.linalg.solve(A + 1e-12 * np.trace(A) * np.eye(A.shape[0]), X.T @ self.y)
+        except np.linalg.LinAlgError:
+            lin, *_ = np.linalg.lstsq(X, self.y, rcond=None)
         return lin, X
 
     def projected_residual(self, c, m):
@@ -200,27 +241,49 @@ class _Problem:
             self._kappa = float(np.sqrt(self.y.size) * max(np.std(self.y), 1e-6))
         return self._kappa
 
+    def _stray_limits(self):
+        ybar = float(np.mean(self.y))
+        return -0.1 * abs(ybar), 0.6 * abs(ybar)
+
     def full_residual(self, p, nw):
-        """Residuals, plus one row that keeps the modulation physical (|m0| <= 1: intensity cannot go
-        below the stray level); the row is zero inside that range."""
+        """Residuals, plus two rows that keep the model physical: |M| <= 1 over the disc, i.e.
+        |m0| + |(m1, m2)| <= 1 (intensity cannot go below the stray level), and a stray level s between
+        -10 % and 60 % of the mean intensity. Without the second, s -> +inf, L -> -inf with L*M finite fits
+        as well and frees the fringe amplitude from the illumination (and flips the meaning of the
+        modulation's sign). The rows are zero inside the ranges."""
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
-        r = self.design(c, m) @ lin - self.y
-        pen = self._penalty_weight() * max(0.0, abs(m[0]) - 1.0)
-        return np.append(r, pen)
+        ph, M = self._parts(c, m)
+        L = self.PLT @ lin[1:]
+        r = np.empty(self.y.size + 2)
+        r[:-2] = lin[0] + L * (1.0 + M * self.shape(ph)) - self.y
+        k = self._penalty_weight()
+        lo, hi = self._stray_limits()
+        r[-2] = k * max(0.0, abs(m[0]) + math.hypot(m[1], m[2]) - 1.0)
+        r[-1] = k * (max(0.0, lin[0] - hi) - max(0.0, lo - lin[0])) / max(hi, 1e-6)
+        return r
 
     def full_jac(self, p, nw):
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
         ph, M = self._parts(c, m)
         cs = self.shape(ph)
-        L = lin[1:] @ self.PL
-        X = np.vstack([np.ones_like(cs), self.PL * (1.0 + M * cs)])
-        Jw = self.Z[:nw] * (2 * np.pi * L * M * self.dshape(ph))
-        Jm = self.PM * (L * cs)
-        J = np.vstack([Jw, Jm, X]).T
-        row = np.zeros((1, J.shape[1]))
-        if abs(m[0]) > 1.0:
-            row[0, nw] = self._penalty_weight() * np.sign(m[0])
-        return np.vstack([J, row])
+        L = self.PLT @ lin[1:]
+        N = self.y.size
+        nL = self.PLT.shape[1]
+        J = np.zeros((N + 2, nw + self.NM + 1 + nL))
+        np.multiply(self.ZT[:, :nw], (2 * np.pi * L * M * self.dshape(ph))[:, None], out=J[:N, :nw])
+        np.multiply(self.PMT, (L * cs)[:, None], out=J[:N, nw : nw + 3])
+        J[:N, nw + 3] = 1.0
+        np.multiply(self.PLT, (1.0 + M * cs)[:, None], out=J[:N, nw + 4 :])
+        k = self._penalty_weight()
+        g = math.hypot(m[1], m[2])
+        if abs(m[0]) + g > 1.0:
+            J[N, nw] = k * np.sign(m[0])
+            if g > 0:
+                J[N, nw + 1 : nw + 3] = k * m[1:3] / g
+        lo, hi = self._stray_limits()
+        if lin[0] > hi or lin[0] < lo:
+            J[N + 1, nw + self.NM] = k / max(hi, 1e-6)
+        return J
 
     def start(self, c, m=(-0.8, 0.0, 0.0)):
         m = np.asarray(m, dtype=float)
@@ -236,7 +299,143 @@ def normalised_coords(shape, centre_px, radius_px, aspect=1.0):
     return u, v
 
 
-def fit_gap(
+# ---------------------------------------------------------------------------------------------------------
+# Polynomials on a pixel grid: each Zernike term as exact monomial coefficients C[i, j] of u^i v^j, so a model
+# is evaluated on a whole (cropped) frame with separable Horner sums (numpy polygrid2d) instead of one
+# (terms x pixels) array per term.
+
+_MONO_DEG = 6
+
+
+def _zernike_monomials(n: int, m: int, deg: int = _MONO_DEG) -> np.ndarray:
+    """Exact coefficients C[i, j] (u^i v^j) of the unnormalised Zernike term R_n^|m| cos/sin(|m| theta)."""
+    from scipy.signal import convolve2d
+
+    am = abs(m)
+    size = deg + 1
+    ang = np.zeros((size, size))
+    for k in range(am + 1):  # (u + i v)^am = sum_k C(am, k) u^(am-k) (i v)^k
+        ik = 1j**k
+        val = ik.real if m >= 0 else ik.imag
+        if abs(val) > 0.5:
+            ang[am - k, k] += math.comb(am, k) * round(val)
+    out = np.zeros((size, size))
+    for k in range((n - am) // 2 + 1):
+        c = (-1) ** k * math.factorial(n - k) / (
+            math.factorial(k) * math.factorial((n + am) // 2 - k) * math.factorial((n - am) // 2 - k)
+        )
+        j = (n - 2 * k - am) // 2  # rho^(n-2k) cos(m th) = (u^2 + v^2)^j Re((u + i v)^am)
+        P = np.zeros((size, size))
+        for l in range(j + 1):
+            P[2 * l, 2 * (j - l)] += math.comb(j, l)
+        out += c * convolve2d(P, ang)[:size, :size]
+    return out
+
+
+_ZMONO = np.stack([_zernike_monomials(n, m) for _, n, m in TERMS])
+
+
+def _gap_monomials(c) -> np.ndarray:
+    return np.tensordot(np.asarray(c, dtype=float), _ZMONO[: len(c)], axes=1)
+
+
+def _illum_monomials(lin_L, degree: int) -> np.ndarray:
+    C = np.zeros((degree + 1, degree + 1))
+    k = 0
+    for d in range(degree + 1):
+        for i in range(d, -1, -1):
+            C[i, d - i] = lin_L[k]
+            k += 1
+    return C
+
+
+def _grid(C, uc, vr) -> np.ndarray:
+    """Polynomial with coefficients C[i, j] (u^i v^j) on the grid of columns ``uc`` and rows ``vr``: (rows, cols)."""
+    return np.polynomial.polynomial.polygrid2d(uc, vr, C).T
+
+
+class _Crop:
+    """The part of a frame around the aperture (to 1.15 radii), with its normalised axis coordinates."""
+
+    def __init__(self, img, centre_px, radius_px, aspect, reach=1.15):
+        H, W = img.shape
+        cx, cy = centre_px
+        ry = radius_px / aspect
+        self.x0 = max(0, int(math.floor(cx - reach * radius_px)))
+        self.x1 = min(W, int(math.ceil(cx + reach * radius_px)) + 1)
+        self.y0 = max(0, int(math.floor(cy - reach * ry)))
+        self.y1 = min(H, int(math.ceil(cy + reach * ry)) + 1)
+        if self.x1 - self.x0 < 8 or self.y1 - self.y0 < 8:
+            raise AnalysisError("the aperture lies outside the frame; give the part's edge by hand")
+        self.img = np.asarray(img[self.y0 : self.y1, self.x0 : self.x1], dtype=np.float32)
+        self.uc = (np.arange(self.x0, self.x1, dtype=np.float64) - cx) / radius_px
+        self.vr = (np.arange(self.y0, self.y1, dtype=np.float64) - cy) * aspect / radius_px
+        self.rho2 = self.uc[None, :] ** 2 + self.vr[:, None] ** 2
+        self.shape = self.img.shape
+        self.full_shape = (H, W)
+
+    def points(self, mask):
+        iy, ix = np.nonzero(mask)
+        return self.uc[ix], self.vr[iy], self.img[iy, ix].astype(np.float64)
+
+    def paste(self, mask) -> np.ndarray:
+        out = np.zeros(self.full_shape, dtype=bool)
+        out[self.y0 : self.y1, self.x0 : self.x1] = mask
+        return out
+
+
+def _model_map(crop: _Crop, p, nw, finesse, illum_degree) -> np.ndarray:
+    """The fitted intensity model over the whole crop (float64, rows x cols)."""
+    c, m, lin = p[:nw], p[nw : nw + 3], p[nw + 3 :]
+    W = _grid(_gap_monomials(c), crop.uc, crop.vr)
+    shp = _Problem.__new__(_Problem)
+    shp.F = float(finesse)
+    S = shp.shape(2 * np.pi * W)
+    del W
+    M = m[0] + m[1] * crop.uc[None, :] + m[2] * crop.vr[:, None]
+    L = _grid(_illum_monomials(lin[1:], illum_degree), crop.uc, crop.vr)
+    return lin[0] + L * (1.0 + M * S)
+
+
+def _decimate(crop: _Crop, target_radius: float, radius_px: float):
+    """Block mean of the crop so the aperture radius spans about ``target_radius`` pixels; (image, u, v, q)."""
+    q = max(1, int(radius_px // target_radius))
+    H, W = crop.shape
+    Hq, Wq = H // q, W // q
+    img = crop.img[: Hq * q, : Wq * q].reshape(Hq, q, Wq, q).mean(axis=(1, 3), dtype=np.float64)
+    uc = crop.uc[: Wq * q].reshape(Wq, q).mean(axis=1)
+    vr = crop.vr[: Hq * q].reshape(Hq, q).mean(axis=1)
+    return img, uc, vr, q
+
+
+def _smooth(a, sigma):
+    """Gaussian smoothing; wide kernels are applied on a block-averaged copy and interpolated back (the result
+    is smooth on that scale anyway), which keeps the cost independent of the width."""
+    f = int(sigma // 3)
+    if f < 2:
+        return ndimage.gaussian_filter(a, sigma)
+    H, W = a.shape
+    Hf, Wf = -(-H // f), -(-W // f)
+    pad = np.pad(a, ((0, Hf * f - H), (0, Wf * f - W)), mode="edge")
+    small = pad.reshape(Hf, f, Wf, f).mean(axis=(1, 3))
+    small = ndimage.gaussian_filter(small, sigma / f)
+    yy = (np.arange(H) - (f - 1) / 2) / f
+    xx = (np.arange(W) - (f - 1) / 2) / f
+    return ndimage.map_coordinates(small, np.meshgrid(yy, xx, indexing="ij"), order=1, mode="nearest")
+
+
+def fit_gap(*args, **kwargs) -> GapFit:
+    """See :func:`_fit_gap` (the same, with the BLAS library held to one thread: the fit's matrices are small,
+    and on a busy machine a second spinning BLAS thread costs more than it gains)."""
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - optional speed-up
+        return _fit_gap(*args, **kwargs)
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _fit_gap(*args, **kwargs)
+
+
+def _fit_gap(
     image: np.ndarray,
     centre_px: tuple[float, float],
     radius_px: float,
@@ -251,6 +450,7 @@ def fit_gap(
     finesse_candidates: tuple[float, ...] | None = None,
     illum_degree: int = 3,
     progress=None,
+    prior: GapFit | None = None,
 ) -> GapFit:
     """Fit the gap model to the pixels inside the aperture.
 
@@ -279,78 +479,135 @@ def fit_gap(
         Other plausible F values (unknown glass index, two-beam fringes): the fit is repeated with each and the
         best kept; the runner-up and a one-degree-richer illumination model give the model-choice
         sensitivities in ``GapFit.alternatives``.
+    prior : GapFit, optional
+        The fit of an earlier frame of the same part (same aperture). This frame is then fitted starting from
+        that frame's shape, illumination and contrast, with only piston and tilt free at first (a scan over the
+        piston), then all terms; its fringe shape and term count are the prior's, and the result keeps the
+        prior's orientation of the gap (W or -W), so the two pistons are directly comparable.
 
     Raises
     ------
     AnalysisError
         When the fringe field has no usable modulation.
     """
-    img = np.asarray(image, dtype=np.float64)
-    u_all, v_all = normalised_coords(img.shape, centre_px, radius_px, aspect)
+    crop = _Crop(image, centre_px, radius_px, aspect)
+    profile = None
     # leave out the blurred edge: a relative margin and at least ``edge_px`` pixels (the edge's blur
     # darkens the last pixels and would bend the high radial terms)
     r_use = min(inset, 1.0 - edge_px / radius_px)
-    inside = (u_all**2 + v_all**2) <= r_use**2
+    inside = crop.rho2 <= r_use**2
     if exclude is not None:
-        inside &= ~exclude
+        inside &= ~np.asarray(exclude[crop.y0 : crop.y1, crop.x0 : crop.x1], dtype=bool)
     n_in = int(inside.sum())
     if n_in < 200:
         raise AnalysisError("too few usable pixels inside the aperture for a form fit (under 200)")
-    stride = max(1, int(math.floor(math.sqrt(n_in / max_points))))
-    sub = np.zeros_like(inside)
-    sub[::stride, ::stride] = True
-    sel = inside & sub
-    if progress:
-        progress("estimating fringe frequency")
-    starts = _start_values(img, u_all, v_all, inside, radius_px)
-    coarse = np.zeros_like(inside)
-    cstride = max(stride, int(math.floor(math.sqrt(n_in / 4000))))
-    coarse[::cstride, ::cstride] = True
-    coarse &= inside
-    shapes = (finesse,) if not finesse_candidates else tuple(dict.fromkeys((finesse, 0.0)))
-    if progress:
-        progress(f"trying {len(starts) * 2 * len(shapes)} start values")
-    tried = []
-    for Fs in shapes:
-        cprob = _Problem(u_all[coarse], v_all[coarse], img[coarse], finesse=Fs)
+    stride = max(1, int(math.ceil(math.sqrt(n_in / max_points))))
+    sel = np.zeros_like(inside)
+    sel[::stride, ::stride] = True
+    sel &= inside
+    # coarse stage on a block-averaged copy (aperture radius ~ 150 px): start values and trials
+    dimg, duc, dvr, q = _decimate(crop, 150.0, radius_px)
+    drho2 = duc[None, :] ** 2 + dvr[:, None] ** 2
+    dinside = drho2 <= r_use**2
+    nd = int(dinside.sum())
+    cst = max(1, int(math.ceil(math.sqrt(nd / 3000))))
+    coarse = np.zeros_like(dinside)
+    coarse[::cst, ::cst] = True
+    coarse &= dinside
+    iy, ix = np.nonzero(coarse)
+    cu, cv, cy_ = duc[ix], dvr[iy], dimg[iy, ix]
+    if prior is not None:
+        if prior.params is None:
+            raise ValueError("prior fit carries no parameters")
+        nterms = len(prior.coeffs)
+        finesse = prior.finesse
+        illum_degree = prior.illum_degree
+        finesse_candidates = None
+        if progress:
+            progress("fitting from the first frame's shape (piston and tilt first)")
+        cprob = _Problem(cu, cv, cy_, illum_degree, finesse=finesse)
+        nw = nterms
+        free = np.r_[0:3, nw + 3 : len(prior.params)]  # piston, tilt, and the linear light terms
+        tried = []
+        for k in range(8):
+            p0 = prior.params.copy()
+            p0[0] += k / 8.0
+            p0[nw + 3 :] = cprob.linear(p0[:nw], p0[nw : nw + 3])[0]
+            r = _refine(cprob, p0, nw, max_nfev=25, free=free)
+            tried.append((_cost(r), r.x))
+        tried.sort(key=lambda t: t[0])
+        prob = _Problem(*crop.points(sel), illum_degree, finesse=finesse)
+        p0 = tried[0][1].copy()
+        p0[nw + 3 :] = prob.linear(p0[:nw], p0[nw : nw + 3])[0]
+        p = _refine(prob, p0, nw, max_nfev=60, free=free).x
+        p = _refine(prob, p, nw, max_nfev=100).x
+    else:
+        if progress:
+            progress("estimating fringe frequency")
+        starts = _start_values(dimg, duc, dvr, dinside, radius_px / q)
+        # coarse trials with the plain cosine: a half-fringe piston shift is the same as a negative modulation,
+        # so one modulation sign suffices; the fringe shape is chosen on the full-resolution sample below
+        if progress:
+            progress(f"trying {len(starts)} start values")
+        tried = []
+        cprob = _Problem(cu, cv, cy_, finesse=0.0)
         for c0 in starts:
-            for m0 in ((-0.8, 0, 0), (0.8, 0, 0)):
-                r = _refine(cprob, cprob.start(c0, m0), LOW_ORDER, max_nfev=30)
-                tried.append((_cost(r), Fs, tuple(r.x)))
-    tried.sort(key=lambda t: t[0])
-    if progress:
-        progress(f"fitting the gap model to {int(sel.sum())} pixels")
-    best = None
-    seen = []
-    for _, Fs, pt in tried:
-        if len(seen) == 2:
-            break
-        c = np.asarray(pt[:LOW_ORDER])
-        if any(np.allclose(np.abs(c[1:]), np.abs(o[1:]), atol=0.05) for o in seen):
-            continue
-        seen.append(c)
-        prob = _Problem(u_all[sel], v_all[sel], img[sel], illum_degree, finesse=Fs)
-        p0 = prob.start(np.concatenate([c, np.zeros(max(0, nterms - LOW_ORDER))]), pt[LOW_ORDER : LOW_ORDER + 3])
-        r = _refine(prob, p0, nterms)
-        if best is None or _cost(r) < best[0]:
-            best = (_cost(r), r.x, Fs)
-    p = best[1]
-    finesse = best[2]
-    nw = nterms
+            r = _refine(cprob, cprob.start(c0, (-0.8, 0, 0)), LOW_ORDER, max_nfev=30)
+            tried.append((_cost(r), tuple(r.x)))
+        tried.sort(key=lambda t: t[0])
+        if progress:
+            progress(f"fitting the gap model to {int(sel.sum())} pixels")
+        # the two best distinct candidates, refined with all terms on a medium sample; the better one on all
+        mid = np.zeros_like(inside)
+        mst = max(stride, int(math.ceil(math.sqrt(n_in / 6000))))
+        mid[::mst, ::mst] = True
+        mid &= inside
+        mprob = _Problem(*crop.points(mid), illum_degree, finesse=finesse)
+        best = None
+        seen = []
+        for _, pt in tried:
+            if len(seen) == 2:
+                break
+            c = np.asarray(pt[:LOW_ORDER])
+            if any(np.allclose(np.abs(c[1:]), np.abs(o[1:]), atol=0.05) for o in seen):
+                continue
+            seen.append(c)
+            p0 = mprob.start(np.concatenate([c, np.zeros(max(0, nterms - LOW_ORDER))]), pt[LOW_ORDER : LOW_ORDER + 3])
+            r = _refine(mprob, p0, nterms, max_nfev=150)
+            if best is None or _cost(r) < best[0]:
+                best = (_cost(r), r.x)
+        nw = nterms
+        p_mid = best[1]
+        profile = None
+        if abs(2 * p_mid[3]) < LOW_POWER:
+            if progress:
+                progress("low power: scanning the power against the illumination")
+            p_mid, profile = _power_profile(mprob, p_mid, nw)
+        prob = _Problem(*crop.points(sel), illum_degree, finesse=finesse)
+        p = _refine(prob, p_mid, nw, max_nfev=60).x
     # outlier pass on all pixels: dust, glints and chips leave large residuals in compact clusters
     if progress:
         progress("looking for dust and defects")
-    full = _Problem(u_all[inside], v_all[inside], img[inside], illum_degree, finesse=finesse)
-    r = full.full_residual(p, nw)[:-1]
-    sig = 1.4826 * np.median(np.abs(r - np.median(r)))
-    bad = np.zeros_like(inside)
-    bad[inside] = np.abs(r) > max(4.5 * sig, 1e-6)
+    resid = _model_map(crop, p, nw, finesse, illum_degree) - crop.img
+    r_in = resid[inside]
+    sig = 1.4826 * np.median(np.abs(r_in - np.median(r_in)))
+    bad = inside & (np.abs(resid) > max(4.5 * sig, 1e-6))
     bad = ndimage.binary_opening(bad, iterations=1)
     bad = ndimage.binary_dilation(bad, iterations=3) & inside
     sel2 = sel & ~bad
-    prob = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree, finesse=finesse)
-    res = _refine(prob, p, nw, max_nfev=200)
+    prob = _Problem(*crop.points(sel2), illum_degree, finesse=finesse)
+    res = _refine(prob, p, nw, max_nfev=100)
     alternatives = {}
+    weak_note = ""
+    if prior is None and profile is not None:
+        lo_p, hi_p, ends = profile
+        if hi_p - lo_p > 0.1:
+            # keep the end farther from the estimate as a model-choice alternative: its distance enters the
+            # budget, so the expanded uncertainty reaches over the whole interval
+            pe = max(ends, key=lambda q: abs(abs(2 * q[3]) - abs(2 * p_mid[3])))
+            alternatives["low-power ambiguity (power profile)"] = (pe[:nw].copy(), pe[nw : nw + 3].copy())
+            weak_note = (f"weak fit: powers from {lo_p:.2f} to {hi_p:.2f} fringe fit this image almost equally well "
+                         "(little power under uneven light); the uncertainty is widened to cover them")
     shape_note = ""
     if finesse_candidates:
         # the fringe shape depends on the faces' reflectance (glass index, coatings, a liquid gap): refit with
@@ -362,18 +619,19 @@ def fit_gap(
         for Fc in finesse_candidates:
             if abs(Fc - finesse) < 1e-9:
                 continue
-            pc = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree, finesse=Fc)
-            fits.append((Fc, pc, _refine(pc, res.x, nw, max_nfev=80)))
+            pc = _Problem(prob.u, prob.v, prob.y, illum_degree, finesse=Fc)
+            fits.append((Fc, pc, _refine(pc, res.x, nw, max_nfev=40)))
         fits.sort(key=lambda t: _cost(t[2]))
         finesse, prob, res = fits[0]
         alternatives["fringe shape (next best F)"] = (fits[1][2].x[:nw].copy(), fits[1][2].x[nw : nw + 3].copy())
         shape_note = f"fringe shape: coefficient of finesse F = {finesse:.3f} fitted best"
     p = res.x
-    r = res.fun[:-1]  # without the modulation row
+    r = res.fun[:-2]  # without the two constraint rows
     ndata, nvarys = r.size, p.size
     chisqr = float(np.sum(r * r))
     redchi = chisqr / max(1, ndata - nvarys)
-    corr = _correlation_factor(img, inside & ~bad, p, nw, stride, u_all, v_all, finesse, illum_degree)
+    good = inside & ~bad
+    corr = _correlation_factor(resid, good, stride)
     cov = None
     try:
         J = res.jac
@@ -384,16 +642,32 @@ def fit_gap(
     if finesse_candidates:
         if progress:
             progress("model sensitivity (illumination)")
-        alt = _Problem(u_all[sel2], v_all[sel2], img[sel2], illum_degree + 1, finesse=finesse)
-        ra = _refine(alt, alt.start(p[:nw], p[nw : nw + 3]), nw, max_nfev=60)
+        alt = _Problem(prob.u, prob.v, prob.y, illum_degree + 1, finesse=finesse)
+        ra = _refine(alt, alt.start(p[:nw], p[nw : nw + 3]), nw, max_nfev=40)
         alternatives[f"illumination model (degree {illum_degree + 1})"] = (ra.x[:nw].copy(), ra.x[nw : nw + 3].copy())
-    edge_scale = _edge_from_model(img, u_all, v_all, p, nw, finesse, illum_degree, radius_px)
+    edge_scale = _edge_from_model(resid, crop.rho2, radius_px) if prior is None else 1.0
     c, m = p[:nw], p[nw : nw + 3]
-    contrast = float(abs(m[0]))
-    c_can, m = _canonical(c, m)
-    # W -> -W and a half-fringe piston shift leave the covariance of the other terms unchanged
-    flip_m = np.sign(m[0]) != np.sign(p[nw])
-    flip_w = c_can[3] * c[3] < 0
+    contrast = _contrast(prob, p, nw)
+    bright0 = bool(m[0] * p[nw + 4] > 0)  # fringe amplitude L*M > 0: bright where W is whole
+    if prior is None:
+        c_can, m_can = _canonical(c, m, bright0)
+        flip_m = bright0
+        flip_w = bool(c_can[3] * c[3] < 0)
+    else:
+        # the prior's orientation: same half-fringe convention and the same sign of W (never re-decided here)
+        flip_m, flip_w = prior.transform
+        c_can = np.array(c, dtype=float)
+        m_can = np.array(m, dtype=float)
+        pp = prior.params
+        if bright0 != bool(pp[nw] * pp[nw + 4] > 0):
+            flip_m = not flip_m  # the fringe amplitude changed sign: a half-fringe shift
+        if flip_m:
+            c_can[0] += 0.5
+            m_can = -m_can
+        if flip_w:
+            c_can = -c_can
+        c_can[0] = c_can[0] % 1.0
+    m = m_can
     alt_out = {}
     for label, (ca, ma) in alternatives.items():
         ca = ca.copy()
@@ -405,13 +679,13 @@ def fit_gap(
         alt_out[label] = ca
     c = c_can
     notes = [shape_note] if shape_note else []
+    if weak_note:
+        notes.append(weak_note)
     if abs(m[0]) > 1.1:
         notes.append("fitted fringe modulation above 1 (unphysical): the illumination and a sub-fringe power are "
                      "hard to tell apart in this image; treat power below one fringe with care")
     if contrast < 0.1:
         notes.append(f"weak fringe contrast ({contrast:.2f}); results are less certain")
-    masked = np.zeros_like(inside)
-    masked |= bad
     return GapFit(
         names=tuple(t[0] for t in TERMS[:nw]),
         coeffs=c,
@@ -428,12 +702,63 @@ def fit_gap(
         correlation_factor=float(corr),
         success=bool(res.success),
         message=str(res.message),
-        masked_px=masked,
+        masked_px=crop.paste(bad),
         notes=tuple(notes),
         alternatives=alt_out,
         edge_scale=float(edge_scale),
         finesse=float(finesse),
+        params=p.copy(),
+        transform=(flip_m, flip_w),
+        illum_degree=int(illum_degree),
     )
+
+
+LOW_POWER = 1.6  # fringes: below this the power is profiled against the illumination (common practice, no source)
+
+
+def _power_profile(prob: _Problem, p, nw):
+    """Profile the fit cost over the power (defocus held at a grid of values from 0 to 2.2 fringes, all else
+    free). Under about a fringe and a half the fringe term and the illumination polynomial trade off: several
+    powers fit nearly as well, and the plain minimisation stops in whichever basin it starts in.
+
+    Returns the best parameter vector and (low, high, end vectors) of the powers whose cost lies within the
+    2-sigma band Delta chi^2 = 4 of the best (scaled by the residual variance), or None for the interval when
+    the profile could not be drawn.
+    """
+    free = np.r_[0:3, 4 : p.size]
+    n = prob.y.size
+    base = _refine(prob, p, nw, max_nfev=40)
+    x0 = base.x.copy()
+    if x0[3] < 0:  # profile in the power >= 0 orientation (W -> -W fits the same)
+        x0[:nw] = -x0[:nw]
+    rows = [(abs(2 * base.x[3]), _cost(base), base.x)]
+    grid = np.arange(0.0, 2.21, 0.1)
+    p_here = 2 * x0[3]
+    # continuation: walk up and down from the fitted power, each step starting from its neighbour's solution
+    for seq in (grid[grid >= p_here], grid[grid < p_here][::-1]):
+        q = x0.copy()
+        for P in seq:
+            q = q.copy()
+            q[0] += P / 2 - q[3]  # keep the gap at the centre
+            q[3] = P / 2
+            q[nw + 3 :] = prob.linear(q[:nw], q[nw : nw + 3])[0]
+            r = _refine(prob, q, nw, max_nfev=25, free=free)
+            rows.append((P, _cost(r), r.x))
+            q = r.x
+    best = min(rows, key=lambda t: t[1])
+    rb = _refine(prob, best[2], nw, max_nfev=60)
+    cmin = min(_cost(rb), best[1])
+    pbest = rb.x if _cost(rb) <= best[1] else best[2]
+    sigma2 = cmin / max(1, n - p.size)
+    # band: Delta chi^2 = 4 for pixel noise, and at least 0.5 % of the cost for the model's own misfit (fringe
+    # shape, illumination polynomial), which dominates on real images (chosen here, checked on generated parts)
+    tol = max(4.0 * sigma2, 0.005 * cmin)
+    ok = [t for t in rows if t[1] - cmin < tol]
+    ok.append((abs(2 * pbest[3]), cmin, pbest))
+    lo = min(t[0] for t in ok)
+    hi = max(t[0] for t in ok)
+    ends = [min(ok, key=lambda t: t[0])[2], max(ok, key=lambda t: t[0])[2]]
+    return pbest, (lo, hi, ends)
 
 
 @dataclass
@@ -445,17 +770,19 @@ class _LMResult:
     message: str
 
 
-def _refine(prob: _Problem, p0, nw, max_nfev: int = 100) -> _LMResult:
+def _refine(prob: _Problem, p0, nw, max_nfev: int = 100, free=None) -> _LMResult:
     """Joint least squares of all terms from the start vector ``p0`` (see :class:`_Problem`).
 
     Levenberg-Marquardt with Marquardt's diagonal scaling, solved through the normal equations (the
-    Jacobian has a few dozen columns and tens of thousands of rows; BLAS makes J^T J cheap).
+    Jacobian has a few dozen columns and tens of thousands of rows; BLAS makes J^T J cheap). ``free``
+    (indices) limits the parameters varied; the others stay at their start values.
     """
     p = np.asarray(p0, dtype=float).copy()
+    idx = np.arange(p.size) if free is None else np.asarray(free)
     r = prob.full_residual(p, nw)
     cost = float(r @ r)
     lam = 1e-3
-    J = prob.full_jac(p, nw)
+    J = prob.full_jac(p, nw)[:, idx]
     nfev = 1
     success, message = False, "iteration limit reached"
     while nfev < max_nfev:
@@ -470,7 +797,8 @@ def _refine(prob: _Problem, p0, nw, max_nfev: int = 100) -> _LMResult:
             except np.linalg.LinAlgError:
                 lam *= 10
                 continue
-            p_new = p + step
+            p_new = p.copy()
+            p_new[idx] += step
             r_new = prob.full_residual(p_new, nw)
             nfev += 1
             c_new = float(r_new @ r_new)
@@ -486,8 +814,8 @@ def _refine(prob: _Problem, p0, nw, max_nfev: int = 100) -> _LMResult:
         if not improved:
             success, message = True, "no further decrease of the sum of squares"
             break
-        J = prob.full_jac(p, nw)
-        if rel < 1e-10 or np.max(np.abs(step[:nw])) < 1e-7:
+        J = prob.full_jac(p, nw)[:, idx]
+        if rel < 1e-10 or np.max(np.abs(step[idx < nw])) < 1e-7:
             success, message = True, "converged (relative decrease below 1e-10 or step below 1e-7 fringe)"
             break
     return _LMResult(p, r, J, success, message)
@@ -501,12 +829,20 @@ def _extend(p, nw_old, nw_new):
     return np.concatenate([p[:nw_old], np.zeros(nw_new - nw_old), p[nw_old:]])
 
 
-def _canonical(c, m):
-    """Dark at zero gap (m0 < 0: a half-fringe shift flips the cosine), power >= 0 (W -> -W leaves the
-    image unchanged) and piston in [0, 1) (W -> W + 1 likewise)."""
+def _contrast(prob: _Problem, p, nw) -> float:
+    """Median fringe visibility over the fitted pixels: |L M| / (s + L), the fringe amplitude over the mean."""
+    m, lin = p[nw : nw + 3], p[nw + 3 :]
+    L = lin[1:] @ prob.PL
+    M = m @ prob.PM
+    return float(np.median(np.abs(L * M)) / max(abs(float(np.median(lin[0] + L))), 1e-9))
+
+
+def _canonical(c, m, bright0=None):
+    """Dark at zero gap (fringe amplitude < 0: a half-fringe shift flips the cosine), power >= 0 (W -> -W
+    leaves the image unchanged) and piston in [0, 1) (W -> W + 1 likewise)."""
     c = np.array(c, dtype=float)
     m = np.array(m, dtype=float)
-    if m[0] > 0:
+    if (m[0] > 0) if bright0 is None else bright0:
         m = -m
         c[0] += 0.5
     # defocus Z(2,0) = 2 rho^2 - 1 carries the power; flip the whole gap when it is negative
@@ -516,10 +852,13 @@ def _canonical(c, m):
     return c, m
 
 
-def _start_values(img, u, v, inside, radius_px):
-    """Candidate start vectors (piston, tilt_x, tilt_y, defocus, astig_0, astig_45) from the local frequency."""
+def _start_values(img, uc, vr, inside, radius_px):
+    """Candidate start vectors (piston, tilt_x, tilt_y, defocus, astig_0, astig_45) from the local frequency.
+
+    ``img`` is a (block-averaged) frame with column / row coordinates ``uc`` / ``vr`` and ``radius_px`` its
+    aperture radius in its own pixels."""
     cands = []
-    q = _frequency_quadratic(img, u, v, inside, radius_px)
+    q = _frequency_quadratic(img, uc, vr, inside, radius_px)
     if q is not None:
         cands += _from_quadratic(q)
     # small-power guesses: a fraction of a fringe to two fringes with the rings centred
@@ -528,18 +867,21 @@ def _start_values(img, u, v, inside, radius_px):
     return cands
 
 
-def _frequency_quadratic(img, u, v, inside, radius_px):
+def _frequency_quadratic(img, uc, vr, inside, radius_px):
     """Fit |grad W|^2 (fringes per aperture radius, squared) as a quadratic in (u, v)."""
+    u = np.broadcast_to(uc[None, :], img.shape)
+    v = np.broadcast_to(vr[:, None], img.shape)
     s_hp = max(3.0, radius_px / 10)
-    base = ndimage.gaussian_filter(np.where(inside, img, 0.0), s_hp)
-    wgt = ndimage.gaussian_filter(inside.astype(float), s_hp)
+    fin = inside.astype(np.float64)
+    base = _smooth(np.where(inside, img, 0.0), s_hp)
+    wgt = _smooth(fin, s_hp)
     hp = np.where(inside, img - base / np.maximum(wgt, 1e-6), 0.0)
     hp = ndimage.gaussian_filter(hp, 1.5)
     gy, gx = np.gradient(hp)
     s_avg = max(3.0, radius_px / 12)
-    e_grad = ndimage.gaussian_filter(gx * gx + gy * gy, s_avg)
-    e_sig = ndimage.gaussian_filter(hp * hp, s_avg)
-    w_in = ndimage.gaussian_filter(inside.astype(float), s_avg)
+    e_grad = _smooth(gx * gx + gy * gy, s_avg)
+    e_sig = _smooth(hp * hp, s_avg)
+    w_in = _smooth(fin, s_avg)
     core = inside & (u * u + v * v < 0.8**2) & (w_in > 0.9)
     if core.sum() < 100:
         return None
@@ -584,24 +926,30 @@ def _from_quadratic(q):
     return out
 
 
-def _edge_from_model(img, u_all, v_all, p, nw, finesse, illum_degree, radius_px) -> float:
+def _edge_from_model(resid, rho2, radius_px) -> float:
     """Where the fitted fringe model stops describing the image, as a multiple of the aperture radius.
 
-    The model is extrapolated over an annulus around the detected edge; its residual is small inside the
-    part and large outside (the plate alone shows no fringes). The edge is placed where the binned residual
-    crosses half-way between the two levels. Returns 1.0 when the contrast is not clear.
+    ``resid`` is model minus image over a crop reaching beyond the edge (the model extrapolated), ``rho2`` the
+    squared normalised radius there. The residual is small inside the part and large outside (the plate alone
+    shows no fringes). The edge is placed where the binned residual crosses half-way between the two levels.
+    Returns 1.0 when the contrast is not clear.
     """
-    rho = np.hypot(u_all, v_all)
-    band = (rho > 0.88) & (rho < 1.12)
+    band = (rho2 > 0.88**2) & (rho2 < 1.12**2)
     if band.sum() < 500:
         return 1.0
-    pr = _Problem(u_all[band], v_all[band], img[band], illum_degree, finesse=finesse)
-    res = np.abs(pr.full_residual(p, nw)[:-1])
-    rb = rho[band]
+    res = np.abs(resid[band])
+    rb = np.sqrt(rho2[band])
     step = 0.5 / radius_px
     edges = np.arange(0.88, 1.12 + step, step)
     idx = np.digitize(rb, edges) - 1
-    med = np.array([np.median(res[idx == i]) if np.any(idx == i) else np.nan for i in range(len(edges) - 1)])
+    nb = len(edges) - 1
+    med = np.full(nb, np.nan)
+    order = np.argsort(idx, kind="stable")
+    sidx, sres = idx[order], res[order]
+    bounds = np.searchsorted(sidx, np.arange(nb + 1))
+    for i in range(nb):
+        if bounds[i + 1] > bounds[i]:
+            med[i] = np.median(sres[bounds[i] : bounds[i + 1]])
     centres = 0.5 * (edges[:-1] + edges[1:])
     inner = np.nanmedian(med[(centres > 0.9) & (centres < 1 - 5 / radius_px)])
     outer = np.nanmedian(med[centres > 1 + 8 / radius_px]) if np.any(centres > 1 + 8 / radius_px) else np.nan
@@ -616,22 +964,17 @@ def _edge_from_model(img, u_all, v_all, p, nw, finesse, illum_degree, radius_px)
     return 1.0
 
 
-def _correlation_factor(img, mask, p, nw, stride, u_all, v_all, finesse, illum_degree):
+def _correlation_factor(resid, mask, stride):
     """Variance inflation for correlated residuals at the sampling stride.
 
     The residual map's autocorrelation at lags of one stride along x and y estimates how much neighbouring
     samples share; the factor (1 + 2 rho_x)(1 + 2 rho_y), floored at 1, is the usual first-order correction
     for a sum over an AR(1)-like correlated sample.
     """
-    y0, y1 = np.nonzero(mask.any(axis=1))[0][[0, -1]]
-    x0, x1 = np.nonzero(mask.any(axis=0))[0][[0, -1]]
-    box = (slice(y0, y1 + 1), slice(x0, x1 + 1))
-    m = mask[box]
-    tmp = _Problem(u_all[box][m], v_all[box][m], img[box][m], illum_degree, finesse=finesse)
-    r = np.zeros(m.shape)
-    r[m] = tmp.full_residual(p, nw)[:-1]
+    m = mask
+    r = np.where(m, resid, 0.0)
     rv = r[m]
-    var = float(np.mean(rv * rv))
+    var = float(np.mean(rv * rv)) if rv.size else 0.0
     if var <= 0:
         return 1.0
     rhos = []

@@ -84,10 +84,18 @@ def test_generated_images_of_known_form(name, results):
     truth = form_terms(form.gap_fringes(u, v), u, v)
     t = r.terms
     assert r.sign.sign == 0  # one frame: the sign is unknown and power is a magnitude
-    assert t["power_fringes"] == pytest.approx(abs(form.power), abs=tp)
+    weak = any("weak fit" in w for w in r.warnings)
+    if weak:
+        # the rule for sub-1.5-fringe parts under uneven light: either within the tolerance, or a
+        # "weak fit" warning with an expanded uncertainty that covers the error
+        assert abs(form.power) < 1.6
+        for key, true in (("power_fringes", abs(form.power)), ("irregularity_fringes", truth["irregularity_fringes"])):
+            assert abs(t[key] - true) <= 2 * r.terms_u[key], key
+    else:
+        assert t["power_fringes"] == pytest.approx(abs(form.power), abs=tp)
+        assert t["irregularity_fringes"] == pytest.approx(truth["irregularity_fringes"], abs=ti)
+        assert t["rot_sym_irregularity_fringes"] == pytest.approx(truth["rot_sym_irregularity_fringes"], abs=ti)
     assert t["astigmatism_fringes"] == pytest.approx(form.astig, abs=ta)
-    assert t["irregularity_fringes"] == pytest.approx(truth["irregularity_fringes"], abs=ti)
-    assert t["rot_sym_irregularity_fringes"] == pytest.approx(truth["rot_sym_irregularity_fringes"], abs=ti)
     if form.astig >= 0.3:
         d = (r.astigmatism_axis_deg - form.astig_axis_deg + 90) % 180 - 90
         assert abs(d) < 4.0
