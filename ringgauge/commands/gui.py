@@ -19,6 +19,9 @@ def register(subparsers) -> None:
     p.add_argument("--watch", metavar="FOLDER", help="analyse each new image the bench camera saves in FOLDER")
     p.add_argument("--lot", metavar="FOLDER", help="open the lot review page on the images in FOLDER and analyse them")
     p.add_argument("--training", action="store_true", help="start on the training page")
+    p.add_argument("--camera", metavar="SOURCE",
+                   help="start on the Live page with this camera: an index (0), a stream address, a video file or a "
+                   "folder of numbered frames")
     p.set_defaults(func=run)
 
 
@@ -37,7 +40,8 @@ def run(args) -> int:
         from ..gui.app import run as run_window
     except ImportError as exc:
         raise InputError(f"the window cannot start: PySide6 is not installed or broken ({exc})") from None
-    return run_window(args.paths, watch=args.watch, lot=args.lot, training=args.training)
+    return run_window(args.paths, watch=args.watch, lot=args.lot, training=args.training,
+                      camera=getattr(args, "camera", None))
 
 
 def _is_macos() -> bool:

@@ -60,7 +60,7 @@ def make_app(argv: Sequence[str] | None = None) -> QApplication:
 
 
 def run(paths: Sequence[str] = (), *, watch: str | None = None, lot: str | None = None,
-        training: bool = False) -> int:
+        training: bool = False, camera: str | None = None) -> int:
     """Open the window (with ``paths`` loaded) and run until it closes; returns the exit status."""
     app = make_app()
     from .window import MainWindow
@@ -76,6 +76,9 @@ def run(paths: Sequence[str] = (), *, watch: str | None = None, lot: str | None 
         win.lot.open_folder(lot)
     if training:
         win.tabs.setCurrentWidget(win.training)
+    if camera is not None:
+        win.tabs.setCurrentWidget(win.live)
+        win.live.start(camera)
     _close_on_interrupt(win)
     return int(app.exec())
 

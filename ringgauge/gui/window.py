@@ -170,6 +170,9 @@ class MainWindow(QMainWindow):
         self.tabs.addTab(self.training, "Training")
         self.setCentralWidget(self.tabs)
         self.lot.openInBench.connect(self._open_lot_row)
+        from . import live_view  # the Live page: camera at its own rate, captures come to the Bench page
+
+        live_view.attach(self)
 
         self.progress = QProgressBar()
         self.progress.setRange(0, 100)

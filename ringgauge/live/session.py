@@ -164,13 +164,23 @@ class LiveSession:
             yield st
 
     # -- in the background --------------------------------------------------------------------------------------
-    def start(self) -> None:
+    def start(self, *, throttle_fps: float | None = None) -> None:
+        """Run in a background thread. ``throttle_fps`` holds a file read frame by frame to that rate (a file
+        can wait; a camera cannot — a live source drops frames instead)."""
+        self._throttle = throttle_fps if throttle_fps and throttle_fps > 0 else None
         self._thread = threading.Thread(target=self._run, name="ringgauge-live", daemon=True)
         self._thread.start()
 
     def _run(self) -> None:
+        t0 = time.monotonic()
+        n = 0
         try:
             while not self._stop.is_set():
+                if self._throttle:
+                    wait = t0 + n / self._throttle - time.monotonic()
+                    if wait > 0:
+                        self._stop.wait(wait)
+                    n += 1
                 if self.step() is None:
                     return
         except RinggaugeError as exc:
