@@ -359,6 +359,14 @@ def run_init_server(args) -> int:
         return 0
     if not target:
         raise InputError("give the PostgreSQL database: --db postgresql://ADMIN@HOST/DBNAME (or set RINGGAUGE_DB)")
+    from ..records.store import is_server_url
+
+    if not is_server_url(target):  # a SQLite file has no roles: put back any missing protection
+        from ..records.server import repair_sqlite
+
+        for line in repair_sqlite(target):
+            print(line)
+        return 0
     for line in init_server(target, args.owner, args.bench):
         print(line)
     return 0

@@ -171,3 +171,25 @@ def _repair_triggers(store: Store) -> list[str]:
                 done.append(f"re-enabled the append-only trigger {g} on {t}")
     done.append("run 'ringgauge records check' now: rows may have been changed while the protection was off")
     return done
+
+
+def repair_sqlite(path: str) -> list[str]:
+    """Put back missing append-only triggers of a SQLite store (its owner is whoever may write the file)."""
+    from .store import _SQLite, _m1, _m2, _m3, open_store
+
+    out = []
+    with open_store(path) as store:
+        problems = store.guard_problems()
+        if not problems:
+            return ["append-only triggers: all present"]
+        d = _SQLite()
+        stmts = [x for make in (_m1, _m2, _m3) for x in make(d) if x.startswith("CREATE TRIGGER")]
+        with store._tx() as cur:
+            for p in problems:
+                name = p.split("trigger ", 1)[1].split(" ", 1)[0]
+                for stmt in stmts:
+                    if stmt.startswith(f"CREATE TRIGGER {name} "):
+                        cur.execute(stmt)
+                        out.append(f"re-created the append-only trigger {name}")
+    out.append("run 'ringgauge records check' now: rows may have been changed while the protection was off")
+    return out
