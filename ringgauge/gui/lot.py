@@ -53,6 +53,7 @@ COLUMNS = (
     ("power", "Power / fringes"),
     ("irregularity", "Irregularity / fringes"),
     ("verdict", "Verdict"),
+    ("radius_verdict", "Radius verdict"),
     ("message", "Note"),
 )
 
@@ -70,11 +71,22 @@ def summarise(result) -> dict:
         "power": power,
         "irregularity": irr,
         "verdict": v.word,
+        "radius_verdict": _radius_word(d),
         "decision_rule": v.decision_rule,
         "sha256": (d.get("image") or {}).get("sha256", ""),
         "wavelength_nm": _num((d.get("setup") or {}).get("wavelength_nm")),
         "warnings": "; ".join(d.get("warnings") or []),
     }
+
+
+def _radius_word(d: dict) -> str | None:
+    rv = (d.get("verdict") or {}).get("radius") if isinstance(d.get("verdict"), dict) else None
+    if not isinstance(rv, dict):
+        return None
+    word = str(rv.get("verdict", ""))
+    if rv.get("accepted") is not None:
+        word += "" if rv["accepted"] else " (not accepted)"
+    return word
 
 
 class Lot:
@@ -83,6 +95,7 @@ class Lot:
 
     def __init__(self):
         self.folder: str | None = None
+        self.lot_name = ""  # as typed on the lot page (or from the folder's lot sheet); "" = the folder's name
         self.rows: list[LotRow] = []
         self.generation = 0
         self.changed = Signal()
@@ -92,6 +105,7 @@ class Lot:
         if not files:
             raise InputError(f"{folder}: the folder holds no images (PNG, TIFF, JPEG, BMP)")
         self.folder = os.fspath(folder)
+        self.lot_name = _sheet_lot_name(self.folder)
         self.rows = [LotRow(p) for p in files]
         self.generation += 1
         self.changed.emit("rows", None)
@@ -136,8 +150,36 @@ class Lot:
 
     @property
     def name(self) -> str:
-        """The lot's name: its folder's name."""
+        """The lot's name: as typed (or from the lot sheet), else its folder's name."""
+        if self.lot_name.strip():
+            return self.lot_name.strip()
         return os.path.basename(os.path.normpath(self.folder)) if self.folder else ""
+
+    def entries(self):
+        """The rows as :class:`ringgauge.records.lot.LotEntry` (finished rows only), in folder order."""
+        from ..records.lot import entry_from_result
+
+        out = []
+        for i, r in enumerate(self.rows):
+            if r.status == DONE and r.result is not None:
+                d = r.result.to_dict() if hasattr(r.result, "to_dict") else dict(r.result)
+                out.append(entry_from_result(d, order=i, serial=os.path.splitext(r.name)[0], image_name=r.name,
+                                             record_id=r.record_id))
+            elif r.status == FAILED:
+                out.append(entry_from_result(None, order=i, serial=os.path.splitext(r.name)[0], image_name=r.name,
+                                             failed=True, failure=r.message, record_id=r.record_id))
+        return out
+
+    def statistics(self):
+        """(summary, tables) of the finished rows — the same figures, digits and chart data the lot report
+        prints (``ringgauge.records.lot``); (None, None) before any row is finished."""
+        from ..records.lot import lot_tables, summarise_lot
+
+        entries = self.entries()
+        if not entries:
+            return None, None
+        summary = summarise_lot(entries, self.name)
+        return summary, lot_tables(entries, summary)
 
     def finished_rows(self) -> list[int]:
         return [i for i, r in enumerate(self.rows) if r.status in (DONE, FAILED)]
@@ -169,6 +211,20 @@ class Lot:
         except OSError as exc:
             raise InputError(f"{target}: cannot write the CSV file ({exc.strerror or exc})") from None
         return len(self.rows)
+
+
+def _sheet_lot_name(folder: str) -> str:
+    """The lot name from the folder's lot sheet (lot.json), or "" when there is none or it cannot be read."""
+    import json
+
+    p = os.path.join(folder, "lot.json")
+    try:
+        with open(p, encoding="utf-8") as fh:
+            data = json.load(fh)
+    except (OSError, ValueError):
+        return ""
+    name = data.get("lot") if isinstance(data, dict) else None
+    return name.strip()[:200] if isinstance(name, str) else ""
 
 
 def _csv(v) -> str:

@@ -6,7 +6,7 @@ from __future__ import annotations
 import os
 
 from PySide6.QtCore import QAbstractTableModel, QModelIndex, QSortFilterProxyModel, Qt, Signal
-from PySide6.QtGui import QBrush, QColor
+from PySide6.QtGui import QBrush, QColor, QPixmap
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QComboBox,
@@ -17,8 +17,10 @@ from PySide6.QtWidgets import (
     QLineEdit,
     QPushButton,
     QSizePolicy,
+    QScrollArea,
     QSplitter,
     QTableView,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
@@ -151,6 +153,7 @@ class LotPage(QWidget):
         self.runner.signals.failed.connect(self._failed)
         self.runner.signals.cancelled.connect(lambda token: None)
         self.running = False
+        self.statistics = (None, None)  # (LotSummary, lot_tables) of the finished rows
 
         lay = QVBoxLayout(self)
         top = QHBoxLayout()
@@ -169,8 +172,16 @@ class LotPage(QWidget):
         self.folder_label = QLabel("No lot open")
         self.folder_label.setObjectName("imageTitle")
         self.folder_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.lot_name = QLineEdit()
+        self.lot_name.setPlaceholderText("lot name")
+        self.lot_name.setAccessibleName("Lot name")
+        self.lot_name.setToolTip("The lot's name, kept with every record and printed on the lot report "
+                                 "(from the folder's lot.json when it has one)")
+        self.lot_name.setMaximumWidth(150)
         for w in (self.b_open, self.b_run, self.b_stop, self.b_export, self.b_keep, self.b_certs):
             top.addWidget(w)
+        top.addWidget(QLabel("Lot"))
+        top.addWidget(self.lot_name)
         top.addWidget(self.folder_label, 1)
         lay.addLayout(top)
 
@@ -194,6 +205,7 @@ class LotPage(QWidget):
         self.table = QTableView()
         self.table.setModel(self.proxy)
         self.table.setSortingEnabled(True)
+        self.table.sortByColumn(0, Qt.SortOrder.AscendingOrder)  # by image name, as the lot report by serial
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.table.setAlternatingRowColors(True)
@@ -211,9 +223,30 @@ class LotPage(QWidget):
         rl.addWidget(self.detail_title)
         rl.addWidget(self.detail, 1)
         rl.addWidget(self.b_bench)
+        # the lot's statistics: the same figures, digits and chart as the lot report
+        self.stats = QLabel("Analyse the lot to see its statistics")
+        self.stats.setWordWrap(True)
+        self.stats.setTextFormat(Qt.TextFormat.RichText)
+        self.stats.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        self.stats.setObjectName("lotStatistics")
+        self.chart = QLabel("")
+        self.chart.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignHCenter)
+        self._chart_pixmap: QPixmap | None = None
+        sw = QWidget()
+        sl = QVBoxLayout(sw)
+        sl.setContentsMargins(4, 4, 4, 4)
+        sl.addWidget(self.stats)
+        sl.addWidget(self.chart)
+        sl.addStretch(1)
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setWidget(sw)
+        self.side = QTabWidget()
+        self.side.addTab(right, "Part")
+        self.side.addTab(scroll, "Lot statistics")
         split = QSplitter(Qt.Orientation.Horizontal)
         split.addWidget(self.table)
-        split.addWidget(right)
+        split.addWidget(self.side)
         split.setStretchFactor(0, 3)
         split.setStretchFactor(1, 2)
         lay.addWidget(split, 1)
@@ -239,6 +272,8 @@ class LotPage(QWidget):
         self.table.selectionModel().selectionChanged.connect(lambda *_: self._show_selected())
         self.table.doubleClicked.connect(lambda *_: self._to_bench())
         self.lot.changed.connect(lambda *_: self._update_counts())
+        self.lot_name.editingFinished.connect(self._name_edited)
+        self.side.currentChanged.connect(lambda *_: self.update_statistics())
         self._update_counts()
 
     # -- loading and running -----------------------------------------------------------------------------------
@@ -255,6 +290,8 @@ class LotPage(QWidget):
             self.message.setText(str(exc))
             return False
         self.folder_label.setText(f"{folder} — {len(self.lot.rows)} images")
+        self.lot_name.setText(self.lot.name)
+        self.update_statistics()
         self.b_certs.setEnabled(False)
         self.message.setText("")
         self.detail.clear()
@@ -326,6 +363,9 @@ class LotPage(QWidget):
         if c[QUEUED] + c[RUNNING] == 0:
             self.running = False
             self.message.setText("Lot finished")
+            self.update_statistics()
+        elif self.side.currentIndex() == 1:
+            self.update_statistics(chart=False)  # the chart is drawn again once the lot is finished
         sel = self._selected_row()
         if sel == i:
             self._show_selected()
@@ -345,6 +385,74 @@ class LotPage(QWidget):
             for key in ("radius_mm", "radius_U_mm", "power", "irregularity"):
                 empty = all(self.lot.cell(i, key) is None for i in range(n))
                 self.table.setColumnHidden(keys.index(key), empty)
+
+    # -- the lot's name and statistics ---------------------------------------------------------------------------
+    def _name_edited(self) -> None:
+        self.lot.lot_name = self.lot_name.text().strip()
+        if not self.lot.lot_name:
+            self.lot_name.setText(self.lot.name)
+        self.update_statistics(chart=False)
+
+    def update_statistics(self, *, chart: bool = True) -> None:
+        """Counts, radius tolerance and rule, mean and spread, Cp/Cpk with its caution, and the individuals
+        chart with the specification limits — from ``ringgauge.records.lot``, as the lot report prints them."""
+        summary, t = self.lot.statistics()
+        self.statistics = (summary, t)
+        if summary is None:
+            self.stats.setText("Analyse the lot to see its statistics")
+            self.chart.clear()
+            self._chart_pixmap = None
+            return
+        from html import escape
+
+        from ..conformity import RULE_NAMES
+
+        def table(header, rows) -> str:
+            h = "".join(f"<th align='left'>{escape(x)}</th>" for x in header)
+            b = "".join("<tr>" + "".join(f"<td>{escape(str(c))}</td>" for c in r) + "</tr>" for r in rows)
+            return f"<table cellspacing='0' cellpadding='3'><tr>{h}</tr>{b}</table>"
+
+        parts = [f"<b>Lot {escape(summary.lot)}</b> — {summary.n_records} parts"]
+        if summary.radius_tolerance:
+            parts.append(f"Radius tolerance {escape(summary.radius_tolerance)}; decision rule: "
+                         f"{escape(RULE_NAMES.get(summary.decision_rule, 'differs between parts'))}")
+        parts.append(table(["Verdict", "Parts"], t["counts"]))
+        if t["radius_counts"]:
+            parts.append(table(["Radius verdict", "Parts"], t["radius_counts"])
+                         + f"Accepted on radius: {escape(t['accepted'] or '—')}")
+        parts.append(table(["Quantity", "n", "Mean", "s", "Range"],
+                           [[q, x["n"], x["mean"], x["sd"], x["range"]]
+                            for q, x in (("Radius", t["radius"]), ("Power", t["power"])) if x["n"] != "0"]))
+        if t["capability"]:
+            parts.append(table(["", "Specification", "Cp", "Cpk"],
+                               [[x["quantity"], x["limits"], x["Cp"], x["Cpk"]] for x in t["capability"]]))
+        parts += [f"<small>• {escape(n)}</small>" for n in summary.notes]
+        self.stats.setText("<br/>".join(parts))
+        if chart:
+            self._draw_chart(summary)
+
+    def _draw_chart(self, summary) -> None:
+        import tempfile
+
+        from ..records.lot import chart_png
+
+        if not summary.charts:
+            self.chart.setText("The control chart needs at least two measured parts.")
+            self._chart_pixmap = None
+            return
+        with tempfile.TemporaryDirectory(prefix="rg-lotview-") as tmp:
+            p = os.path.join(tmp, "chart.png")
+            chart_png(summary.charts, p, title=f"Lot {summary.lot} — individuals chart")
+            pm = QPixmap(p)
+        self._chart_pixmap = pm
+        width = max(200, self.side.width() - 40)
+        self.chart.setPixmap(pm.scaledToWidth(width, Qt.TransformationMode.SmoothTransformation))
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().resizeEvent(event)
+        if self._chart_pixmap is not None:
+            width = max(200, self.side.width() - 40)
+            self.chart.setPixmap(self._chart_pixmap.scaledToWidth(width, Qt.TransformationMode.SmoothTransformation))
 
     # -- selection ------------------------------------------------------------------------------------------------
     def _selected_row(self) -> int | None:
@@ -389,11 +497,14 @@ class LotPage(QWidget):
             self.message.setText("nothing to keep yet: analyse the lot first")
             return False
         items = [ToRecord(self.lot.rows[i].path, self.lot.rows[i].result, self.lot.rows[i].message) for i in rows]
+        if self.lot_name.text().strip():
+            self.lot.lot_name = self.lot_name.text().strip()
         lot, operator = self.lot.name, self.session.setup.operator
+        details = self.session.setup.inspection_details()
         self.b_keep.setEnabled(False)
         self.paper.submit(("keep", self.lot.generation, rows),
                           lambda progress: save_records(items, lot=lot, operator=operator, setup=None,
-                                                        target=target, progress=progress))
+                                                        target=target, progress=progress, details=details))
         return True
 
     def certificates_dialog(self) -> None:

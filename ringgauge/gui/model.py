@@ -88,9 +88,23 @@ class SetupState:
     press_test: str = ""  # "", "rings-spread" or "rings-shrink": what the rings did when the part was pressed
     gap_change: str = "increasing"  # how the gap changed from frame to frame in a frame set
     operator: str = ""
+    radius_tolerance: str = ""  # e.g. "1000 ± 5", "1000 ± 0.5 %", "995..1005" (ringgauge.conformity)
+    # inspection details kept with the record and printed on the certificate; serial "" = the image's name
+    serial: str = ""
+    part: str = ""
+    drawing: str = ""
+    surface: str = ""
+    customer: str = ""
+    order: str = ""
 
     def to_dict(self) -> dict:
         return asdict(self)
+
+    def inspection_details(self) -> dict:
+        """The inspection details the operator typed, as record fields (``order`` -> ``order_ref``)."""
+        pairs = {"serial": self.serial, "part": self.part, "drawing": self.drawing, "surface": self.surface,
+                 "customer": self.customer, "order_ref": self.order, "operator": self.operator}
+        return {k: v.strip() for k, v in pairs.items() if isinstance(v, str) and v.strip()}
 
     @classmethod
     def from_dict(cls, data: dict | None) -> "SetupState":
@@ -152,6 +166,9 @@ class SetupState:
         n, nu = self.index()
         if self.operator.strip():
             extras["operator"] = self.operator.strip()
+        details = self.inspection_details()
+        if details:
+            extras["inspection"] = details
         if overrides is not None:
             extras.update(overrides.as_extras())
         if self.gap_change not in ("increasing", "decreasing"):
@@ -176,6 +193,7 @@ class SetupState:
             test_plate=plate,
             decision_rule=self.decision_rule or "simple",
             press_test=self.press_test or None,
+            radius_tolerance=self.radius_tolerance.strip() or None,
             extras=extras,
             **kw,
         )

@@ -40,7 +40,7 @@ def _file_sha(path: str) -> str | None:
 
 def save_records(items: Sequence[ToRecord], *, lot: str | None, operator: str | None, setup: dict | None,
                  part: str | None = None, target: str | None = None,
-                 progress: ProgressFn | None = None) -> list[int]:
+                 progress: ProgressFn | None = None, details: dict | None = None) -> list[int]:
     """Append one inspection record per item; a lot never gets the same image twice (it returns the record
     already kept instead). Returns the record ids in the order of ``items``."""
     from ..records import RecordMeta, open_store
@@ -48,11 +48,14 @@ def save_records(items: Sequence[ToRecord], *, lot: str | None, operator: str | 
     if not items:
         raise InputError("nothing to keep: analyse the images first")
     progress = progress or _noop
-    meta = RecordMeta(part=part or None, lot=lot or None, operator=operator or None)
+    base_meta = RecordMeta(part=part or None, lot=lot or None, operator=operator or None)
+    if details:  # inspection details for every item (a failed analysis carries no set-up of its own)
+        base_meta = base_meta.with_(**{k: v for k, v in details.items() if k != "serial" or not lot})
     ids = []
     with open_store(target) as store:
         for i, it in enumerate(items):
             d = it.result.to_dict() if it.result is not None else None
+            meta = _item_meta(base_meta, it)
             sha = it.image_sha256 or ((d or {}).get("image") or {}).get("sha256") or _file_sha(it.image_path)
             rec = store.add(meta, d, image_path=it.image_path, image_sha256=sha,
                             failure=None if d is not None else (it.failure or "analysis failed"),
@@ -60,6 +63,19 @@ def save_records(items: Sequence[ToRecord], *, lot: str | None, operator: str | 
             ids.append(rec.id)
             progress((i + 1) / len(items), f"kept {os.path.basename(it.image_path)} as record {rec.id}")
     return ids
+
+
+def _item_meta(base, it: ToRecord):
+    """The record details of one item: the set-up panel's inspection details (kept in the set-up's extras),
+    the serial defaulting to the image's name."""
+    extras = getattr(getattr(it.result, "setup", None), "extras", None) or {}
+    details = {k: v for k, v in (extras.get("inspection") or {}).items() if v}
+    if base.lot:
+        details.pop("serial", None)  # a lot's images each have their own serial: their names
+    meta = base.with_(**{k: v for k, v in details.items() if getattr(base, k, None) is None})
+    if meta.serial is None and it.image_path:
+        meta = meta.with_(serial=os.path.splitext(os.path.basename(it.image_path))[0])
+    return meta
 
 
 def issue_certificates(record_ids: Sequence[int], out_dir: str | os.PathLike, *, lot: str | None = None,

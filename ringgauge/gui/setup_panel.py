@@ -12,6 +12,7 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
     QFormLayout,
+    QGridLayout,
     QGroupBox,
     QLabel,
     QLineEdit,
@@ -50,7 +51,7 @@ class SetupPanel(QWidget):
         f = QFormLayout(g)
         self.source = QComboBox()
         for key, s in SOURCES.items():
-            self.source.addItem(f"{s.name} — {s.wavelength_nm:g} nm", key)
+            self.source.addItem(s.name, key)  # its wavelength shows in the row below (short enough to read whole)
         self.source.addItem("Custom wavelength…", CUSTOM)
         self.source.setToolTip("Lamp or laser; its standard air wavelength and uncertainty enter the result")
         f.addRow("Source", self.source)
@@ -90,6 +91,25 @@ class SetupPanel(QWidget):
         f.addRow("Count", self.kind)
         lay.addWidget(g)
 
+        # tolerance and decision rule ---------------------------------------------------------------------------
+        g = QGroupBox("Verdict")
+        f = QFormLayout(g)
+        self.radius_tol = QLineEdit()
+        self.radius_tol.setPlaceholderText("e.g. 1000 ± 0.5 %")
+        self.radius_tol.setToolTip("Radius of curvature tolerance in mm: 1000 ± 5, 1000 ± 0.5 %, 995..1005 or "
+                                   "1000 +5/-3. Each part gets pass, fail or conditional (U straddles a limit).")
+        self.radius_tol.setAccessibleName("Radius tolerance")
+        f.addRow("Radius tol.", self.radius_tol)
+        self.rule = QComboBox()
+        self.rule.addItem("Simple acceptance", "simple")
+        self.rule.addItem("Guard-banded (w = U)", "guard-banded")
+        self.rule.setToolTip("Simple acceptance: accepted when the value is within the limits (risk up to about "
+                             "50 % at a limit). Guard-banded: accepted only inside the limits by at least U "
+                             "(false-accept risk at most about 2.5 %). Either way a result whose U interval "
+                             "straddles a limit is marked conditional.")
+        f.addRow("Decision rule", self.rule)
+        lay.addWidget(g)
+
         # form --------------------------------------------------------------------------------------------------
         g = QGroupBox("Form against a test plate")
         f = QFormLayout(g)
@@ -102,12 +122,6 @@ class SetupPanel(QWidget):
         self.diameter = _spin(0, 1000, 2, 0.5, " mm", "Test diameter over which the form is evaluated, mm")
         self.diameter.setSpecialValueText("not set")
         f.addRow("Test diameter", self.diameter)
-        self.rule = QComboBox()
-        self.rule.addItem("Simple acceptance", "simple")
-        self.rule.addItem("Guard-banded", "guard-banded")
-        self.rule.setToolTip("Simple: pass when the value is within the limit (near the limit: conditional). "
-                             "Guard-banded: pass only when value + U is within the limit.")
-        f.addRow("Decision rule", self.rule)
         self.press = QComboBox()
         self.press.addItem("not done", "")
         self.press.addItem("rings spread outward", "rings-spread")
@@ -124,16 +138,36 @@ class SetupPanel(QWidget):
 
         # who ----------------------------------------------------------------------------------------------------
         g = QGroupBox("Inspection")
-        f = QFormLayout(g)
+        grid = QGridLayout(g)
+        grid.setHorizontalSpacing(4)
+        grid.setVerticalSpacing(2)
         self.operator = QLineEdit()
         self.operator.setPlaceholderText("initials or name")
-        f.addRow("Operator", self.operator)
+        self.details: dict[str, QLineEdit] = {}
+        cells = (("serial", "Serial", "image name"), ("part", "Part", ""), ("drawing", "Drawing", ""),
+                 ("surface", "Surface", "S1"), ("customer", "Customer", ""), ("order", "Order", ""))
+        for n, (key, label, hint) in enumerate(cells):
+            e = QLineEdit()
+            e.setPlaceholderText(hint)
+            e.setAccessibleName(label)
+            e.setToolTip(f"{label}: kept with the record and printed on the certificate"
+                         + (" (empty: the image's file name)" if key == "serial" else ""))
+            self.details[key] = e
+            r, c = divmod(n, 2)
+            grid.addWidget(QLabel(label), r, 2 * c)
+            grid.addWidget(e, r, 2 * c + 1)
+        grid.addWidget(QLabel("Operator"), 3, 0)
+        grid.addWidget(self.operator, 3, 1, 1, 3)
+        grid.setColumnStretch(1, 1)
+        grid.setColumnStretch(3, 1)
         lay.addWidget(g)
 
         for combo in (self.source, self.profile, self.medium, self.kind, self.plate, self.rule, self.press, self.gap):
-            # keep the panel narrow; the open list shows the full names
-            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
-            combo.setMinimumContentsLength(16)
+            # a list shows its choice whole: when it does not fit beside its label it moves below it (rows wrap)
+            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+        for grp in self.findChildren(QGroupBox):
+            if isinstance(grp.layout(), QFormLayout):
+                grp.layout().setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapLongRows)
         self.note = QLabel("")
         self.note.setWordWrap(True)
         self.note.setObjectName("setupNote")
@@ -153,7 +187,10 @@ class SetupPanel(QWidget):
                   self.diameter):
             s.valueChanged.connect(self._edited)
         self.tolerance.editingFinished.connect(self._edited)
+        self.radius_tol.editingFinished.connect(self._edited)
         self.operator.editingFinished.connect(self._edited)
+        for e in self.details.values():
+            e.editingFinished.connect(self._edited)
         session.changed.connect(self._on_session)
 
     # lists that come from other modules -------------------------------------------------------------------------
@@ -230,6 +267,8 @@ class SetupPanel(QWidget):
             self.index_u.setValue(nu)
             self.index.setEnabled(cm)
             self.index_u.setEnabled(cm)
+            for w in (self.index, self.index_u):  # a listed medium states its index in the list itself
+                w.parentWidget().layout().setRowVisible(w, cm)
             self._select(self.kind, s.fringe_kind)
             self._select(self.plate, s.test_plate)
             self._select(self.rule, s.decision_rule)
@@ -240,6 +279,11 @@ class SetupPanel(QWidget):
             self.diameter.setValue(s.test_diameter_mm or 0.0)
             if self.operator.text() != s.operator:
                 self.operator.setText(s.operator)
+            if self.radius_tol.text() != s.radius_tolerance:
+                self.radius_tol.setText(s.radius_tolerance)
+            for key, e in self.details.items():
+                if e.text() != getattr(s, key):
+                    e.setText(getattr(s, key))
         self.note.setText(self._note(s))
 
     def _note(self, s: SetupState) -> str:
@@ -261,6 +305,13 @@ class SetupPanel(QWidget):
                 integrations.check_tolerance(s.tolerance)
             except RinggaugeError as exc:
                 lines.append(f"Tolerance: {exc}")
+        if s.radius_tolerance.strip():
+            from ..conformity import parse_radius_tolerance
+
+            try:
+                lines.append(f"Radius judged against {parse_radius_tolerance(s.radius_tolerance).describe()}.")
+            except RinggaugeError as exc:
+                lines.append(f"Radius tolerance: {exc}")
         if s.source in SOURCES and SOURCES[s.source].hazard:
             lines.append("Caution: " + SOURCES[s.source].hazard)
         return "\n".join(lines)
@@ -279,6 +330,8 @@ class SetupPanel(QWidget):
             "tolerance": self.tolerance.text().strip(),
             "test_diameter_mm": self.diameter.value() or None,
             "operator": self.operator.text().strip(),
+            "radius_tolerance": self.radius_tol.text().strip(),
+            **{key: e.text().strip() for key, e in self.details.items()},
         }
         if not d["bench_profile"]:  # with a profile the fields show its scale and are not the operator's
             d["pixel_size_um"] = self.pixel.value()
