@@ -63,7 +63,8 @@ def init_sql(owner: str, bench: str) -> str:
             lines.append(re.sub(r"\s+", " ", stmt).strip() + ";")
         if version == 3:
             lines.append(f"INSERT INTO store_info (name, value) VALUES ('store_uid', '{uuid.uuid4()}');")
-        lines.append(f"INSERT INTO schema_migration VALUES ({version}, '{what}', '{utc_now()}');")
+        quoted = what.replace("'", "''")
+        lines.append(f"INSERT INTO schema_migration VALUES ({version}, '{quoted}', '{utc_now()}');")
     lines.append(f"INSERT INTO store_info (name, value) VALUES ('key_id', '{_keys.key_id(key)}');")
     lines += [s + ";" for s in _grants(owner, bench)]
     lines.append("RESET ROLE;")

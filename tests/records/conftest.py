@@ -128,3 +128,19 @@ def make_result():
         return d
 
     return make
+
+
+@pytest.fixture
+def pg_split(pg_url, tmp_path, monkeypatch):
+    """A PostgreSQL store set up by 'records init-server': (admin URL, bench URL, owner role, bench role).
+
+    The admin (the cluster's superuser here) runs the set-up; benches then connect as the bench login, which
+    may only INSERT and SELECT. Role names are unique per test (roles are shared by the whole cluster)."""
+    from ringgauge.cli import main
+
+    monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
+    tag = uuid.uuid4().hex[:8]
+    owner, bench = f"rg_owner_{tag}", f"rg_bench_{tag}"
+    assert main(["records", "init-server", "--db", pg_url, "--owner", owner, "--bench", bench]) == 0
+    bench_url = pg_url.replace("postgresql://postgres@", f"postgresql://{bench}@")
+    return pg_url, bench_url, owner, bench
