@@ -373,7 +373,8 @@ def combined_verdict(form_verdict: dict | None, radius: dict | None, rule: str |
     if form_verdict:
         out["form_overall"] = form_overall
     out.setdefault("terms", [])
-    out.setdefault("decision_rule", RULE_WORDING[rule])
+    # "name: wording" — the window shows the part before the colon and the rest as its tooltip
+    out.setdefault("decision_rule", f"{RULE_NAMES[rule]}: {RULE_WORDING[rule]}")
     out["rule"] = rule
     out["rule_name"] = RULE_NAMES[rule]
     out["radius"] = radius
