@@ -162,6 +162,22 @@ def check_name(value, what: str, *, max_len: int = NAME_MAX, allow_empty: bool =
     return value
 
 
+def clean_name(text: str, *, max_len: int = NAME_MAX) -> str:
+    """A usable name made from untrusted text (e.g. a file name used as the serial): control and invisible
+    characters become U+FFFD, surrounding blanks go, and it is cut to ``max_len``."""
+    out = "".join("\ufffd" if _bad_char(ch) else ch for ch in str(text)).strip()
+    return out[:max_len] or "\ufffd"
+
+
+def check_meta_fields(values: dict, *, max_len: int = 200) -> None:
+    """Check record details (lot, serial, operator, part, customer, ...; ``notes`` is free text)."""
+    for key, value in values.items():
+        label = {"order_ref": "order reference", "lot": "lot name"}.get(key, key.replace("_", " "))
+        if key == "temperature_c":
+            continue
+        check_name(value, f"the {label}", max_len=max_len, free_text=(key == "notes"))
+
+
 def name_type(what: str, *, max_len: int = NAME_MAX, free_text: bool = False) -> Callable[[str], str]:
     """An argparse ``type=`` applying :func:`check_name`."""
 

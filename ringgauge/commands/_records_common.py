@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 
+from ..options import name_type, number
 from ..records.store import RecordMeta
 
 DB_HELP = ("records store: a SQLite file, or a postgresql://user@host/dbname URL for a store shared by "
@@ -36,22 +37,31 @@ def add_meta_arguments(parser: argparse.ArgumentParser, *, lot_required: bool = 
                 group.add_argument(flag, **kw)
 
     g = _G()
-    g.add_argument("--lot", required=lot_required, help="lot or batch name")
-    g.add_argument("--part", help="part number")
-    g.add_argument("--drawing", help="drawing number and revision")
-    g.add_argument("--surface", help="which surface (e.g. S1, S2)")
+    g.add_argument("--lot", required=lot_required, type=name_type("the lot name", max_len=200),
+                   help="lot or batch name")
+    g.add_argument("--part", type=name_type("the part", max_len=200), help="part number")
+    g.add_argument("--drawing", type=name_type("the drawing", max_len=200), help="drawing number and revision")
+    g.add_argument("--surface", type=name_type("the surface", max_len=200), help="which surface (e.g. S1, S2)")
     if serial:
-        g.add_argument("--serial", help="lens serial number")
-    g.add_argument("--operator", help="who measured")
-    g.add_argument("--customer", help="customer name")
-    g.add_argument("--order", dest="order_ref", help="customer order reference")
-    g.add_argument("--temperature", dest="temperature_c", type=float, metavar="DEG_C",
-                   help="room temperature at the bench, °C")
+        g.add_argument("--serial", type=name_type("the serial", max_len=200), help="lens serial number")
+    g.add_argument("--operator", type=name_type("the operator", max_len=200), help="who measured")
+    g.add_argument("--customer", type=name_type("the customer", max_len=200), help="customer name")
+    g.add_argument("--order", dest="order_ref", type=name_type("the order reference", max_len=200),
+                   help="customer order reference")
+    g.add_argument("--temperature", dest="temperature_c", type=number("--temperature", lo=-40, hi=80, unit="°C"),
+                   metavar="DEG_C", help="room temperature at the bench, °C")
     g.add_argument("--notes", help="free text kept with the record")
 
 
 def meta_from_args(args) -> RecordMeta:
-    """The record details from parsed options (options not defined on the parser count as not given)."""
-    return RecordMeta(**{k: getattr(args, k, None) for k in (
+    """The record details from parsed options (options not defined on the parser count as not given).
+
+    Checked here, before any work is done (also values a lot sheet filled in): no control characters, bounded
+    length (:func:`ringgauge.options.check_meta_fields`)."""
+    from ..options import check_meta_fields
+
+    values = {k: getattr(args, k, None) for k in (
         "part", "drawing", "surface", "lot", "serial", "operator", "customer", "order_ref", "temperature_c",
-        "notes")})
+        "notes")}
+    check_meta_fields(values)
+    return RecordMeta(**values)

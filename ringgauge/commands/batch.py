@@ -8,7 +8,6 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
-from ..options import integer
 from ._help import ExampleFormatter
 from ._records_common import add_db_argument, add_meta_arguments, meta_from_args, open_from_args
 
@@ -36,7 +35,7 @@ def register(sub) -> None:
     g.add_argument("--lot-sheet", metavar="FILE.json",
                    help="the lot's details, set-up and tolerances (default: lot.json in FOLDER if there); "
                         "options given here override it — fields in the README")
-    g.add_argument("--workers", type=integer("--workers", lo=1, hi=256), metavar="N",
+    g.add_argument("--workers", type=int, metavar="N",
                    help=f"parallel analyses (default: all {os.cpu_count() or 1} cores)")
     g.add_argument("--recursive", action="store_true", help="also take images from sub-folders")
     g.add_argument("--retry-failed", action="store_true",

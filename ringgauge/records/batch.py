@@ -329,7 +329,12 @@ def _record(store: Store, run: LotRun, meta: RecordMeta, job, result, failure, s
         result, failure = None, "analysis returned no result"
     if result is not None and warnings:
         result = {**result, "warnings": list(warnings) + list(result.get("warnings") or [])}
-    m = meta.with_(serial=Path(path).stem) if serial_from_name and not meta.serial else meta
+    if serial_from_name and not meta.serial:
+        from ..options import clean_name
+
+        m = meta.with_(serial=clean_name(Path(path).stem))  # a file name may hold characters a name may not
+    else:
+        m = meta
     if prior is not None:
         rec = store.supersede(prior, "analysed again after a failure (--retry-failed)", result=result,
                               failure=failure, image_path=path, image_sha256=sha)

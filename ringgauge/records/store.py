@@ -887,6 +887,10 @@ class Store:
                 supersedes=None, reason=None, origin="measured") -> InspectionRecord:
         if self.write_refusal:
             raise StoreError(self.write_refusal)
+        from ..options import check_meta_fields
+
+        # a newline in a lot name split the output and the records listing: one check for every way in
+        check_meta_fields({k: getattr(meta, k) for k in META_FIELDS + ("notes",)})
         if origin is not None and origin not in ORIGINS:
             raise InputError(f"unknown record origin {origin!r}; one of {', '.join(ORIGINS)}")
         if self._version < 3:
