@@ -46,9 +46,9 @@ _IDLE_STYLE = "background:#7b8794;color:white;font-weight:bold;font-size:14pt;pa
 
 def _live_cautions() -> list[str]:
     """The lamp and laser cautions (the first notes of the shop's safety list) for the live page."""
-    keep = [n for n in SAFETY_NOTES if any(w in n.lower() for w in ("laser", "mercury", "uv", "lamp", "hot"))]
-    keep.append("Press gently and only on clean surfaces: grit and hard pressure scratch and chip both parts.")
-    keep.append(SAFETY_NOTES[-1])
+    keep = [n for n in SAFETY_NOTES if any(w in n.lower() for w in ("laser", "mercury", "sodium"))]
+    keep.append("Press gently, on clean surfaces only: grit and hard pressure scratch and chip both parts. Your "
+                "shop's procedures and local regulations come first.")
     return keep
 
 
@@ -190,6 +190,8 @@ class LivePage(QWidget):
         gl.addWidget(self.sign_label, 4, 1)
         self.sign_detail = QLabel("Let the part settle, or press it gently: the way the rings move gives the sign.")
         self.sign_detail.setWordWrap(True)
+        self.sign_detail.setStyleSheet("font-size:10pt")
+        self.sign_detail.setMinimumHeight(self.sign_detail.fontMetrics().lineSpacing() * 3 + 4)
         gl.addWidget(self.sign_detail, 5, 0, 1, 2)
         self.settle_rule = QLabel("")
         self.settle_rule.setWordWrap(True)
@@ -205,7 +207,7 @@ class LivePage(QWidget):
                                     "analysis on the Bench page")
         self.capture_btn.clicked.connect(self.capture)
         cl.addWidget(self.capture_btn)
-        self.auto_box = QCheckBox("Capture automatically once settled (once per settling)")
+        self.auto_box = QCheckBox("Capture automatically when settled")
         cl.addWidget(self.auto_box)
         self.capture_note = QLabel("")
         self.capture_note.setWordWrap(True)
@@ -221,6 +223,7 @@ class LivePage(QWidget):
         sl = QVBoxLayout(safety)
         notes = "".join(f"<li>{html.escape(n)}</li>" for n in _live_cautions())
         self.safety_label = QLabel(f"<ul style='margin-left:-20px'>{notes}</ul>")
+        self.safety_label.setStyleSheet("font-size:9.5pt")
         self.safety_label.setWordWrap(True)
         self.safety_label.setTextFormat(Qt.TextFormat.RichText)
         sl.addWidget(self.safety_label)
@@ -307,7 +310,7 @@ class LivePage(QWidget):
             self.timer.stop()
             self.start_btn.setEnabled(True)
             self.stop_btn.setEnabled(False)
-            if not s.error and st is not None:
+            if not s.error and st is not None and s.exhausted and not self.rate.text().endswith("source"):
                 self.rate.setText(self.rate.text() + " — end of the source")
 
     def _show_state(self, st) -> None:

@@ -98,6 +98,7 @@ class LiveSession:
         self.latest_frame: SourceFrame | None = None
         self.error: str | None = None
         self.ended = False
+        self.exhausted = False  # the source had no more frames (a file's end), as opposed to being stopped
         self.analysed = 0
         self._lock = threading.Lock()
         self._thread = None
@@ -152,7 +153,7 @@ class LiveSession:
     def step(self) -> LiveState | None:
         f = self.source.read()
         if f is None:
-            self.ended = True
+            self.ended = self.exhausted = True
             return None
         return self.analyse(f)
 
