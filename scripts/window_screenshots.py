@@ -1,6 +1,9 @@
 """Screenshots of the bench window's main screens, taken from a real window on a virtual screen.
 
     QT_QPA_PLATFORM=xcb xvfb-run -a -s "-screen 0 1280x800x24" .venv/bin/python scripts/window_screenshots.py [OUT_DIR]
+    QT_QPA_PLATFORM=xcb xvfb-run -a -s "-screen 0 1024x700x24" .venv/bin/python scripts/window_screenshots.py [OUT_DIR]
+
+On a screen narrower than 1200 px the files get the ending "-1024" (bench-1024.png, ...).
 
 Demo scenario (invented): the optics shop "Kestrel Lane Optics" checks lot KL-2611 of plano-convex lenses on bench 2
 under a sodium lamp; operator initials "J.V.". Images come from ringgauge.synth, so nothing here is a check value.
@@ -61,7 +64,11 @@ def main() -> int:
         for _ in range(10):
             app.processEvents()
 
+    small = QGuiApplication.primaryScreen().size().width() < 1200
+
     def shot(name: str) -> None:
+        if small:
+            name = name.replace(".png", "-1024.png")
         pump(0.5)
         pix = QGuiApplication.primaryScreen().grabWindow(0)
         pix.save(str(OUT / name))
@@ -108,7 +115,7 @@ def main() -> int:
         cv2.imwrite(str(part / f"frame-{'AB'[i]}.png"), img.image)
     win.session.replace_setup(SetupState(source="mercury-e", pixel_size_um=75.0, pixel_size_u_um=0.05,
                                          operator="J.V.", test_plate="TP-KL-07", tolerance="3/2(0.5)",
-                                         test_diameter_mm=20.0))
+                                         test_diameter_mm=18.0))
     win.bench.setup_panel.reload_lists()
     win.bench.setup_panel.refresh()
     win.open_paths([str(part / "frame-A.png"), str(part / "frame-B.png")])
@@ -119,6 +126,24 @@ def main() -> int:
     win.bench.view.fit()
     shot("bench-form-verdict.png")
     win.bench.plots.setCurrentIndex(0)
+    shot("bench-form-profile.png")  # a form job: the r² tab shows the form along the radius
+
+    # 4b. the registers: test plates and bench calibration (Tools menu)
+    win.plates_dialog()
+    shot("tools-test-plates.png")
+    win._plates.close()
+    win.calibration_dialog()
+    dlg = win._calibration
+    # the bundled stage-micrometer photograph (100 µm divisions; invented sample data)
+    target = Path(__file__).resolve().parents[1] / "sample_images" / "calibration" / "stage-micrometer-100um.png"
+    dlg.images.setText(str(target))
+    dlg.size.setText("100")
+    dlg.size_u.setText("0.05")
+    dlg.bench.setCurrentText("Bench 2")
+    dlg.measure()
+    pump(60, lambda: dlg.result is not None or "Measuring" not in dlg.message.text())
+    shot("tools-calibration.png")
+    dlg.close()
 
     # 5. the lot review (lenses on the optical flat again; the bench keeps its last result meanwhile)
     win.a_auto.trigger()  # automatic re-analysis off
@@ -142,9 +167,13 @@ def main() -> int:
     tp.power.setValue(round(t["power_fringes"] + 0.5, 1))
     tp.astig.setValue(round(t["astigmatism_fringes"], 1))
     tp.sign_buttons[t["sign"]].setChecked(True)
-    tp.radius.setValue(round(ex.plate_radius_mm, 3))
+    tp.radius.setValue(round(t["part_radius_mm"], 3))
+    tp.irreg.setValue(round(t["irregularity_fringes"], 1))
     tp.score_reading()
     shot("training-scored.png")
+    tp.tabs.setCurrentIndex(1)
+    shot("training-review.png")
+    tp.tabs.setCurrentIndex(0)
 
     # 7. help with the bench safety cautions
     win.tabs.setCurrentWidget(win.bench)

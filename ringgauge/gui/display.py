@@ -73,6 +73,8 @@ class Overlay:
     masks: list[tuple[float, float, float]] = field(default_factory=list)  # circles: x, y, r
     mask_image: np.ndarray | None = None  # bool (H, W), when the result carries a pixel mask
     meridians: list[tuple[float, str]] = field(default_factory=list)  # angle in degrees from +x, label
+    test_circle: tuple[float, float, float, float] | None = None  # the evaluated test diameter: cx, cy, rx, ry
+    test_diameter_mm: float | None = None
 
 
 def _num(v) -> float | None:
@@ -134,6 +136,13 @@ def overlay_from(d: dict | None, overrides: dict | None = None) -> Overlay:
                     x, y = float(m["centre_px"][0]), float(m["centre_px"][1])
                     ov.masks.append((x, y, max(2.0, math.sqrt(float(m["area_px"]) / math.pi))))
         form = d.get("form") if isinstance(d.get("form"), dict) else {}
+        td = _num(form.get("test_diameter_mm"))
+        px = (d.get("setup") or {}).get("pixel_size_um") or []
+        if td and ov.aperture is not None and len(px) >= 2 and _num(px[0]) and _num(px[1]):
+            # the test diameter about the aperture's centre, in pixels along x and y
+            cx, cy = ov.aperture[0], ov.aperture[1]
+            ov.test_circle = (cx, cy, td / 2 * 1e3 / float(px[0]), td / 2 * 1e3 / float(px[1]))
+            ov.test_diameter_mm = td
         axis = _num(form.get("astigmatism_axis_deg"))
         if axis is not None and (_num(form.get("astigmatism_fringes")) or 0) > 0:
             # the form evaluation counts the axis from +x toward +y (rows, down): clockwise on screen
@@ -526,7 +535,56 @@ def ring_gap_map(d: dict | None, shape: tuple[int, int], *, step: int = 4) -> di
 
 
 def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
-    """The surface-form map: the form result's own map when it has one, else the ring fit's gap."""
+    """The surface-form map: the form result's own map when it has one, else the ring fit's gap.
+
+    ``extent_px`` is (left, right, bottom, top) in image pixels; ``extent_mm`` the same in millimetres on the
+    part, measured from the aperture's (or the rings') centre, when the pixel size is known."""
+    m = _form_map(d, form_obj, shape)
+    if m is None:
+        return None
+    px = ((d or {}).get("setup") or {}).get("pixel_size_um") or []
+    centre = m.get("centre_px") or (d or {}).get("centre_px")
+    if len(px) >= 2 and _num(px[0]) and _num(px[1]) and centre:
+        x0, x1, y0, y1 = m["extent_px"]
+        sx, sy = float(px[0]) * 1e-3, float(px[1]) * 1e-3
+        cx, cy = float(centre[0]), float(centre[1])
+        # image rows run down; on the plot +y is up, so the mm axis is flipped to keep the picture upright
+        m["extent_mm"] = ((x0 - cx) * sx, (x1 - cx) * sx, (cy - y0) * sy, (cy - y1) * sy)
+    return m
+
+
+def form_profile(m: dict | None, *, bins: int = 40) -> dict | None:
+    """The form map along the radius: mean, lowest and highest gap (nm) in rings of equal width, radius in mm.
+
+    For a form result the r²-against-order plot has no rings to show; this is what a rotationally symmetric
+    error (a zone, power) looks like along the radius."""
+    if not m or "extent_mm" not in m:
+        return None
+    g = np.asarray(m["gap_nm"], dtype=float)
+    x0, x1, y0, y1 = m["extent_mm"]
+    ny, nx = g.shape
+    xs = np.linspace(x0, x1, nx)
+    ys = np.linspace(y1, y0, ny)  # first row is the top of the picture
+    r = np.hypot(xs[None, :], ys[:, None])
+    ok = np.isfinite(g)
+    if ok.sum() < 10:
+        return None
+    rmax = float(r[ok].max())
+    edges = np.linspace(0.0, rmax, bins + 1)
+    idx = np.clip(np.digitize(r[ok], edges) - 1, 0, bins - 1)
+    vals = g[ok]
+    cnt = np.bincount(idx, minlength=bins)
+    keep = cnt > 0
+    mean = np.bincount(idx, vals, bins)[keep] / cnt[keep]
+    lo = np.full(bins, np.inf)
+    hi = np.full(bins, -np.inf)
+    np.minimum.at(lo, idx, vals)
+    np.maximum.at(hi, idx, vals)
+    mid = 0.5 * (edges[1:] + edges[:-1])
+    return {"r_mm": mid[keep], "mean_nm": mean, "lo_nm": lo[keep], "hi_nm": hi[keep]}
+
+
+def _form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
     if form_obj is not None and getattr(form_obj, "fits", None):
         m = _form_fit_map(form_obj, shape)
         if m is not None:
@@ -564,7 +622,7 @@ def _form_fit_map(form_obj, shape, n: int = 161) -> dict | None:
     keep = np.array([name not in ("piston", "tilt_x", "tilt_y") for name in f.names[: len(coeffs)]])
     gap = np.full(u.shape, np.nan)
     gap[inside] = (coeffs[keep] @ B[keep]) * float(form_obj.fringe_nm)
-    return {"gap_nm": gap, "extent_px": (xs[0], xs[-1], ys[-1], ys[0]),
+    return {"gap_nm": gap, "extent_px": (xs[0], xs[-1], ys[-1], ys[0]), "centre_px": (float(cx), float(cy)),
             "title": "Surface form: fitted gap less piston and tilt"}
 
 

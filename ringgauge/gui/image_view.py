@@ -138,14 +138,30 @@ class ImageView(QGraphicsView):
     def zoom(self) -> float:
         return float(self.transform().m11())
 
-    def set_zoom(self, factor: float) -> None:
+    def view_centre(self) -> QPointF:
+        """The image point (x = column, y = row) at the middle of the view."""
+        return self.mapToScene(self.viewport().rect().center())
+
+    def set_zoom(self, factor: float, *, anchor: QPointF | None = None) -> None:
+        """Zoom to ``factor`` screen pixels per image pixel. The image point under ``anchor`` (a position in the
+        viewport, e.g. the mouse) stays where it is; without one, the point in the middle of the view does."""
         factor = float(min(max(factor, 0.02), 64.0))
+        vp = QPointF(self.viewport().rect().center()) if anchor is None else QPointF(anchor)
+        keep = self.mapToScene(vp.toPoint())
+        old_anchor = self.transformationAnchor()
+        self.setTransformationAnchor(QGraphicsView.ViewportAnchor.NoAnchor)
         self.resetTransform()
         self.scale(factor, factor)
+        # move the view so that ``keep`` is back under ``vp``
+        self.centerOn(keep)
+        if anchor is not None:
+            # keep is in the middle now; move by what lies between the anchor and the middle
+            self.centerOn(keep * 2 - QPointF(self.mapToScene(vp.toPoint())))
+        self.setTransformationAnchor(old_anchor)
         self.zoomChanged.emit(factor)
 
-    def zoom_by(self, step: float) -> None:
-        self.set_zoom(self.zoom() * step)
+    def zoom_by(self, step: float, *, anchor: QPointF | None = None) -> None:
+        self.set_zoom(self.zoom() * step, anchor=anchor)
 
     def showEvent(self, event):  # noqa: N802
         super().showEvent(event)
@@ -160,7 +176,7 @@ class ImageView(QGraphicsView):
     def wheelEvent(self, event):  # noqa: N802
         steps = event.angleDelta().y() / 120.0
         if steps:
-            self.zoom_by(1.25**steps)
+            self.zoom_by(1.25**steps, anchor=event.position())  # the point under the mouse stays put
             event.accept()
 
     # overlay ----------------------------------------------------------------------------------------------
@@ -212,6 +228,16 @@ class ImageView(QGraphicsView):
         cx, cy, rx, ry = ov.aperture
         style = Qt.PenStyle.DashLine if ov.aperture_by_hand else Qt.PenStyle.SolidLine
         self._ellipse(g, cx, cy, rx, ry, _pen(GREEN, 2.5, style))
+        if ov.test_circle is not None:
+            # the test diameter the form was evaluated over (dash-dot, so it stays distinct where it meets the rim)
+            tx, ty, trx, try_ = ov.test_circle
+            self._ellipse(g, tx, ty, trx, try_, _pen(SKY, 2.0, Qt.PenStyle.DashDotLine))
+            txt = QGraphicsTextItem()
+            txt.setHtml(f"<span style='background-color: rgba(0, 0, 0, 170); color: {QColor(SKY).name()};'>"
+                        f"&nbsp;test Ø {ov.test_diameter_mm:g} mm&nbsp;</span>")
+            txt.setFlag(QGraphicsTextItem.GraphicsItemFlag.ItemIgnoresTransformations)
+            txt.setPos(tx + 0.72 * trx, ty - 0.72 * try_)
+            g.addToGroup(txt)
 
     def _draw_masks(self, g, ov: Overlay) -> None:
         brush = QBrush(QColor(213, 94, 0, 90), Qt.BrushStyle.BDiagPattern)

@@ -181,8 +181,7 @@ class SetupState:
         diameter = _as_float("test diameter", self.test_diameter_mm, allow_none=True)
         if diameter is not None and diameter <= 0:
             diameter = None
-        if (plate is not None or tol) and diameter is None:
-            raise InputError("a form evaluation needs the test diameter in mm; enter it in the set-up panel")
+        # no test diameter: the form is evaluated over the clear aperture found, as on the command line
         return BenchSetup(
             source=self.light_source(),
             medium_index=n,
@@ -309,6 +308,8 @@ class BenchSession:
         self.overrides = Overrides()
         self.result = None
         self.error: str | None = None
+        #: the result on show was made with inputs that have changed since (automatic analysis off)
+        self.stale = False
         self.busy = False
         self.progress: tuple[float, str] = (0.0, "")
         self.generation = 0
@@ -326,6 +327,8 @@ class BenchSession:
         self.generation += 1
         if self._job is not None:
             self._job.cancelled = True
+        if what in ("setup", "overrides") and self.result is not None:
+            self.stale = True  # kept on show until analysed again, but no longer the answer to these inputs
         self.changed.emit(what)
 
     def update_setup(self, **changes) -> None:
@@ -361,6 +364,7 @@ class BenchSession:
     def set_frames(self, frames: Sequence[Frame]) -> None:
         self.frames = tuple(frames)
         self.result = None
+        self.stale = False
         self.error = None
         self.overrides = Overrides()
         self._undo.clear()
@@ -462,6 +466,7 @@ class BenchSession:
         self._job = None
         self.busy = False
         self.result = result
+        self.stale = False
         self.error = None
         self.changed.emit("result")
         return True
@@ -472,9 +477,25 @@ class BenchSession:
         self._job = None
         self.busy = False
         self.result = None
+        self.stale = False
         self.error = message
         self.changed.emit("error")
         return True
+
+    def refuse(self, message: str) -> None:
+        """A new image could not be opened: what was on show belongs to another part, so it goes — frames,
+        result and hand settings — and ``error`` says why (a watched camera folder must never leave the last
+        part's verdict beside a file that failed)."""
+        self.frames = ()
+        self.result = None
+        self.stale = False
+        self.overrides = Overrides()
+        self._undo.clear()
+        self._redo.clear()
+        self.busy = False
+        self._bump("frames")
+        self.error = message
+        self.changed.emit("error")
 
     def run_now(self):
         """Run the analysis in this thread (command line, tests); returns the result or raises."""

@@ -37,7 +37,7 @@ class PlotCanvas(QStackedWidget):
         self.label.setStyleSheet("color: #555555;")
         self.addWidget(self.label)
         self.addWidget(self.canvas)
-        self.setMinimumHeight(180)
+        self.setMinimumHeight(140)
         self.has_data = False
 
     def empty(self, text: str) -> None:
@@ -73,7 +73,8 @@ class PlotPanel(QTabWidget):
             c.empty("no result yet")
 
     def show_result(self, d: dict | None, *, form_obj=None, shape=None) -> None:
-        self._pending = {0: (self._rings, (d,)), 1: (self._profile, (d,)), 2: (self._form, (d, form_obj, shape))}
+        self._pending = {0: (self._rings, (d, form_obj, shape)), 1: (self._profile, (d,)),
+                         2: (self._form, (d, form_obj, shape))}
         # state what each tab will hold now, draw the visible one now and the rest when opened
         self.rings.has_data = display.ring_plot_data(d) is not None
         self.profile.has_data = display.profile_plot_data(d) is not None
@@ -93,11 +94,11 @@ class PlotPanel(QTabWidget):
         for i in list(self._pending):
             self._draw_pending(i)
 
-    def _rings(self, d) -> None:
+    def _rings(self, d, form_obj=None, shape=None) -> None:
         data = display.ring_plot_data(d)
         c = self.rings
         if data is None:
-            c.empty("no rings in this result")
+            self._form_profile(d, form_obj, shape)
             return
         c.figure.clear()
         ax, axr = c.figure.subplots(2, 1, sharex=True, height_ratios=[3, 1.3])
@@ -119,6 +120,27 @@ class PlotPanel(QTabWidget):
             axr.plot(m[~used], data["residual_um2"][~used], "x", ms=6, color=C_OUT)
         axr.set_ylabel("residual / µm²")
         axr.set_xlabel("fringe order m")
+        c.shown()
+
+    def _form_profile(self, d, form_obj, shape) -> None:
+        """A form job has no ring orders: show the form along the radius instead, and say why."""
+        c = self.rings
+        prof = display.form_profile(display.form_map(d, form_obj, shape)) if d and d.get("form") else None
+        if prof is None:
+            c.empty("Not a ring-radius job: r² against fringe order belongs to Newton's rings on an optical flat. "
+                    "This result has no rings to plot." if d else "no result yet")
+            return
+        c.figure.clear()
+        ax = c.figure.add_subplot(111)
+        c.figure.subplots_adjust(left=0.15, right=0.97, top=0.86, bottom=0.15)
+        ax.fill_between(prof["r_mm"], prof["lo_nm"], prof["hi_nm"], color=C_BRIGHT, alpha=0.2,
+                        label="lowest to highest around the ring")
+        ax.plot(prof["r_mm"], prof["mean_nm"], "-", color=C_BRIGHT, lw=1.5, label="mean around the ring")
+        ax.axhline(0, color=C_LINE, lw=0.8)
+        ax.set_xlabel("radius on the part r / mm")
+        ax.set_ylabel("gap less piston and tilt / nm")
+        ax.set_title("Form job (no ring orders): the form map along the radius", fontsize=10)
+        ax.legend(loc="best", fontsize=8)
         c.shown()
 
     def _profile(self, d) -> None:
@@ -149,10 +171,16 @@ class PlotPanel(QTabWidget):
         c.figure.clear()
         ax = c.figure.add_subplot(111)
         c.figure.subplots_adjust(left=0.12, right=0.92, top=0.92, bottom=0.13)
-        im = ax.imshow(data["gap_nm"], extent=data["extent_px"], cmap="cividis", interpolation="nearest")
+        if "extent_mm" in data:
+            # millimetres on the part from the aperture's centre; +y up (image rows run down)
+            im = ax.imshow(data["gap_nm"], extent=data["extent_mm"], cmap="cividis", interpolation="nearest")
+            ax.set_xlabel("x / mm")
+            ax.set_ylabel("y / mm (up)")
+        else:
+            im = ax.imshow(data["gap_nm"], extent=data["extent_px"], cmap="cividis", interpolation="nearest")
+            ax.set_xlabel("x / px")
+            ax.set_ylabel("y / px")
         ax.set_aspect("equal")
-        ax.set_xlabel("x / px")
-        ax.set_ylabel("y / px")
         ax.set_title(data["title"], fontsize=10)
         cb = c.figure.colorbar(im, ax=ax, shrink=0.9)
         cb.set_label("gap / nm")

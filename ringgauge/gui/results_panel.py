@@ -28,6 +28,7 @@ TONES = {
     "none": ("#d9dde3", "#111111"),
     "busy": ("#dce7f3", "#111111"),
     "error": ("#fbe3d6", "#5a1400"),
+    "stale": ("#e6e0cf", "#3b3200"),
 }
 
 
@@ -59,7 +60,7 @@ class VerdictBanner(QFrame):
         text.addWidget(self.rule)
         lay.addWidget(self.symbol, 0, Qt.AlignmentFlag.AlignTop)
         lay.addLayout(text, 1)
-        self.setMinimumHeight(118)
+        self.setMinimumHeight(96)
         self.tone = "none"
         self.show_verdict(verdict_view(None))
 
@@ -68,9 +69,9 @@ class VerdictBanner(QFrame):
         bg, fg = TONES[tone]
         self.setStyleSheet(f"#verdictBanner {{ background: {bg}; border-radius: 6px; }}"
                            f"#verdictBanner QLabel {{ color: {fg}; background: transparent; }}"
-                           "#verdictBanner QLabel#verdictWord { font-size: 22pt; font-weight: bold; }"
+                           "#verdictBanner QLabel#verdictWord { font-size: 18pt; font-weight: bold; }"
                            "#verdictBanner QLabel#verdictRule { font-size: 9pt; }"
-                           "#verdictBanner QLabel#verdictHeadline { font-size: 15pt; font-weight: bold; }")
+                           "#verdictBanner QLabel#verdictHeadline { font-size: 13pt; font-weight: bold; }")
 
     def show_verdict(self, v: VerdictView) -> None:
         self.symbol.setText(v.symbol)
@@ -94,6 +95,15 @@ class VerdictBanner(QFrame):
         self.explain.setText(f"{message} ({100 * fraction:.0f} %)" if message else "")
         self.rule.setVisible(False)
         self._paint("busy")
+
+    def show_stale(self, message: str) -> None:
+        self.symbol.setText("⟳")
+        self.word.setText("OUT OF DATE")
+        self.headline.setVisible(False)
+        self.explain.setText(message)
+        self.rule.setVisible(False)
+        self.setAccessibleName(f"Result out of date: {message}")
+        self._paint("stale")
 
     def show_error(self, message: str) -> None:
         self.symbol.setText("!")
@@ -136,8 +146,12 @@ class ResultsPanel(QWidget):
         self.k_note = QLabel("")
         self.k_note.setWordWrap(True)
         lay.addWidget(self.k_note)
+        self.stale = False
 
     def clear(self) -> None:
+        self.stale = False
+        for t in (self.values, self.budget):
+            t.setEnabled(True)
         self.values.setRowCount(0)
         self.budget.setRowCount(0)
         self.warnings.clear()
@@ -146,6 +160,9 @@ class ResultsPanel(QWidget):
         self.banner.show_verdict(verdict_view(None))
 
     def show_result(self, d: dict | None) -> None:
+        self.stale = False
+        for t in (self.values, self.budget):
+            t.setEnabled(True)
         self.banner.show_verdict(verdict_view(d))
         rows = value_rows(d)
         self.values.setRowCount(len(rows))
@@ -164,6 +181,7 @@ class ResultsPanel(QWidget):
         for i, r in enumerate(brows):
             for j, text in enumerate(r):
                 self.budget.setItem(i, j, QTableWidgetItem(text))
+        self._fit_width()
         warns = list((d or {}).get("warnings") or [])
         self.warnings.clear()
         self.warnings.addItems(warns)
@@ -173,8 +191,30 @@ class ResultsPanel(QWidget):
         self.k_note.setText(
             f"U = k·u with k = {k:g} ({budget.get('coverage', 'approximately 95 %')} coverage)." if k else "")
 
+    def needed_width(self) -> int:
+        """Width the values table needs to show every column whole (no cut text, no sideways scrolling)."""
+        t = self.values
+        h = t.horizontalHeader()
+        cols = sum(max(h.sectionSizeHint(c), t.sizeHintForColumn(c)) for c in range(t.columnCount()))
+        frame = 2 * t.frameWidth() + t.verticalScrollBar().sizeHint().width()
+        lay = self.layout().contentsMargins()
+        return cols + frame + lay.left() + lay.right() + 16
+
+    def _fit_width(self) -> None:
+        # the splitter then takes the room from the photograph, never from the numbers
+        self.setMinimumWidth(min(self.needed_width(), 640))
+
     def show_busy(self, fraction: float, message: str) -> None:
         self.banner.show_busy(fraction, message)
+
+    def mark_stale(self, message: str = "") -> None:
+        """The inputs changed after this result was made and it was not analysed again: the banner says so and
+        the values are greyed (still readable, no longer the answer)."""
+        self.stale = True
+        for t in (self.values, self.budget):
+            t.setEnabled(False)
+        self.banner.show_stale(message or "The set-up changed after this result was made. Press F5 (Analyse "
+                               "now) to measure with the new set-up; the values below belong to the old one.")
 
     def show_error(self, message: str) -> None:
         self.clear()

@@ -203,14 +203,20 @@ class SetupPanel(QWidget):
                 self.profile.addItem(n, n)
             self.profile.setEnabled(bool(names))
             self.profile.setToolTip("Saved calibration of a camera on a bench" if names
-                                    else "No bench calibration profiles saved yet")
+                                    else "No bench calibration saved yet: measure one with Tools > Bench "
+                                    "calibration…")
+            if not names:
+                self.profile.setItemText(0, "(none saved: Tools menu)")
             self.plate.clear()
             self.plate.addItem("(none: lens on an optical flat)", "")
             ids = integrations.plate_ids()
             for p in ids:
                 self.plate.addItem(p, p)
             self.plate.setEnabled(bool(ids))
-            self.plate.setToolTip("Test plate from the register" if ids else "The test-plate register is empty")
+            self.plate.setToolTip("Test plate from the register" if ids else "The test-plate register is empty: "
+                                  "add plates with Tools > Test plates…")
+            if not ids:
+                self.plate.setItemText(0, "(none: add in Tools menu)")
 
     @contextmanager
     def _quiet(self):

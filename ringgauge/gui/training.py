@@ -39,8 +39,8 @@ class Level:
     dust: int  # specks up to
     read_noise_e: float
     falloff: float
-    # What counts as a correct reading. A trained eye reads to about 0.1-0.25 fringe (DOMAIN.md §3;
-    # common practice, no source); the starter level allows half a fringe.
+    # What counts as a correct reading. A trained eye reads to about 0.1-0.25 fringe (common practice,
+    # no source); the starter level allows half a fringe.
     power_tol: float
     astig_tol: float
 
@@ -100,6 +100,18 @@ def count_crossings(form: SurfaceForm, *, samples: int = 4001) -> int:
     return int(np.abs(np.diff(g)).sum())
 
 
+def irregularity_pv(form: SurfaceForm, *, n: int = 201) -> float:
+    """Irregularity as ISO 10110-5 counts it: the peak-to-valley of the gap, in fringes, left after the best-fit
+    sphere (piston, tilt and power) is taken away over the whole part — astigmatism and zones are in it."""
+    uu, vv = np.meshgrid(np.linspace(-1, 1, n), np.linspace(-1, 1, n))
+    inside = uu**2 + vv**2 <= 1
+    u, v = uu[inside], vv[inside]
+    g = form.gap_fringes(u, v)
+    A = np.column_stack([np.ones_like(u), u, v, u * u + v * v])
+    res = g - A @ np.linalg.lstsq(A, g, rcond=None)[0]
+    return float(np.round(res.max() - res.min(), 2))
+
+
 def make_exercise(level: str = "starter", seed: int | None = None) -> Exercise:
     """Generate a practice case; the same ``seed`` and ``level`` give the same case."""
     if level not in LEVELS:
@@ -139,6 +151,7 @@ def make_exercise(level: str = "starter", seed: int | None = None) -> Exercise:
         frames.append(img.image if img.image.dtype == np.uint8 else (img.image >> 8).astype(np.uint8))
     truth = {
         "fringe_count": count_crossings(form),
+        "irregularity_fringes": irregularity_pv(form),
         "power_fringes": abs(power),
         "power_signed_fringes": power,
         "astigmatism_fringes": astig,
@@ -158,6 +171,7 @@ class Reading:
     astigmatism_fringes: float | None = None
     sign: str | None = None  # "centre" or "edge"
     part_radius_mm: float | None = None
+    irregularity_fringes: float | None = None
 
 
 @dataclass(frozen=True)
@@ -230,6 +244,19 @@ def score(ex: Exercise, reading: Reading) -> Score:
         items.append(ItemScore("Astigmatism", _fr(float(reading.astigmatism_fringes)), _fr(a) + axis, ok,
                                f"{'within' if ok else 'outside'} ±{lv.astig_tol:g} fringe: you read "
                                f"{_fr(abs(d))} {'high' if d > 0 else 'low'}" if d else "exact"))
+    # irregularity (older logged exercises have no truth for it: not scored there)
+    if "irregularity_fringes" in t:
+        b = float(t["irregularity_fringes"])
+        if reading.irregularity_fringes is None:
+            items.append(ItemScore("Irregularity", "not given", _fr(b), False,
+                                   "irregularity is what is left when the best-fit sphere is taken away: "
+                                   "how far the fringes depart from evenly spaced circles"))
+        else:
+            d = float(reading.irregularity_fringes) - b
+            ok = abs(d) <= lv.astig_tol + 1e-9
+            items.append(ItemScore("Irregularity", _fr(float(reading.irregularity_fringes)), _fr(b), ok,
+                                   f"{'within' if ok else 'outside'} ±{lv.astig_tol:g} fringe: you read "
+                                   f"{_fr(abs(d))} {'high' if d > 0 else 'low'}" if d else "exact"))
     # sign
     s = t["sign"]
     if reading.sign not in SIGNS:
@@ -321,7 +348,45 @@ class TraineeLog:
         return entry
 
     def trainees(self) -> list[str]:
-        return sorted(p.stem for p in self.folder.glob("*.jsonl"))
+        """The trainees' names as they were typed (the file names are only a safe spelling of them)."""
+        names = []
+        for p in self.folder.glob("*.jsonl"):
+            name = p.stem
+            try:
+                with open(p, encoding="utf-8") as fh:
+                    for line in fh:
+                        try:
+                            got = json.loads(line).get("trainee")
+                        except (json.JSONDecodeError, AttributeError):
+                            continue
+                        if isinstance(got, str) and got.strip():
+                            name = got.strip()
+                            break
+            except OSError:
+                pass
+            names.append(name)
+        return sorted(names, key=str.casefold)
+
+    def write_csv(self, trainee: str, out) -> int:
+        """The trainee's attempts as CSV (one row each, local times); returns the number of rows."""
+        import csv
+
+        from ..report.text import local_time
+
+        es = self.entries(trainee)
+        try:
+            with open(out, "w", newline="", encoding="utf-8") as fh:
+                w = csv.writer(fh)
+                w.writerow(["when (local)", "trainee", "level", "exercise", "points", "of", "percent", "missed"])
+                for e in es:
+                    sc = e.get("score") or {}
+                    missed = "; ".join(i["item"] for i in sc.get("items", []) if not i.get("correct"))
+                    w.writerow([local_time(e.get("when")), e.get("trainee", trainee), e.get("level", ""),
+                                e.get("exercise", ""), sc.get("points", ""), sc.get("of", ""),
+                                f"{float(sc.get('percent', 0)):.0f}", missed])
+        except OSError as exc:
+            raise InputError(f"{out}: cannot write ({exc.strerror or exc})") from None
+        return len(es)
 
     def entries(self, trainee: str) -> list[dict]:
         p = self.file(trainee)

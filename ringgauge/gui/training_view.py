@@ -98,6 +98,9 @@ class TrainingPage(QWidget):
         f.addRow("Power", self.power)
         self.astig = self._spin(0, 20, 2, 0.25, " fringes", "Astigmatism: difference between the principal meridians")
         f.addRow("Astigmatism", self.astig)
+        self.irreg = self._spin(0, 20, 2, 0.25, " fringes", "Irregularity: how far the fringes depart from evenly "
+                                "spaced circles once the best-fit sphere is taken away (astigmatism and zones)")
+        f.addRow("Irregularity", self.irreg)
         self.sign_group = QButtonGroup(self)
         sl = QVBoxLayout()
         self.sign_buttons = {}
@@ -109,7 +112,9 @@ class TrainingPage(QWidget):
             self.sign_buttons[key] = rb
             sl.addWidget(rb)
         f.addRow("Sign", sl)
-        self.radius = self._spin(0, 100000, 4, 0.001, " mm", "Radius of the part from the plate radius and power")
+        self.radius = self._spin(0, 100000, 4, 0.001, " mm", "Radius of the part from the plate radius and power "
+                                 "(work it out: the box starts empty)")
+        self.radius.setSpecialValueText("—")  # at 0: not given
         f.addRow("Part radius", self.radius)
         right.addWidget(g)
         self.b_score = QPushButton("Score my reading")
@@ -135,13 +140,26 @@ class TrainingPage(QWidget):
         self.review_summary.setWordWrap(True)
         rl.addWidget(self.review_summary)
         self.review_table = QTableWidget(0, 5)
-        self.review_table.setHorizontalHeaderLabels(["When", "Level", "Exercise", "Score", "Missed"])
+        self.review_table.setHorizontalHeaderLabels(["When (local time)", "Level", "Exercise", "Score", "Missed"])
+        self.review_table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.review_table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.review_table.setToolTip("Double-click an attempt to open it again on the Practice tab")
         self.review_table.verticalHeader().setVisible(False)
         self.review_table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.review_table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         self.review_table.horizontalHeader().setStretchLastSection(True)
         rl.addWidget(self.review_table, 1)
+        rb = QHBoxLayout()
+        self.b_reopen = QPushButton("Reopen attempt")
+        self.b_export = QPushButton("Export CSV…")
+        self.review_message = QLabel("")
+        self.review_message.setWordWrap(True)
+        rb.addWidget(self.b_reopen)
+        rb.addWidget(self.b_export)
+        rb.addWidget(self.review_message, 1)
+        rl.addLayout(rb)
         self.tabs.addTab(review, "Trainer review")
+        self._review_entries: list[dict] = []
 
         self._flip = QTimer(self)
         self._flip.setInterval(700)
@@ -153,6 +171,9 @@ class TrainingPage(QWidget):
         self.b_score.clicked.connect(self.score_reading)
         self.b_reload.clicked.connect(self.reload_review)
         self.review_who.currentTextChanged.connect(self.show_review)
+        self.b_reopen.clicked.connect(lambda: self.reopen(self.review_table.currentRow()))
+        self.review_table.cellDoubleClicked.connect(lambda r, _c: self.reopen(r))
+        self.b_export.clicked.connect(self.export_dialog)
         self.reload_review()
 
     @staticmethod
@@ -174,7 +195,8 @@ class TrainingPage(QWidget):
         self.count.setValue(-1)
         self.power.setValue(0)
         self.astig.setValue(0)
-        self.radius.setValue(round(self.exercise.plate_radius_mm, 4))
+        self.irreg.setValue(0)
+        self.radius.setValue(0)  # empty: prefilling the plate's radius would give the answer away
         self.sign_group.setExclusive(False)
         for b in self.sign_buttons.values():
             b.setChecked(False)
@@ -215,6 +237,7 @@ class TrainingPage(QWidget):
             astigmatism_fringes=self.astig.value(),
             sign=sign,
             part_radius_mm=self.radius.value() or None,
+            irregularity_fringes=self.irreg.value(),
         )
 
     def score_reading(self) -> Score | None:
@@ -223,6 +246,9 @@ class TrainingPage(QWidget):
         name = self.trainee.text().strip()
         sc = score(self.exercise, self.reading())
         logged = ""
+        if self.revealed:  # a reopened attempt: shown again, not logged twice
+            self._debrief(sc, "A past attempt, opened again from the trainer review (not logged again).")
+            return sc
         try:
             if name:
                 self.log.record(name, self.exercise, self.reading(), sc)
@@ -233,6 +259,11 @@ class TrainingPage(QWidget):
                 logged = "Not logged: enter the trainee's name to keep a record."
         except RinggaugeError as exc:
             logged = html.escape(str(exc))
+        self._debrief(sc, logged)
+        self.reload_review()
+        return sc
+
+    def _debrief(self, sc: Score, logged: str) -> None:
         self.last_score = sc
         self.revealed = True
         self.b_score.setEnabled(False)
@@ -255,8 +286,6 @@ class TrainingPage(QWidget):
             f"counting line (blue).</p><p>{logged}</p>"
         )
         self.show_frame(self.frame)
-        self.reload_review()
-        return sc
 
     # -- review ---------------------------------------------------------------------------------------------------------
     def reload_review(self) -> None:
@@ -274,21 +303,82 @@ class TrainingPage(QWidget):
         if not who:
             self.review_summary.setText("No training logs yet.")
             return
+        from ..report.text import local_time
+
         es = self.log.entries(who)
         s = self.log.summary(who)
-        per = "; ".join(f"{k}: {v['attempts']} attempts, mean {v['mean_percent']:.0f} %" for k, v in s["levels"].items())
-        self.review_summary.setText(f"{s['attempts']} attempts. {per}."
+        per = "; ".join(f"{k}: {_attempts(v['attempts'])}, mean {v['mean_percent']:.0f} %"
+                        for k, v in s["levels"].items())
+        self.review_summary.setText(f"{_attempts(s['attempts'])}. {per}."
                                     + (f" Most often missed: {s['most_missed']}." if s["most_missed"] else ""))
+        self._review_entries = list(reversed(es))
         self.review_table.setRowCount(len(es))
-        for r, e in enumerate(reversed(es)):
+        for r, e in enumerate(self._review_entries):
             missed = ", ".join(i["item"] for i in e["score"]["items"] if not i["correct"]) or "—"
-            vals = [e.get("when", ""), e.get("level", ""), e.get("exercise", ""),
+            vals = [local_time(e.get("when")), e.get("level", ""), e.get("exercise", ""),
                     f"{e['score']['points']} / {e['score']['of']}", missed]
             for c, v in enumerate(vals):
                 it = QTableWidgetItem(str(v))
                 if c == 3:
                     it.setTextAlignment(Qt.AlignmentFlag.AlignCenter)
                 self.review_table.setItem(r, c, it)
+
+
+    # -- reopening and exporting ----------------------------------------------------------------------------------
+    def reopen(self, row: int) -> bool:
+        """Open a logged attempt again: the same exercise (level and seed), the reading as given, the score."""
+        if not 0 <= row < len(self._review_entries):
+            self.review_message.setText("Select an attempt in the list first.")
+            return False
+        e = self._review_entries[row]
+        level, _, seed = str(e.get("exercise", "")).rpartition("-")
+        try:
+            ex = make_exercise(level, int(seed))
+        except (ValueError, RinggaugeError):
+            self.review_message.setText(f"Attempt {e.get('exercise')!r} cannot be opened again (unknown exercise).")
+            return False
+        self.exercise = ex
+        self.brief.setText(ex.brief())
+        rd = e.get("reading") or {}
+        self.count.setValue(-1 if rd.get("fringe_count") is None else int(rd["fringe_count"]))
+        self.power.setValue(float(rd.get("power_fringes") or 0))
+        self.astig.setValue(float(rd.get("astigmatism_fringes") or 0))
+        self.irreg.setValue(float(rd.get("irregularity_fringes") or 0))
+        self.radius.setValue(float(rd.get("part_radius_mm") or 0))
+        self.sign_group.setExclusive(False)
+        for k, b in self.sign_buttons.items():
+            b.setChecked(rd.get("sign") == k)
+        self.sign_group.setExclusive(True)
+        self.revealed = True
+        self.tabs.setCurrentIndex(0)
+        self.score_reading()
+        self.view.fit()
+        return True
+
+    def export_dialog(self) -> None:
+        from PySide6.QtWidgets import QFileDialog
+
+        who = self.review_who.currentText()
+        if not who:
+            self.review_message.setText("No training log to export yet.")
+            return
+        p, _ = QFileDialog.getSaveFileName(self, "Export the training log", f"training-{who}.csv", "CSV (*.csv)")
+        if p:
+            self.export_csv(p)
+
+    def export_csv(self, path: str) -> bool:
+        who = self.review_who.currentText()
+        try:
+            n = self.log.write_csv(who, path)
+        except RinggaugeError as exc:
+            self.review_message.setText(str(exc))
+            return False
+        self.review_message.setText(f"Exported {_attempts(n)} of {who} to {path}")
+        return True
+
+
+def _attempts(n: int) -> str:
+    return f"{n} attempt" + ("" if n == 1 else "s")
 
 
 def _with_count_line(grey, ex: Exercise):

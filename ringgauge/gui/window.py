@@ -61,6 +61,9 @@ SHORTCUTS = (
     ("Ctrl++ / Ctrl+−, mouse wheel", "Zoom in / out"),
     ("Ctrl+1 / Ctrl+2 / Ctrl+3", "Bench, lot review, training"),
     ("Ctrl+S", "Save the result as JSON"),
+    ("Ctrl+K", "Keep the result in the inspection records"),
+    ("Ctrl+P", "Print the result"),
+    ("Ctrl+Shift+P", "Issue a certificate (PDF) of the kept record"),
     ("F1", "Help and bench safety"),
 )
 
@@ -78,7 +81,8 @@ class BenchPage(QWidget):
         scroll.setWidget(self.setup_panel)
         scroll.setWidgetResizable(True)
         scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        scroll.setMinimumWidth(self.setup_panel.sizeHint().width() + 24)
+        # narrow enough for 1024 px screens: long lists move below their labels (the panel's rows wrap)
+        scroll.setMinimumWidth(min(self.setup_panel.minimumSizeHint().width(), 320) + 24)
         self.setup_scroll = scroll
         self.view = ImageView()
         self.plots = PlotPanel()
@@ -116,7 +120,9 @@ class BenchPage(QWidget):
         right = QSplitter(Qt.Orientation.Vertical)
         right.addWidget(self.results)
         right.addWidget(self.plots)
-        right.setSizes([480, 260])
+        right.setSizes([560, 200])  # the numbers first; the plots keep a readable strip
+        right.setStretchFactor(0, 3)
+        right.setStretchFactor(1, 1)
         self.split = QSplitter(Qt.Orientation.Horizontal)
         self.split.addWidget(scroll)
         self.split.addWidget(middle)
@@ -124,7 +130,7 @@ class BenchPage(QWidget):
         self.split.setStretchFactor(0, 0)
         self.split.setStretchFactor(1, 3)
         self.split.setStretchFactor(2, 2)
-        self.split.setSizes([300, 480, 500])
+        self.split.setSizes([scroll.minimumWidth(), 420, 540])
         lay.addWidget(self.split)
 
     def show_notice(self, message: str) -> None:
@@ -242,12 +248,21 @@ class MainWindow(QMainWindow):
         m.addAction(self.a_save)
         self.a_keep = self._act("&Keep in inspection records", self.keep_result, "Ctrl+K",
                                 tip="Store this result in the inspection records")
-        self.a_cert = self._act("Issue &certificate…", self.certificate_dialog, "Ctrl+P",
+        self.a_cert = self._act("Issue &certificate…", self.certificate_dialog, "Ctrl+Shift+P",
                                 tip="A PDF certificate of the kept record")
+        self.a_print = self._act("&Print result…", lambda: self.print_dialog("result"),
+                                 QKeySequence.StandardKey.Print, tip="Print the result on a printer (or to PDF)")
+        self.a_print_cert = self._act("Print certi&ficate…", lambda: self.print_dialog("certificate"),
+                                      tip="Print the certificate issued last")
         self.a_keep.setEnabled(integrations.records_available())
         self.a_cert.setEnabled(False)
+        self.a_print.setEnabled(False)
+        self.a_print_cert.setEnabled(False)
         m.addAction(self.a_keep)
         m.addAction(self.a_cert)
+        m.addSeparator()
+        m.addAction(self.a_print)
+        m.addAction(self.a_print_cert)
         m.addSeparator()
         m.addAction(self._act("&Quit", self.close, QKeySequence.StandardKey.Quit))
 
@@ -298,6 +313,13 @@ class MainWindow(QMainWindow):
         for i, name in enumerate(("Bench", "Lot review", "Training")):
             m.addAction(self._act(name, lambda _=False, i=i: self.tabs.setCurrentIndex(i), f"Ctrl+{i + 1}"))
 
+        m = mb.addMenu("&Tools")
+        self.a_calibrate = self._act("Bench &calibration…", self.calibration_dialog,
+                                     tip="Measure a bench's pixel scale from a calibration target and save it")
+        self.a_plates = self._act("&Test plates…", self.plates_dialog, tip="The register of the shop's test plates")
+        m.addAction(self.a_calibrate)
+        m.addAction(self.a_plates)
+
         m = mb.addMenu("&Help")
         self.a_help = self._act("Help and bench &safety", self.show_help, "F1", short="Help")
         m.addAction(self.a_help)
@@ -314,7 +336,15 @@ class MainWindow(QMainWindow):
             else:
                 tb.addAction(a)
         self.addToolBar(tb)
+        self.bench_toolbar = tb
+        # the bench tools act on the photograph: shown on the bench page only
+        self.tabs.currentChanged.connect(self._page_changed)
+        self._page_changed()
         self._sync_undo()
+
+    def _page_changed(self, *_args) -> None:
+        on_bench = self.tabs.currentWidget() is self.bench
+        self.bench_toolbar.setVisible(on_bench)
 
     # -- opening -------------------------------------------------------------------------------------------
     def open_dialog(self) -> None:
@@ -335,7 +365,9 @@ class MainWindow(QMainWindow):
         try:
             self.session.open_paths(paths)
         except RinggaugeError as exc:
-            self.show_problem(str(exc))
+            # what was on show belongs to another part: it goes, and the banner says why
+            self.session.refuse(f"image not opened: {exc}")
+            self.show_problem(f"{exc} — the previous image and its result were closed")
             return False
         self.bench.show_notice("")
         for p in paths:
@@ -452,6 +484,10 @@ class MainWindow(QMainWindow):
             if s.frames and self.auto_analyse:
                 page.results.show_busy(0.0, "the inputs changed; analysing again")
                 self._debounce.start()
+            elif s.stale:
+                page.results.mark_stale()
+                self.a_print.setEnabled(False)
+                self.set_status("The result on show is out of date: press F5 to analyse again")
         elif what == "busy":
             f, msg = s.progress
             self.progress.setVisible(True)
@@ -461,13 +497,15 @@ class MainWindow(QMainWindow):
         elif what == "result":
             self.progress.setVisible(False)
             self.a_cert.setEnabled(False)
+            self.a_print.setEnabled(s.result is not None)
             self.show_result()
         elif what == "error":
             self.progress.setVisible(False)
+            self.a_print.setEnabled(False)
             page.results.show_error(s.error or "")
             page.plots.clear()
             page.view.set_overlay(display.overlay_from(None, s.overrides.as_extras()))
-            self.set_status(f"Analysis failed: {s.error}")
+            self.set_status(f"Analysis failed: {s.error}" if s.frames else f"No measurement: {s.error}")
 
     def show_result(self) -> None:
         s, page = self.session, self.bench
@@ -621,7 +659,60 @@ class MainWindow(QMainWindow):
             self.set_status(f"Kept as inspection record {value[0]}")
         else:
             self.last_certificate = value[0]
+            self.a_print_cert.setEnabled(True)
             self.set_status(f"Certificate written: {value[0]}")
+
+    # -- printing --------------------------------------------------------------------------------------------------
+    def print_dialog(self, what: str = "result") -> None:
+        from PySide6.QtPrintSupport import QPrintDialog, QPrinter
+
+        printer = QPrinter(QPrinter.PrinterMode.HighResolution)
+        dlg = QPrintDialog(printer, self)
+        dlg.setWindowTitle("Print the result" if what == "result" else "Print the certificate")
+        if dlg.exec() == QDialog.DialogCode.Accepted:
+            self.print_to(printer, what)
+
+    def print_to(self, printer, what: str = "result") -> bool:
+        """Print the result on show (or the certificate issued last) on ``printer`` — a real printer from the
+        print dialog, or a PDF file (``QPrinter.OutputFormat.PdfFormat``)."""
+        from . import printing
+
+        try:
+            if what == "certificate":
+                if not self.last_certificate:
+                    raise RinggaugeError("no certificate issued yet: keep the result (Ctrl+K), then issue one")
+                pages = printing.print_pdf_text(self.last_certificate, printer)
+                self.set_status(f"Printed certificate {os.path.basename(str(self.last_certificate))} "
+                                f"({pages} page(s))")
+                return True
+            s = self.session
+            if s.result is None:
+                raise RinggaugeError("nothing to print yet: analyse an image first")
+            picture = self.bench.view.grab().toImage()
+            printing.print_result(s.result.to_dict(), printer, picture=picture, title=s.title,
+                                  stale=self.bench.results.stale)
+        except RinggaugeError as exc:
+            self.show_problem(str(exc))
+            return False
+        self.set_status(f"Printed the result of {self.session.title}")
+        return True
+
+    # -- registers: bench calibration and test plates -----------------------------------------------------------------
+    def calibration_dialog(self) -> None:
+        from .registers import CalibrationDialog
+
+        dlg = CalibrationDialog(self, operator=self.session.setup.operator)
+        dlg.saved.connect(lambda _name: self.bench.setup_panel.reload_lists())
+        self._calibration = dlg
+        dlg.show()
+
+    def plates_dialog(self) -> None:
+        from .registers import PlatesDialog
+
+        dlg = PlatesDialog(self)
+        dlg.changed.connect(self.bench.setup_panel.reload_lists)
+        self._plates = dlg
+        dlg.show()
 
     def write_json(self, p: str) -> None:
         try:

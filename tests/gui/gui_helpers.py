@@ -87,3 +87,55 @@ def make_window(qtbot, engine, rg_home, setup=None):
 
 def analysed(w):
     return lambda: w.session.result is not None and not w.session.busy
+
+
+def cut_texts(root) -> list[str]:
+    """Texts that do not fit where ``root``'s visible widgets show them: labels and line edits narrower than
+    their text, combo boxes whose current item is elided, table cells narrower than their text (or columns
+    beyond the table's viewport), tab bars that need scroll buttons. Compares ``fontMetrics`` widths with the
+    space the style gives the text."""
+    from PySide6.QtWidgets import (QAbstractSpinBox, QComboBox, QLabel, QLineEdit, QStyle, QStyleOptionComboBox,
+                                   QTableWidget, QTabWidget)
+
+    out = []
+    for w in [root, *root.findChildren(object)]:
+        if not hasattr(w, "isVisibleTo") or not w.isVisibleTo(root.window()) or w.width() <= 1:
+            continue
+        if isinstance(w, QLabel) and w.text() and not w.wordWrap() and "<" not in w.text() and w.pixmap().isNull():
+            need = max(w.fontMetrics().horizontalAdvance(line) for line in w.text().splitlines())
+            if need > w.contentsRect().width() + 1:
+                out.append(f"label {w.text()!r}: {need} px of text in {w.contentsRect().width()} px")
+        elif isinstance(w, QComboBox) and w.currentText():
+            opt = QStyleOptionComboBox()
+            w.initStyleOption(opt)
+            r = w.style().subControlRect(QStyle.ComplexControl.CC_ComboBox, opt,
+                                         QStyle.SubControl.SC_ComboBoxEditField, w)
+            need = w.fontMetrics().horizontalAdvance(w.currentText())
+            if need > r.width() + 1:
+                out.append(f"list {w.currentText()!r}: {need} px of text in {r.width()} px")
+        elif isinstance(w, QLineEdit) and w.text() and not isinstance(w.parent(), QComboBox):
+            need = w.fontMetrics().horizontalAdvance(w.text())
+            avail = w.contentsRect().width() - w.textMargins().left() - w.textMargins().right() - 4
+            if isinstance(w.parent(), QAbstractSpinBox):
+                avail = w.width() - 4
+            if need > avail:
+                out.append(f"field {w.text()!r}: {need} px of text in {avail} px")
+        elif isinstance(w, QTableWidget) and w.rowCount():
+            fm = w.fontMetrics()
+            margin = 2 * (w.style().pixelMetric(QStyle.PixelMetric.PM_FocusFrameHMargin, None, w) + 1)
+            total = sum(w.columnWidth(c) for c in range(w.columnCount()) if not w.isColumnHidden(c))
+            if total > w.viewport().width() + 1:
+                out.append(f"table columns {total} px wide in a {w.viewport().width()} px view")
+            for r in range(w.rowCount()):
+                for c in range(w.columnCount()):
+                    it = w.item(r, c)
+                    if it is not None and it.text():
+                        need = fm.horizontalAdvance(it.text()) + margin
+                        if need > w.columnWidth(c) + 1:
+                            out.append(f"cell {it.text()!r}: {need} px of text in {w.columnWidth(c)} px")
+        elif isinstance(w, QTabWidget):
+            bar = w.tabBar()
+            need = sum(bar.tabSizeHint(i).width() for i in range(bar.count()))
+            if need > bar.width() + 1 and need > w.width():
+                out.append(f"tabs {[bar.tabText(i) for i in range(bar.count())]}: {need} px in {w.width()} px")
+    return out

@@ -77,16 +77,16 @@ def test_lot_sorts_filters_selects_and_exports(lot_page, qtbot, sample_dir, tmp_
 
 def test_lot_refuses_an_incomplete_setup(lot_page, sample_dir):
     page = lot_page
-    page.session.update_setup(tolerance="3/2(0.5)")  # form needs a test diameter
+    page.session.update_setup(tolerance="3/2(")  # a tolerance that cannot be read
     page.open_folder(str(sample_dir), run=False)
-    assert page.run_lot() is False and "test diameter" in page.message.text()
+    assert page.run_lot() is False and "tolerance" in page.message.text()
     assert page.open_folder(str(sample_dir / "nowhere")) is False
 
 
 # -- training ---------------------------------------------------------------------------------------------------------
 def test_shop_formula_worked_example():
-    # DOMAIN.md §3 worked example (derived there): R = 50 mm, D = 25 mm, N = 3, λ = 546.07 nm gives
-    # ΔR ≈ 4NλR²/D² = 26.21 µm (paraxial shop formula). Our radius is exact for the paraxial gap, so it agrees to
+    # Worked by hand from the sagitta s = h²/2R (common practice, no source): R = 50 mm, D = 25 mm, N = 3,
+    # λ = 546.07 nm gives ΔR ≈ 4NλR²/D² = 26.21 µm (paraxial shop formula). Our radius is exact for the paraxial gap, so it agrees to
     # first order: the second-order term is ΔR·(4NλR/D²) ≈ 5e-4 relative.
     r = tr.part_radius_mm(50.0, 3.0, 25.0, 546.07)
     assert (50.0 - r) * 1e3 == pytest.approx(26.21, rel=1e-3)
@@ -110,7 +110,7 @@ def test_exercises_are_repeatable_and_their_truth_is_consistent():
 
 def test_the_frame_pair_shows_the_sign():
     # The gap grows by λ/8 from frame A to frame B, so the fringes move toward the contact point: inward with
-    # contact at the centre, outward with contact at the edge (DOMAIN.md §1). Measured on the images: a dark
+    # contact at the centre, outward with contact at the edge (common practice, no source). Measured on the images: a dark
     # ring's position along the counting line, and the nearest dark ring in frame B.
     import numpy as np
 
@@ -151,10 +151,11 @@ def test_training_page_scores_a_correct_and_a_wrong_reading(app, qtbot, rg_home)
     page.count.setValue(t["fringe_count"])
     page.power.setValue(round(t["power_fringes"], 2))
     page.astig.setValue(round(t["astigmatism_fringes"], 2))
+    page.irreg.setValue(round(t["irregularity_fringes"], 2))
     page.sign_buttons[t["sign"]].setChecked(True)
     page.radius.setValue(round(t["part_radius_mm"], 4))
     sc = page.score_reading()
-    assert sc.points == 5 and "5 of 5 right" in page.debrief.toHtml()
+    assert sc.points == 6 and "6 of 6 right" in page.debrief.toHtml()
     assert page.revealed and not page.b_score.isEnabled()
     # a wrong reading: one fringe too many, the wrong sign, a radius read off the plate without correction
     ex = page.new_exercise(seed=22)
@@ -171,10 +172,11 @@ def test_training_page_scores_a_correct_and_a_wrong_reading(app, qtbot, rg_home)
     assert not items["Part radius"].correct and "fringes of power" in items["Part radius"].comment
     # the log keeps both attempts, and the trainer's review shows them
     log = tr.TraineeLog()
-    assert [e["score"]["points"] for e in log.entries("Trainee Nine")] == [5, sc.points]
+    assert [e["score"]["points"] for e in log.entries("Trainee Nine")] == [6, sc.points]
     page.tabs.setCurrentIndex(1)
     page.reload_review()
-    assert page.review_who.currentText() == "Trainee_Nine" and page.review_table.rowCount() == 2
+    # the name as typed, not the file name's safe spelling of it
+    assert page.review_who.currentText() == "Trainee Nine" and page.review_table.rowCount() == 2
     assert "2 attempts" in page.review_summary.text()
 
 

@@ -35,8 +35,9 @@ def test_setup_to_bench_setup_media_sources_and_messages():
         SetupState(source="custom", custom_wavelength_nm=0.6).to_bench_setup()
     with pytest.raises(InputError, match="over 20 %"):
         SetupState(pixel_size_um=1.0, pixel_size_u_um=0.5).to_bench_setup()
-    with pytest.raises(InputError, match="test diameter"):
-        SetupState(tolerance="3/2(0.5)").to_bench_setup()
+    # no test diameter: the form is evaluated over the clear aperture found, as 'ringgauge analyze' does
+    b = SetupState(tolerance="3/2(0.5)").to_bench_setup()
+    assert b.tolerance == "3/2(0.5)" and b.test_diameter_mm is None
     ov = Overrides(centre_px=(10.0, 20.0))
     assert SetupState(operator=" ab ").to_bench_setup(overrides=ov).extras == {
         "operator": "ab", "centre_px": (10.0, 20.0), "gap_change": "increasing"}
@@ -155,8 +156,8 @@ def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     ov = display.overlay_from(d, {"aperture_px": (10, 20, 30)})
     assert len(ov.rings) == 10 and ov.centre == ((f.shape[1] - 1) / 2, (f.shape[0] - 1) / 2)
     assert ov.aperture == (10.0, 20.0, 30.0, 30.0) and ov.aperture_by_hand
-    # ring radii drawn where r^2 = m lambda R / n puts them (Newton's rings, DOMAIN.md §2)
-    lam_mm = 589.2938e-6
+    # ring radii drawn where r^2 = m lambda R / n puts them (Newton's rings; Hecht, Optics, ch. 9 — from memory)
+    lam_mm = d["setup"]["wavelength_nm"] * 1e-6
     assert ov.rings[3].rx * 16e-3 == pytest.approx(np.sqrt(4 * lam_mm * 1234.5), rel=1e-9)
 
 

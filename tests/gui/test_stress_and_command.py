@@ -34,7 +34,7 @@ STRESS = textwrap.dedent(
 
 
 def test_qt_binding_survives_many_calls_returning_none():
-    # Seen on PySide6 6.12.0 with Python 3.11: "Fatal Python error: none_dealloc", exit 134 (ENVIRONMENT.md).
+    # Seen on PySide6 6.12.0 with Python 3.11: "Fatal Python error: none_dealloc", exit 134.
     # Run in a child process so an abort shows as a failed test with its output, not a silent dead run.
     env = {**os.environ, "QT_QPA_PLATFORM": "offscreen"}
     proc = subprocess.run([sys.executable, "-c", STRESS], capture_output=True, text=True, timeout=240, env=env)
@@ -66,7 +66,7 @@ def test_gui_command_opens_the_window_with_its_arguments(monkeypatch, tmp_path):
 
     got = {}
 
-    def fake_run(paths, *, watch=None, lot=None, training=False):
+    def fake_run(paths, *, watch=None, lot=None, training=False, **_more):  # more options may come (camera)
         got.update(paths=list(paths), watch=watch, lot=lot, training=training)
         return 0
 

@@ -46,8 +46,7 @@ def test_a_setup_change_updates_the_result(app, qtbot, fake_engine, sample_dir, 
     assert Prefs(w.prefs.file).load_setup().source == "mercury-e"
 
 
-def test_a_bad_file_shows_a_message_and_keeps_the_open_image(app, qtbot, fake_engine, sample_dir, rg_home,
-                                                             tmp_path):
+def test_a_bad_file_clears_the_previous_result_and_says_so(app, qtbot, fake_engine, sample_dir, rg_home, tmp_path):
     w = make_window(qtbot, fake_engine, rg_home)
     w.open_paths([str(sample_dir / "lens-A01.png")])
     qtbot.waitUntil(analysed(w), timeout=10000)
@@ -56,9 +55,12 @@ def test_a_bad_file_shows_a_message_and_keeps_the_open_image(app, qtbot, fake_en
     assert w.open_paths([str(bad)]) is False
     assert "cannot decode" in w.status.text()
     assert w.bench.notice_row.isVisible() and "cannot decode" in w.bench.notice.text()
-    # what was open stays open, and its result stays on show
-    assert w.session.frames[0].name == "lens-A01.png"
-    assert w.bench.results.banner.word.text() == "MEASURED"
+    # the previous part's image and verdict must not stay beside a file that failed (a watched camera folder)
+    assert w.session.frames == () and w.session.result is None and w.session.error
+    assert w.bench.results.banner.word.text() == "NO MEASUREMENT"
+    assert "image not opened" in w.bench.results.banner.explain.text()
+    assert w.bench.results.values.rowCount() == 0 and w.bench.title.text() == "No image open"
+    assert w.bench.view.image_size() == (0, 0) and not w.a_print.isEnabled()
     assert w.open_paths([str(tmp_path / "missing.png")]) is False
     assert "no such file" in w.bench.notice.text()
     assert w.open_paths([str(sample_dir / "lens-A02.png")])
@@ -149,7 +151,10 @@ def test_real_form_evaluation_gives_a_verdict_that_follows_the_tolerance(app, qt
     value, U, unit = w.bench.results.value_of("Power (A)")
     assert unit == "fringes" and float(value) == pytest.approx(form["power_fringes"], abs=1e-3)
     assert abs(form["power_fringes"] - 2.0) < 0.1 and abs(form["astigmatism_fringes"] - 0.6) < 0.1
-    assert w.bench.view.layer_item_count("aperture") == 1 and w.bench.view.layer_item_count("meridians") == 4
+    # the aperture, and the test diameter it was evaluated over (circle and its label)
+    assert w.bench.view.layer_item_count("aperture") == 3 and w.bench.view.layer_item_count("meridians") == 4
+    tx, ty, trx, _ = w.bench.view.overlay.test_circle
+    assert trx == pytest.approx(10.0 / 75e-3)  # 20 mm across at 75 µm per pixel
     w.bench.plots.draw_all()
     assert w.bench.plots.form.has_data
     # a looser drawing tolerance: the verdict follows
@@ -165,9 +170,9 @@ def test_an_incomplete_setup_is_a_message_in_the_banner(app, qtbot, fake_engine,
     w.open_paths([str(sample_dir / "lens-A01.png")])
     qtbot.waitUntil(analysed(w), timeout=10000)
     calls = fake_engine.calls
-    w.session.update_setup(tolerance="3/2(0.5)")  # a tolerance without a test diameter
+    w.session.update_setup(tolerance="3/2(")  # a tolerance that cannot be read
     qtbot.waitUntil(lambda: w.session.error is not None, timeout=5000)
-    assert "test diameter" in w.bench.results.banner.explain.text()
+    assert "tolerance" in w.bench.results.banner.explain.text().lower()
     assert not w.session.busy and not w.progress.isVisible() and fake_engine.calls == calls
-    w.session.update_setup(test_diameter_mm=20.0)
+    w.session.update_setup(tolerance="3/2(0.5)")
     qtbot.waitUntil(lambda: fake_engine.calls > calls and analysed(w)(), timeout=10000)
