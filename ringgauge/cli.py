@@ -112,7 +112,12 @@ def _verbosity(args) -> int:
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # a usage error is an exit status like any other; --help / --version still exit
+        if exc.code in (0, None):
+            raise
+        return exc.code if isinstance(exc.code, int) else 2
     if not getattr(args, "func", None):
         parser.print_help(sys.stderr)
         return 2

@@ -76,12 +76,12 @@ def sha256_file(path: str | os.PathLike) -> str:
 # ---------------------------------------------------------------------------------------------------------------
 # pixel budget: checked from the file's header before anything is decoded
 
-#: default largest image ringgauge decodes, in megapixels (a 100 MP 16-bit colour frame already needs ~1.4 GB)
-DEFAULT_MAX_MEGAPIXELS = 100.0
+# default largest image ringgauge decodes, in megapixels (a 100 MP 16-bit colour frame already needs ~1.4 GB),
+# and the largest that can be asked for (OpenCV's decoders stop at 2**30 pixels anyway)
+from .options import DEFAULT_MAX_MEGAPIXELS, MAX_MEGAPIXELS_CEILING  # noqa: E402
+
 #: environment variable carrying the budget to worker processes (set by ``--max-megapixels``)
 MAX_MEGAPIXELS_ENV = "RINGGAUGE_MAX_MEGAPIXELS"
-#: largest budget that can be asked for; OpenCV's decoders stop at 2**30 pixels anyway
-MAX_MEGAPIXELS_CEILING = 1000.0
 #: file bytes allowed per budgeted pixel (16-bit RGBA uncompressed is 8) plus room for metadata
 _BYTES_PER_PIXEL_LIMIT = 8
 _METADATA_SLACK_BYTES = 64 << 20

@@ -21,6 +21,11 @@ from typing import Callable
 
 from .errors import InputError
 
+#: default largest image decoded, megapixels (ringgauge.imaging checks it from the file header before decoding)
+DEFAULT_MAX_MEGAPIXELS = 100.0
+#: largest budget that can be asked for; OpenCV's decoders stop at 2**30 pixels anyway
+MAX_MEGAPIXELS_CEILING = 1000.0
+
 #: longest accepted name (lot, serial, operator, part, customer, order, drawing, surface)
 NAME_MAX = 120
 #: longest accepted free text (notes)
@@ -33,6 +38,9 @@ def _fmt(x: float) -> str:
 
 def _range_text(lo, hi, lo_open, hi_open, unit) -> str:
     u = f" {unit}" if unit else ""
+    if lo == 0 and lo_open:
+        return "a positive number" + (f" up to {_fmt(hi)}{u}" if hi is not None and not hi_open else
+                                      f" below {_fmt(hi)}{u}" if hi is not None else "")
     if lo is not None and hi is not None:
         left = "above" if lo_open else "from"
         right = "below" if hi_open else "to"
@@ -198,8 +206,6 @@ def add_max_megapixels(parser: argparse.ArgumentParser) -> None:
     """``--max-megapixels``: the largest image this command decodes (checked from the file header first).
 
     ``ringgauge.cli.main`` applies it to the process (and, through the environment, to its workers)."""
-    from .imaging import DEFAULT_MAX_MEGAPIXELS, MAX_MEGAPIXELS_CEILING
-
     if "--max-megapixels" in parser._option_string_actions:
         return
     parser.add_argument(

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 
+from ..options import integer, number
 from ..uncertainty import format_value
 
 
@@ -32,11 +33,11 @@ def register(sub) -> None:
 
     q = bs.add_parser("add", help="enter a profile by hand (a pixel scale known from elsewhere)")
     q.add_argument("name", metavar="NAME")
-    q.add_argument("--pixel-size", type=float, required=True, metavar="UM", help="pixel scale along x, µm per pixel")
-    q.add_argument("--pixel-size-u", type=float, default=0.0, metavar="UM",
+    q.add_argument("--pixel-size", type=number("--pixel-size", lo=0, hi=1e4, lo_open=True, unit="µm"), required=True, metavar="UM", help="pixel scale along x, µm per pixel")
+    q.add_argument("--pixel-size-u", type=number("--pixel-size-u", lo=0, hi=1e3, unit="µm"), default=0.0, metavar="UM",
                    help="its standard uncertainty, µm per pixel (k = 1)")
-    q.add_argument("--pixel-size-y", type=float, metavar="UM", help="pixel scale along y when it differs")
-    q.add_argument("--pixel-size-y-u", type=float, metavar="UM", help="its standard uncertainty")
+    q.add_argument("--pixel-size-y", type=number("--pixel-size-y", lo=0, hi=1e4, lo_open=True, unit="µm"), metavar="UM", help="pixel scale along y when it differs")
+    q.add_argument("--pixel-size-y-u", type=number("--pixel-size-y-u", lo=0, hi=1e3, unit="µm"), metavar="UM", help="its standard uncertainty")
     q.add_argument("--calibrated", metavar="YYYY-MM-DD", help="date the scale was determined (default today)")
     # free text is --notes in every command; the older --note still works
     q.add_argument("--notes", dest="note", default="", metavar="TEXT", help="where the value comes from")
@@ -64,12 +65,12 @@ def _meta_options(q) -> None:
     q.add_argument("--lens", metavar="TEXT", help="lens / magnification note")
     q.add_argument("--operator", metavar="NAME", default="", help="who entered or measured it")
     q.add_argument("--source", metavar="KEY", help="default light source (see 'ringgauge sources')")
-    q.add_argument("--wavelength", type=float, metavar="NM", help="or a custom default wavelength, nm")
-    q.add_argument("--medium-index", type=float, metavar="N", help="default gap medium index")
+    q.add_argument("--wavelength", type=number("--wavelength", lo=200, hi=2000, unit="nm"), metavar="NM", help="or a custom default wavelength, nm")
+    q.add_argument("--medium-index", type=number("--medium-index", lo=1, hi=2.5), metavar="N", help="default gap medium index")
     # one unit for every calibration interval (test plates too): months; the old --recal-days still works
-    q.add_argument("--recal-months", type=int, metavar="MONTHS",
+    q.add_argument("--recal-months", type=integer("--recal-months", lo=1, hi=120), metavar="MONTHS",
                    help="re-calibration interval, months (default about 6: 180 days)")
-    q.add_argument("--recal-days", type=int, help=argparse.SUPPRESS)
+    q.add_argument("--recal-days", type=integer("--recal-days", lo=1, hi=3660), help=argparse.SUPPRESS)
 
 
 def _scale_text(prof) -> str:

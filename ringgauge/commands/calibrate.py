@@ -8,6 +8,7 @@ import sys
 import textwrap
 
 from ..errors import InputError
+from ..options import integer, number
 from ..uncertainty import format_value
 
 TARGET_HELP = (
@@ -38,14 +39,17 @@ def register(sub) -> None:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("images", nargs="+", metavar="IMAGE", help="calibration image (two for a line scale turned 90°)")
+    from ..options import add_max_megapixels
+
+    add_max_megapixels(p)
     what = p.add_mutually_exclusive_group(required=True)
-    what.add_argument("--grating-pitch", type=float, metavar="UM",
+    what.add_argument("--grating-pitch", type=number("--grating-pitch", lo=0, hi=1e5, lo_open=True, unit="µm"), metavar="UM",
                       help="certified pitch of the line scale, grating or grid, micrometres (e.g. 10)")
-    what.add_argument("--disc-diameter", type=float, metavar="MM",
+    what.add_argument("--disc-diameter", type=number("--disc-diameter", lo=0, hi=1e3, lo_open=True, unit="mm"), metavar="MM",
                       help="certified diameter of the reference disc or ring gauge, millimetres (e.g. 12.000)")
-    p.add_argument("--pitch-u", type=float, metavar="UM",
+    p.add_argument("--pitch-u", type=number("--pitch-u", lo=0, hi=1e4, unit="µm"), metavar="UM",
                    help="standard uncertainty of the pitch, µm (from the certificate; default ±0.1 %% of the pitch)")
-    p.add_argument("--diameter-u", type=float, metavar="MM",
+    p.add_argument("--diameter-u", type=number("--diameter-u", lo=0, hi=100, unit="mm"), metavar="MM",
                    help="standard uncertainty of the diameter, mm (from the certificate; default ±0.002 mm)")
     p.add_argument("--target", choices=("auto", "lines", "grid", "dots"), default="auto", help=TARGET_HELP)
     p.add_argument("--target-id", metavar="TEXT", help="identity of the target (serial or certificate number)")
@@ -54,11 +58,11 @@ def register(sub) -> None:
     p.add_argument("--camera", metavar="TEXT", help="camera description kept with the profile")
     p.add_argument("--lens", metavar="TEXT", help="lens / magnification note kept with the profile")
     p.add_argument("--source", metavar="KEY", help="default light source of this bench (see 'ringgauge sources')")
-    p.add_argument("--wavelength", type=float, metavar="NM", help="or a custom default wavelength, nm")
-    p.add_argument("--medium-index", type=float, metavar="N", help="default gap medium index of this bench")
-    p.add_argument("--recal-months", type=int, metavar="MONTHS",
+    p.add_argument("--wavelength", type=number("--wavelength", lo=200, hi=2000, unit="nm"), metavar="NM", help="or a custom default wavelength, nm")
+    p.add_argument("--medium-index", type=number("--medium-index", lo=1, hi=2.5), metavar="N", help="default gap medium index of this bench")
+    p.add_argument("--recal-months", type=integer("--recal-months", lo=1, hi=120), metavar="MONTHS",
                    help="re-calibration interval of the profile, months (default about 6: 180 days)")
-    p.add_argument("--recal-days", type=int, help=argparse.SUPPRESS)  # older name, in days; kept working
+    p.add_argument("--recal-days", type=integer("--recal-days", lo=1, hi=3660), help=argparse.SUPPRESS)  # older name, in days; kept working
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.set_defaults(func=run)
 
@@ -90,7 +94,9 @@ def run(args) -> int:
     if args.json:
         doc = {"calibration": cal.to_dict(), "bench": None if saved is None else saved.to_dict(),
                "saved_to": None if saved is None else str(prof.store_path())}
-        print(json.dumps(doc, indent=2, ensure_ascii=False))
+        from ..settings import dumps_json
+
+        print(dumps_json(doc, what="the calibration result"))
         return 0
     print(format_calibration(cal))
     if saved is not None:

@@ -6,6 +6,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError, RinggaugeError
+from ..options import number
 from ._records_common import add_db_argument, db_target, open_from_args
 
 USAGE = """ringgauge certificate RECORD_ID [--out FILE.pdf]      certificate of one inspection record
@@ -35,7 +36,8 @@ def register(sub) -> None:
     p.add_argument("--approver", help="name printed in the approval field (default: from shop.json)")
     p.add_argument("--new-issue", action="store_true", help="issue a new certificate number instead of reprinting")
     p.add_argument("--tolerance", help="lot report: ISO 10110-5 tolerance for capability (default: the records')")
-    p.add_argument("--radius-limits", nargs=2, type=float, metavar=("LSL_MM", "USL_MM"),
+    p.add_argument("--radius-limits", nargs=2, type=number("--radius-limits", lo=-1e7, hi=1e7, unit="mm"),
+                   metavar=("LSL_MM", "USL_MM"),
                    help="lot report: radius specification limits in mm, for Cp/Cpk of the radius")
     p.add_argument("--chart", metavar="FILE.png", help="lot report: also write the control chart as PNG")
     p.add_argument("--shop", metavar="FILE.json", help="shop details file (default: shop.json in the ringgauge folder)")

@@ -22,10 +22,25 @@ def register(subparsers) -> None:
     p.add_argument("--camera", metavar="SOURCE",
                    help="start on the Live page with this camera: an index (0), a stream address, a video file or a "
                    "folder of numbered frames")
+    p.add_argument("--db", metavar="PATH|URL", default=None,
+                   help="records store the window keeps results in: a SQLite file or a postgresql:// server "
+                        "(default: $RINGGAUGE_DB, else records.sqlite in the ringgauge folder)")
+    from ..options import add_max_megapixels
+
+    add_max_megapixels(p)
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
+    db = getattr(args, "db", None)
+    if db or os.environ.get("RINGGAUGE_DB"):
+        from ..records.address import parse_address
+
+        # checked now (one line, password never shown) rather than at the first Ctrl+K; the window opens its
+        # store with open_store(None), which follows RINGGAUGE_DB — the same store the command line uses
+        parse_address(db if db else os.environ["RINGGAUGE_DB"], option="--db" if db else "RINGGAUGE_DB")
+        if db:
+            os.environ["RINGGAUGE_DB"] = db
     for p in args.paths:
         if not os.path.exists(p):
             raise InputError(f"{p}: no such file or folder")

@@ -6,6 +6,7 @@ import argparse
 import datetime as _dt
 
 from ..errors import InputError
+from ..options import integer, number
 from ._help import ExampleFormatter
 
 
@@ -30,16 +31,16 @@ def register(sub) -> None:
                        epilog="Example: ringgauge plates add TP-0412 --radius 51.68 --radius-u 0.002 --kind "
                        "concave --calibrated 2026-03-14 --diameter 40")
     a.add_argument("id", help="identifier engraved on the plate, e.g. TP-0412")
-    a.add_argument("--radius", type=_float, required=True, metavar="MM", help="certified radius, mm")
-    a.add_argument("--radius-u", type=_float, required=True, metavar="MM",
+    a.add_argument("--radius", type=number("--radius", lo=-1e7, hi=1e7, unit="mm"), required=True, metavar="MM", help="certified radius, mm")
+    a.add_argument("--radius-u", type=number("--radius-u", lo=0, hi=1e3, unit="mm"), required=True, metavar="MM",
                    help="certified standard uncertainty of the radius (k = 1), mm")
     a.add_argument("--kind", choices=("convex", "concave", "flat"), required=True,
                    help="the plate's working surface (a convex plate tests concave parts)")
     a.add_argument("--calibrated", required=True, metavar="YYYY-MM-DD", help="date of the radius certificate")
-    a.add_argument("--recal-months", dest="interval", type=int, default=24, metavar="MONTHS",
+    a.add_argument("--recal-months", dest="interval", type=integer("--recal-months", lo=1, hi=240), default=24, metavar="MONTHS",
                    help="re-calibration interval, months (default 24), as for bench profiles")
-    a.add_argument("--interval", dest="interval", type=int, help=argparse.SUPPRESS)  # older name, kept working
-    a.add_argument("--diameter", type=_float, metavar="MM", help="plate diameter, mm")
+    a.add_argument("--interval", dest="interval", type=integer("--interval", lo=1, hi=240), help=argparse.SUPPRESS)  # older name, kept working
+    a.add_argument("--diameter", type=number("--diameter", lo=0, hi=1e4, lo_open=True, unit="mm"), metavar="MM", help="plate diameter, mm")
     a.add_argument("--notes", dest="note", default="", metavar="TEXT",
                    help="free text (certificate number, storage place)")
     a.add_argument("--note", dest="note", help=argparse.SUPPRESS)  # older spelling, kept working

@@ -9,6 +9,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from ..errors import InputError
+from ..options import integer, number
 from ._help import ExampleFormatter
 from ..sources import SOURCES, get_source
 
@@ -29,32 +30,32 @@ def register(sub) -> None:
     p.add_argument("--kind", choices=("rings", "test-plate"), default="rings",
                    help="rings: lens on an optical flat (default); test-plate: a few fringes over the part")
     p.add_argument("--source", default="sodium-d", help=f"lamp: {', '.join(SOURCES)}")
-    p.add_argument("--pixel-size", type=float, default=8.0, metavar="UM", help="object-space pixel size, µm (default 8)")
-    p.add_argument("--width", type=int, default=1280, help="image width, px (default 1280)")
-    p.add_argument("--height", type=int, default=1024, help="image height, px (default 1024)")
+    p.add_argument("--pixel-size", type=number("--pixel-size", lo=0, hi=1e4, lo_open=True, unit="µm"), default=8.0, metavar="UM", help="object-space pixel size, µm (default 8)")
+    p.add_argument("--width", type=integer("--width", lo=32, hi=20000), default=1280, help="image width, px (default 1280)")
+    p.add_argument("--height", type=integer("--height", lo=32, hi=20000), default=1024, help="image height, px (default 1024)")
     p.add_argument("--bits", type=int, choices=(8, 12, 16), default=8, help="bit depth (12-bit data goes in a 16-bit file)")
-    p.add_argument("--blur", type=float, default=0.7, metavar="PX", help="Gaussian blur sigma, px (default 0.7)")
-    p.add_argument("--full-well", type=float, default=12000, metavar="E", help="electrons at full scale (shot noise)")
+    p.add_argument("--blur", type=number("--blur", lo=0, hi=50), default=0.7, metavar="PX", help="Gaussian blur sigma, px (default 0.7)")
+    p.add_argument("--full-well", type=number("--full-well", lo=0, hi=1e7, lo_open=True), default=12000, metavar="E", help="electrons at full scale (shot noise)")
     p.add_argument("--no-noise", action="store_true", help="no shot or read noise")
-    p.add_argument("--dust", type=int, default=0, metavar="N", help="number of dust specks")
-    p.add_argument("--falloff", type=float, default=0.2, help="illumination fall-off toward the corners (0-0.9)")
-    p.add_argument("--stray", type=float, default=0.05, help="stray light, fraction of the peak (default 0.05)")
-    p.add_argument("--medium-index", type=float, default=1.0, help="gap medium index (default 1.0, air)")
-    p.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    p.add_argument("--dust", type=integer("--dust", lo=0, hi=10000), default=0, metavar="N", help="number of dust specks")
+    p.add_argument("--falloff", type=number("--falloff", lo=0, hi=0.9), default=0.2, help="illumination fall-off toward the corners (0-0.9)")
+    p.add_argument("--stray", type=number("--stray", lo=0, hi=1), default=0.05, help="stray light, fraction of the peak (default 0.05)")
+    p.add_argument("--medium-index", type=number("--medium-index", lo=1, hi=2.5), default=1.0, help="gap medium index (default 1.0, air)")
+    p.add_argument("--seed", type=integer("--seed", lo=0, hi=2**32 - 1), default=0, help="random seed (default 0)")
     g = p.add_argument_group("lens on a flat (--kind rings)")
-    g.add_argument("--radius", type=float, default=1000.0, metavar="MM", help="radius of curvature, mm (default 1000)")
-    g.add_argument("--centre", type=float, nargs=2, metavar=("X", "Y"), help="contact point, px (default: middle)")
-    g.add_argument("--contact-offset", type=float, default=0.0, metavar="NM", help="extra gap at the contact, nm")
+    g.add_argument("--radius", type=number("--radius", lo=-1e7, hi=1e7, unit="mm"), default=1000.0, metavar="MM", help="radius of curvature, mm (default 1000)")
+    g.add_argument("--centre", type=number("--centre", lo=-1e6, hi=1e6), nargs=2, metavar=("X", "Y"), help="contact point, px (default: middle)")
+    g.add_argument("--contact-offset", type=number("--contact-offset", lo=-1e5, hi=1e5, unit="nm"), default=0.0, metavar="NM", help="extra gap at the contact, nm")
     g = p.add_argument_group("against a test plate (--kind test-plate)")
-    g.add_argument("--power", type=float, default=2.0, help="power, fringes (sign: + gap grows outward)")
-    g.add_argument("--astigmatism", type=float, default=0.0, help="astigmatism, fringes")
-    g.add_argument("--astigmatism-axis", type=float, default=0.0, metavar="DEG", help="axis, degrees")
-    g.add_argument("--zonal", type=float, default=0.0, help="rotationally symmetric zone, fringes PV")
-    g.add_argument("--tilt", type=float, nargs=2, default=(0.0, 0.0), metavar=("X", "Y"), help="tilt, fringes")
-    g.add_argument("--piston", type=float, default=0.3, help="gap at the centre, fringes")
-    g.add_argument("--aperture", type=float, default=20.0, metavar="MM", help="part diameter, mm (default 20)")
-    g.add_argument("--frames", type=int, default=1, help="frames with the gap stepped between them (sign)")
-    g.add_argument("--gap-step", type=float, default=0.125, metavar="FRINGES", help="gap step between frames")
+    g.add_argument("--power", type=number("--power", lo=-1e3, hi=1e3), default=2.0, help="power, fringes (sign: + gap grows outward)")
+    g.add_argument("--astigmatism", type=number("--astigmatism", lo=-1e3, hi=1e3), default=0.0, help="astigmatism, fringes")
+    g.add_argument("--astigmatism-axis", type=number("--astigmatism-axis", lo=-360, hi=360), default=0.0, metavar="DEG", help="axis, degrees")
+    g.add_argument("--zonal", type=number("--zonal", lo=-1e3, hi=1e3), default=0.0, help="rotationally symmetric zone, fringes PV")
+    g.add_argument("--tilt", type=number("--tilt", lo=-1e3, hi=1e3), nargs=2, default=(0.0, 0.0), metavar=("X", "Y"), help="tilt, fringes")
+    g.add_argument("--piston", type=number("--piston", lo=-1e3, hi=1e3), default=0.3, help="gap at the centre, fringes")
+    g.add_argument("--aperture", type=number("--aperture", lo=0, hi=1e3, lo_open=True, unit="mm"), default=20.0, metavar="MM", help="part diameter, mm (default 20)")
+    g.add_argument("--frames", type=integer("--frames", lo=1, hi=64), default=1, help="frames with the gap stepped between them (sign)")
+    g.add_argument("--gap-step", type=number("--gap-step", lo=-10, hi=10), default=0.125, metavar="FRINGES", help="gap step between frames")
     g = p.add_argument_group(
         "a bench sequence (--sequence): the part settling, resting, pressed gently and released",
         "Writes a video (--out NAME.avi, MJPG) or numbered frames (--out FOLDER) with NAME.truth.json / "
@@ -65,14 +66,14 @@ def register(sub) -> None:
     g.add_argument("--contact", choices=("centre", "edge"), default="centre",
                    help="centre contact (the gap grows outward, power +) or edge contact (gap widest in the "
                    "middle, power −)")
-    g.add_argument("--fps", type=float, default=25.0, help="frame rate of the video, frames/s (default 25)")
-    g.add_argument("--settle-frames", type=int, default=40, metavar="N", help="frames of settling (default 40)")
-    g.add_argument("--rest-frames", type=int, default=15, metavar="N", help="still frames after settling (15)")
-    g.add_argument("--press-frames", type=int, default=16, metavar="N", help="frames of the press and release (16)")
-    g.add_argument("--after-frames", type=int, default=12, metavar="N", help="still frames at the end (12)")
-    g.add_argument("--start-gap", type=float, default=1200.0, metavar="NM", help="uniform gap at the start, nm")
-    g.add_argument("--rest-gap", type=float, default=300.0, metavar="NM", help="uniform gap once settled, nm")
-    g.add_argument("--press-depth", type=float, default=250.0, metavar="NM", help="gap closed by the press, nm")
+    g.add_argument("--fps", type=number("--fps", lo=0, hi=1000, lo_open=True), default=25.0, help="frame rate of the video, frames/s (default 25)")
+    g.add_argument("--settle-frames", type=integer("--settle-frames", lo=0, hi=10000), default=40, metavar="N", help="frames of settling (default 40)")
+    g.add_argument("--rest-frames", type=integer("--rest-frames", lo=0, hi=10000), default=15, metavar="N", help="still frames after settling (15)")
+    g.add_argument("--press-frames", type=integer("--press-frames", lo=0, hi=10000), default=16, metavar="N", help="frames of the press and release (16)")
+    g.add_argument("--after-frames", type=integer("--after-frames", lo=0, hi=10000), default=12, metavar="N", help="still frames at the end (12)")
+    g.add_argument("--start-gap", type=number("--start-gap", lo=0, hi=1e5, unit="nm"), default=1200.0, metavar="NM", help="uniform gap at the start, nm")
+    g.add_argument("--rest-gap", type=number("--rest-gap", lo=0, hi=1e5, unit="nm"), default=300.0, metavar="NM", help="uniform gap once settled, nm")
+    g.add_argument("--press-depth", type=number("--press-depth", lo=0, hi=1e5, unit="nm"), default=250.0, metavar="NM", help="gap closed by the press, nm")
     p.set_defaults(func=run)
 
 
