@@ -201,7 +201,8 @@ def test_lot_report(tmp_path, make_result):
               f"End of lot report {doc.number}"):
         assert s in text, s
     cap = doc.content["capability"][0]
-    assert cap["quantity"] == "power" and cap["limits"] == "-2 to 2 fringes"
+    # the limits carry the lot's one number of digits for power (U = 0.10 fringes: two decimals)
+    assert cap["quantity"] == "power" and cap["limits"] == "-2.00 to 2.00 fringes"
     assert chart.read_bytes()[:4] == b"\x89PNG"
     assert verify_pdf(path, store).ok
     with pytest.raises(InputError, match="has no records"):
