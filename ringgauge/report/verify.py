@@ -77,67 +77,74 @@ def printed_values(content: dict) -> list[str]:
 
 
 def expected_rows(content: dict) -> list[tuple[str, list[str]]]:
-    """Every table row the document prints, as (what, cells), in the words of the content."""
+    """The table rows the document prints, as (what, cells): every cell must be printed as a whole cell, and the
+    cells of one row on one line. Only what the content says is checked (values, not headings), so a change of
+    headings or column order in the layout does not break the check."""
     c = content
     rows: list[tuple[str, list[str]]] = []
 
-    def kv(pairs):
-        for k, v in pairs:
-            rows.append((str(k), [str(k), str(v)]))
+    def one(name, value):
+        if value not in (None, ""):
+            rows.append((name, [str(value)]))
 
-    def grid(name, header, body):
-        rows.append((f"{name} heading", [str(h) for h in header]))
-        for r in body:
-            rows.append((f"{name} row '{r[0]}'", [str(x) for x in r]))
+    def many(name, cells, ordered=True):
+        cells = [str(x) for x in cells if x not in (None, "")]
+        if cells:
+            rows.append((name, cells if ordered else [UNORDERED, *cells]))
 
     if c.get("kind") == "certificate":
-        kv([("Customer", c["customer"]["customer"]), ("Order", c["customer"]["order"]),
-            ("Part / drawing", f"{c['item']['part']} / {c['item']['drawing']}"), ("Surface", c["item"]["surface"]),
-            ("Serial", c["item"]["serial"]), ("Lot", c["item"]["lot"]),
-            ("Measured (UTC)", c["dates"]["measured (UTC)"]), ("Inspection record", c["dates"]["record"])])
+        one("customer", c["customer"]["customer"])
+        one("order", c["customer"]["order"])
+        one("part / drawing", f"{c['item']['part']} / {c['item']['drawing']}")
+        for k in ("surface", "serial", "lot"):
+            one(k, c["item"][k])
+        one("measured date", c["dates"]["measured (UTC)"])
+        one("record", c["dates"]["record"])
         spec = c["specification"]
-        spec = [(k[0].upper() + k[1:], v) for k, v in (spec.items() if isinstance(spec, dict) else spec)]
-        kv(spec)
-        grid("results", ["Quantity", "Value", "Expanded uncertainty U", "k"],
-             [[r["quantity"], r["value"], r["U"], r["k"]] for r in c["results"]])
+        for k, v in (spec.items() if isinstance(spec, dict) else spec):
+            one(str(k).lower(), v)
+        for r in c["results"]:
+            many(f"results row '{r['quantity']}'", [r["quantity"], r["value"], r["U"], r["k"]])
         terms = c["decision"].get("terms")
         if isinstance(terms, list) and terms:
             keys = list(dict.fromkeys(k for t in terms for k in t))
             terms = {"header": keys, "rows": [[t.get(k, "") for k in keys] for t in terms]}
-        if isinstance(terms, dict) and terms.get("rows"):
-            grid("verdict terms", terms["header"], terms["rows"])
+        if isinstance(terms, dict):
+            for r in terms.get("rows") or []:
+                many(f"verdict terms row '{r[0]}'", r)
         budgets = c.get("budgets") if "budgets" in c else ([c["budget"]] if c.get("budget") else [])
         for b in budgets:
-            grid(f"budget {b.get('output', '')}",
-                 ["Input quantity", "Estimate", "Std. unc. u_i", "Distribution", "Divisor", "Sensitivity c_i",
-                  "Contribution", "Share"],
-                 [[r["quantity"], r["estimate"], r["u"], r["distribution"], r["divisor"], r["sensitivity"],
-                   r["contribution"], r["share"]] for r in b["rows"]])
-        if c.get("form_budget"):
-            grid("form contributions", ["Term", "Source", "u / fringes", "u / nm"], c["form_budget"])
+            for r in b["rows"]:
+                many(f"budget {b.get('output', '')} row '{r['quantity']}'",
+                     [r["quantity"], r["estimate"], r["u"], r["distribution"], r["divisor"], r["sensitivity"],
+                      r["contribution"], r["share"]])
+        for r in c.get("form_budget") or []:
+            many(f"form contributions row '{r[0]}'", r)
         tr = c["traceability"]
         plate = tr["test plate"]
         if isinstance(plate, dict):
             from .pdf import _plate_text
 
             plate = _plate_text(plate)
-        kv([("Test plate", plate), ("Wavelength source", tr["wavelength source"]), ("Pixel scale", tr["pixel scale"]),
-            ("Pixel-scale calibration", tr["pixel-scale calibration"]),
-            ("Temperature", c["environment"]["temperature"]),
-            ("Image file", f"{c['image']['name']}, {c['image']['size']}")])
+        for k, v in (("test plate", plate), ("wavelength source", tr["wavelength source"]),
+                     ("pixel scale", tr["pixel scale"]), ("pixel-scale calibration", tr["pixel-scale calibration"]),
+                     ("temperature", c["environment"]["temperature"]),
+                     ("image file", f"{c['image']['name']}, {c['image']['size']}")):
+            one(k, v)
     else:
-        kv([("Lot", c["lot"]), ("Part", c["part"]), ("Customer", c["customer"]), ("Tolerance", c["tolerance"]),
-            ("Inspected", c["period"]), ("Operators", c["operators"]), ("Records", c["n_records"])])
-        grid("summary", ["Verdict", "Parts"], [[k, v] for k, v in c["counts"]])
-        for q, key in (("Radius of curvature", "radius"), ("Power", "power")):
-            s = c[key]
-            rows.append((f"statistics row '{q}'", [q, s["n"], s["mean"], s["sd"], s["range"]]))
-        if c.get("capability"):
-            grid("capability", ["Quantity", "Specification", "n", "Mean", "s", "Cp", "Cpk"],
-                 [[x["quantity"], x["limits"], x["n"], x["mean"], x["s"], x["Cp"], x["Cpk"]] for x in c["capability"]])
+        for k in ("lot", "part", "customer", "tolerance", "period", "operators", "n_records"):
+            one(k, c.get(k))
+        for k, v in c.get("counts") or []:
+            many(f"count of '{k}'", [k, v], ordered=False)
+        for q, key in (("radius", "radius"), ("power", "power")):
+            s = c.get(key) or {}
+            many(f"{q} statistics", [s.get("n"), s.get("mean"), s.get("sd"), s.get("range")], ordered=False)
+        for x in c.get("capability") or []:
+            many(f"capability row '{x['quantity']}'", [x["limits"], x["mean"], x["s"], x["Cp"], x["Cpk"]],
+                 ordered=False)
         for r in c.get("rows") or []:
-            rows.append((f"parts row for record {r['record']}",
-                         [r["record"], r["serial"], r["verdict"], r["radius"], r["power"], r["note"]]))
+            many(f"parts row for record {r['record']}",
+                 [r["record"], r["serial"], r["verdict"], r["radius"], r["power"], r["note"]], ordered=False)
     return rows
 
 
@@ -174,25 +181,34 @@ def _cell_text(runs, x: float, y: float) -> str:
     return " ".join(out)
 
 
+#: first cell of a row whose cells may come in any order (the lot report's columns are the layout's choice)
+UNORDERED = "\0any order"
+
+
 def find_row(pages_runs, cells: list[str]) -> bool:
-    """True when some line of some page prints ``cells`` as separate cells, left to right, each exactly."""
-    want = [_norm(c) for c in cells]
+    """True when some line of some page prints every one of ``cells`` as a whole cell of its own (each cell's
+    text, wrapped lines included, exactly the expected text), all starting on that line, left to right in the
+    given order (unless the row starts with :data:`UNORDERED`)."""
+    ordered = not (cells and cells[0] == UNORDERED)
+    want = [_norm(c) for c in (cells if ordered else cells[1:]) if _norm(c)]
+    if not want:
+        return True
     for runs in pages_runs:
         for x0, y0, t0 in runs:
-            if not want[0] or not want[0].startswith(t0):
+            if not want[0].startswith(t0) or _cell_text(runs, x0, y0) != want[0]:
                 continue
-            line = sorted((r for r in runs if abs(r[1] - y0) < 0.6 and r[0] >= x0 - 0.5), key=lambda r: r[0])
-            i = 0
+            line = [r for r in runs if abs(r[1] - y0) < 0.6]
+            used = {(x0, y0)}
             ok = True
-            for w in want:
-                if not w:
-                    continue
-                while i < len(line) and not w.startswith(line[i][2]):
-                    i += 1
-                if i >= len(line) or _cell_text(runs, line[i][0], line[i][1]) != w:
+            last_x = x0
+            for w in want[1:]:
+                hit = next((r for r in sorted(line) if (r[0], r[1]) not in used and w.startswith(r[2])
+                            and (not ordered or r[0] > last_x) and _cell_text(runs, r[0], r[1]) == w), None)
+                if hit is None:
                     ok = False
                     break
-                i += 1
+                used.add((hit[0], hit[1]))
+                last_x = hit[0]
             if ok:
                 return True
     return False
@@ -231,12 +247,20 @@ def _signature_checks(v: Verification, path: Path) -> None:
         trusted = trusted_certificates()
         roots = [asn1_x509.Certificate.load(c.public_bytes(Encoding.DER)) for c in trusted]
         fps = {fingerprint(c.public_bytes(Encoding.DER)) for c in trusted}
+        import logging
+
+        quiet = logging.getLogger("pyhanko")
+        level = quiet.level
+        quiet.setLevel(logging.CRITICAL)  # its own log of a tampered file's details would flood the terminal
         try:
             vc = ValidationContext(trust_roots=roots, allow_fetching=False)
-            st = validate_pdf_signature(sig, vc)
+            # no diff analysis: a ringgauge document must be covered whole, so any later revision already fails
+            st = validate_pdf_signature(sig, vc, skip_diff=True)
         except Exception as exc:  # noqa: BLE001
             v.check(False, f"signature: cannot be validated ({type(exc).__name__}: {str(exc)[:120]})")
             return
+        finally:
+            quiet.setLevel(level)
         cert = sig.signer_cert
         signer_fp = fingerprint(cert.dump())
         v.signer = f"{cert.subject.human_friendly} (SHA-256 {signer_fp})"
@@ -405,6 +429,12 @@ def verify_pdf(path: str | os.PathLike, store=None) -> Verification:
             want = f"Verdict: {content['decision']['verdict'].upper()}"
             if verdict_lines != [want]:
                 missing.append(f"verdict line (printed {len(verdict_lines)} time(s): {', '.join(verdict_lines[:3])})")
+        for who in ("operator", "approver") if content.get("kind") == "certificate" else ("approver",):
+            name = _norm(content.get(who) or "")
+            # the sign-off names are lines of their own, under "Measured by" / "Approved by"
+            if name and not any(name.startswith(t) and _cell_text(rs, x, y) == name
+                                for rs in runs for x, y, t in rs):
+                missing.append(f"{who} name {name}")
         lost = [s for s in printed_values(content) if _norm(s) not in " ".join(pages)]
         missing += [f"value {s}" for s in lost]
     except (KeyError, TypeError, AttributeError, IndexError) as exc:
