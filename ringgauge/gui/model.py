@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import asdict, dataclass, fields, replace
+from dataclasses import asdict, dataclass, fields, is_dataclass, replace
 from typing import Any, Callable, Sequence
 
 from ..bench_setup import BenchSetup
@@ -66,6 +66,10 @@ def _as_float(what: str, value, *, allow_none: bool = False) -> float | None:
     return v
 
 
+#: set-up fields that say who and what the part is, not how it is measured
+DETAIL_FIELDS = frozenset({"serial", "part", "drawing", "surface", "customer", "order", "operator"})
+
+
 @dataclass
 class SetupState:
     """What the set-up panel edits, as plain values (persisted between runs as a dict)."""
@@ -103,7 +107,7 @@ class SetupState:
     def inspection_details(self) -> dict:
         """The inspection details the operator typed, as record fields (``order`` -> ``order_ref``)."""
         pairs = {"serial": self.serial, "part": self.part, "drawing": self.drawing, "surface": self.surface,
-                 "customer": self.customer, "order_ref": self.order, "operator": self.operator}
+                 "customer": self.customer, "order_ref": self.order}
         return {k: v.strip() for k, v in pairs.items() if isinstance(v, str) and v.strip()}
 
     @classmethod
@@ -332,12 +336,32 @@ class BenchSession:
         self.changed.emit(what)
 
     def update_setup(self, **changes) -> None:
-        """Change set-up values (names of :class:`SetupState` fields). Unknown names raise ``TypeError``."""
+        """Change set-up values (names of :class:`SetupState` fields). Unknown names raise ``TypeError``.
+
+        Inspection details alone (serial, part, ..., operator) change no measurement: the result on show keeps
+        its values, takes the new details, and ``changed`` emits ``"details"`` instead of ``"setup"``."""
         new = replace(self.setup, **changes)
         if new == self.setup:
             return
+        changed = {k for k in changes if getattr(new, k) != getattr(self.setup, k)}
         self.setup = new
+        if changed <= DETAIL_FIELDS:
+            self._details_to_result()
+            self.changed.emit("details")
+            return
         self._bump("setup")
+
+    def _details_to_result(self) -> None:
+        res = self.result
+        setup = getattr(res, "setup", None)
+        if res is None or not hasattr(setup, "extras") or not is_dataclass(res):
+            return
+        extras = {k: v for k, v in setup.extras.items() if k not in ("inspection", "operator")}
+        if self.setup.operator.strip():
+            extras["operator"] = self.setup.operator.strip()
+        if self.setup.inspection_details():
+            extras["inspection"] = self.setup.inspection_details()
+        self.result = replace(res, setup=replace(setup, extras=extras))
 
     def replace_setup(self, state: SetupState) -> None:
         if state != self.setup:
@@ -363,6 +387,8 @@ class BenchSession:
 
     def set_frames(self, frames: Sequence[Frame]) -> None:
         self.frames = tuple(frames)
+        if self.setup.serial:  # a serial belongs to one part: the next image gets its own (default: its name)
+            self.setup = replace(self.setup, serial="")
         self.result = None
         self.stale = False
         self.error = None

@@ -229,7 +229,7 @@ class SetupPanel(QWidget):
 
     # session -> widgets -------------------------------------------------------------------------------------
     def _on_session(self, what: str) -> None:
-        if what == "setup":
+        if what in ("setup", "details", "frames"):  # a new image clears the serial typed for the last one
             self.refresh()
 
     @staticmethod

@@ -131,3 +131,23 @@ def test_lot_review_shows_the_lot_reports_statistics_and_takes_a_lot_name(app, q
     assert re.search(rf"\d+\.\d{{{dec}}} mm", t["radius"]["mean"])
     assert all(re.fullmatch(rf"\d+\.\d{{{dec}}} ± \d+\.\d{{{dec}}}", row["radius"]) for row in t["rows"])
     assert page.chart.pixmap() is not None and not page.chart.pixmap().isNull()
+
+
+def test_details_change_no_measurement_and_a_new_image_clears_the_serial(app, qtbot, rg_home):
+    from ringgauge.gui.model import BenchSession
+
+    s = BenchSession(None, SetupState(source="sodium-d", pixel_size_um=8.0, pixel_size_u_um=0.004))
+    s.open_paths([str(LOT / "FH2604-01.png")])
+    s.result = s.run_now()
+    seen = []
+    s.changed.connect(seen.append)
+    before = s.result
+    s.update_setup(serial="SN-7", part="PCX-1000", operator="A. Tester")
+    assert seen == ["details"] and not getattr(s, "stale", False)  # no new analysis for who and what
+    assert s.result.radius_mm == before.radius_mm
+    assert s.result.setup.extras["inspection"] == {"serial": "SN-7", "part": "PCX-1000"}
+    assert s.result.setup.extras["operator"] == "A. Tester"
+    s.update_setup(radius_tolerance="995..1005")
+    assert seen[-1] == "setup"  # a tolerance changes the verdict: analysed again
+    s.open_paths([str(LOT / "FH2604-02.png")])
+    assert s.setup.serial == "" and s.setup.part == "PCX-1000"  # the serial belonged to the last part
