@@ -7,6 +7,7 @@ accuracy targets (power 0.15, astigmatism 0.2, irregularity 0.1 fringe) tightene
 """
 
 import math
+import re
 
 import numpy as np
 import pytest
@@ -175,9 +176,26 @@ def test_tolerance_verdict_and_report():
         1.5 * 546.074e-6 * math.sqrt(1 - (d["test_diameter_mm"] / 2 / 51.68) ** 2)
         / (2 * (1 - math.sqrt(1 - (d["test_diameter_mm"] / 2 / 51.68) ** 2))), rel=0.05)
     text = format_form(d)
-    for needle in ("power (sagitta deviation, A)", "fr", "nm", "PASS", "decision rule", "sign: unknown",
-                   "paraxial shop formula"):
+    for needle in ("power (sagitta deviation, A)", "PASS", "decision rule", "sign: unknown", "paraxial shop formula"):
         assert needle in text
+    # the printed numbers are the result's, to the digits printed (half a unit in the last digit)
+    num = r"(-?[0-9]+(?:[.][0-9]+)?)"
+
+    def same(printed, value):
+        dec = len(printed.split(".")[1]) if "." in printed else 0
+        return abs(float(printed) - value) <= 0.5 * 10.0**-dec + 1e-12
+
+    k = d["k"]
+    for key, label in (("power", "power (sagitta deviation, A)"), ("irregularity", "irregularity (B)")):
+        m = re.search(re.escape(label) + rf"\s+{num} ± {num} fr\s+{num} ± {num} nm", text)
+        assert m, label
+        assert same(m[1], d[f"{key}_fringes"]) and same(m[2], k * d[f"{key}_u_fringes"]), m[0]
+        assert same(m[3], d[f"{key}_nm"]) and same(m[4], k * d[f"{key}_u_nm"]), m[0]
+    for t in v["terms"]:
+        m = re.search(rf"measured {num} fr \(U {num}\) vs limit {num} fr: (\w[\w ]*)", text.split("Tolerance")[1]
+                      .split(t["term"], 1)[1])
+        assert m and same(m[1], t["value_fringes"]) and same(m[2], t["U_fringes"]), t["term"]
+        assert float(m[3]) == t["limit_fringes"] and m[4] == t["verdict"]
     # tight limits: guard-banded makes a value near its limit conditional, simple acceptance does not hide it
     p = r.terms["power_fringes"]
     tight = evaluate_form([frame], _setup(tolerance=f"3/{p + 0.01:.3f}", decision_rule="guard-banded"))
