@@ -372,6 +372,8 @@ def main(argv=None) -> int:
     ap.add_argument("--per-class", type=int, default=6, help="images per megapixel class in the full run (default 6)")
     ap.add_argument("--skip-form", action="store_true",
                     help="do not run scripts/bench_form.py (the test-plate benchmark) afterwards")
+    ap.add_argument("--skip-live", action="store_true",
+                    help="do not run scripts/bench_live.py (the live tracking benchmark) afterwards")
     ap.add_argument("--memory-child", metavar="PICKLE", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.memory_child:
@@ -472,7 +474,21 @@ def main(argv=None) -> int:
     out.write_text("\n".join(md), encoding="utf-8")
     log(f"bench: table written to {out}")
 
-    return run_form_bench(args, log)
+    rc = run_form_bench(args, log)
+    return run_live_bench(args, log) or rc
+
+
+def run_live_bench(args, log) -> int:
+    """Run scripts/bench_live.py (tracking mode on 1-megapixel video: frames/s, latency, dropped frames)."""
+    live = HERE / "bench_live.py"
+    if getattr(args, "skip_live", False) or not live.exists():
+        return 0
+    cmd = [sys.executable, str(live)] + (["--quick"] if args.quick else [])
+    log(f"bench: running {' '.join(cmd[1:])} (live tracking) ...")
+    rc = subprocess.call(cmd, cwd=str(ROOT))
+    if rc:
+        log(f"bench: scripts/bench_live.py exited with code {rc}")
+    return rc
 
 
 def run_form_bench(args, log) -> int:
