@@ -134,7 +134,7 @@ MANUAL_NOTE = ("MANUAL ENTRY: the results of this record were typed in by hand, 
 
 def _refuse_broken_record(store: Store, record_id: int) -> None:
     """No document for a record the chain check finds altered, forged or out of place."""
-    rep = store.check()
+    rep = store.check(only={"inspection": {record_id}})
     bad = [f for f in rep.findings if f.table == "inspection" and f.row_id == record_id]
     if bad:
         raise InputError(f"record {record_id} fails the records check ({bad[0].kind.lower()}: {bad[0].message}); "

@@ -719,8 +719,11 @@ class Store:
         except Exception:  # noqa: BLE001 - the record is committed; a lost head only weakens the tail check
             pass
 
-    def check(self) -> "CheckReport":
-        """Walk the chain and every row; name each altered, deleted, inserted, reordered or forged one."""
+    def check(self, only: dict[str, set[int]] | None = None) -> "CheckReport":
+        """Walk the chain and every row; name each altered, deleted, inserted, reordered or forged one.
+
+        ``only`` ({table: row ids}) checks the whole chain but reads only those rows (a document's own record
+        when it is issued or verified), so a large store is not read in full each time."""
         rep = CheckReport(self.where)
         for g in self.guard_problems():
             rep.add(None, None, "UNPROTECTED", g)
@@ -767,9 +770,16 @@ class Store:
         for tbl in CHAINED:
             if not self._table_exists(tbl):
                 continue
+            if only is not None and not only.get(tbl):
+                continue
             c = self._conn.cursor()
             try:
-                c.execute(f"SELECT * FROM {tbl} ORDER BY id")
+                if only is not None:
+                    ids = sorted(int(i) for i in only[tbl])
+                    c.execute(self._d.sql(f"SELECT * FROM {tbl} WHERE id IN ({', '.join('?' * len(ids))}) "
+                                          "ORDER BY id"), tuple(ids))
+                else:
+                    c.execute(f"SELECT * FROM {tbl} ORDER BY id")
                 names = [d[0].lower() for d in c.description]
                 rows = [dict(zip(names, r)) for r in c.fetchall()]
             finally:
@@ -793,7 +803,7 @@ class Store:
                     kind = "DAMAGED" if any("damaged JSON" in r for r in reasons) else "ALTERED"
                     rep.add(tbl, rid, kind, f"{_label(tbl, rid)}: {kind} — " + "; ".join(reasons))
             for (t, rid), (seq, _) in by_row.items():
-                if t == tbl and rid not in seen:
+                if t == tbl and rid not in seen and (only is None or rid in only[tbl]):
                     rep.add(tbl, rid, "DELETED", f"{_label(tbl, rid)} is in the chain (entry {seq}) but no longer "
                             "in the store")
         if entries:
