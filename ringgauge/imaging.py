@@ -189,6 +189,10 @@ def _probe_tifffile(data: bytes) -> ImageHeader | None:
     return ImageHeader("TIFF", w, h, pages, cplx)
 
 
+def _mp(megapixels: float) -> str:
+    return f"{megapixels:.0f}" if megapixels >= 10 else f"{megapixels:.2g}"
+
+
 def probe_header(data: bytes) -> ImageHeader | None:
     """Read the image header from the file's bytes without decoding pixels; ``None`` when no header is known."""
     head = bytes(data[:4])
@@ -386,7 +390,7 @@ def load_frame(path: str | os.PathLike, *, max_megapixels: float | None = None) 
     if header.megapixels > budget:
         raise ImageError(
             f"{p}: the {header.format} header declares {header.width}x{header.height} pixels "
-            f"({header.megapixels:.3g} megapixels), more than the limit of {budget:g} megapixels; "
+            f"({_mp(header.megapixels)} megapixels), more than the limit of {budget:g} megapixels; "
             "raise it with --max-megapixels if the image is genuine"
         )
     if header.complex_valued:
