@@ -319,8 +319,8 @@ def sign_pdf_file(path: str | os.PathLike, *, reason: str, location: str | None 
 
         spec = fields.SigFieldSpec(FIELD_NAME, on_page=-1, box=tuple(int(round(v)) for v in box))
         stamp_style = stamp.TextStampStyle(
-            stamp_text="Digitally signed by %(signer)s on %(ts)s — check: ringgauge certificate verify", border_width=0,
-            text_box_style=TextBoxStyle(font_size=6))
+            stamp_text="Digitally signed by %(signer)s, %(ts)s", border_width=0,
+            text_box_style=TextBoxStyle(font_size=8))
     try:
         pdf_signer = signers.PdfSigner(meta, signer=signer, stamp_style=stamp_style, new_field_spec=spec)
         out = pdf_signer.sign_pdf(w)
