@@ -81,8 +81,8 @@ class LiveSession:
     def __init__(self, source: FrameSource, setup: BenchSetup, options: LiveOptions | None = None):
         if wants_form(setup, 1):
             raise InputError(
-                "the live view tracks the radius of a lens on an optical flat; the surface form against a test "
-                "plate is measured from a captured frame (drop the test-plate options, or use analyze)"
+                "the live view follows a lens on an optical flat (radius); analyse the form against a test plate "
+                "from frames on the Bench page or with 'ringgauge analyze' (drop the form options here)"
             )
         self.source = source
         self.setup = setup
