@@ -28,6 +28,7 @@ from pathlib import Path
 from ..errors import InputError
 
 SHEET_NAME = "lot.json"
+MAX_BYTES = 256_000  # a lot sheet is a few hundred bytes; anything this large is the wrong file
 
 _TEXT, _NUM, _LIMITS = "text", "number", "limits"
 
@@ -88,6 +89,9 @@ def read_sheet(path: str | Path) -> dict:
     """The sheet's fields, checked: one line naming the file and the field for anything wrong."""
     path = Path(path)
     try:
+        if path.stat().st_size > MAX_BYTES:
+            raise InputError(f"lot sheet {path}: {path.stat().st_size} bytes is too large for a lot sheet "
+                             f"(at most {MAX_BYTES // 1000} kB)")
         text = path.read_text(encoding="utf-8")
     except UnicodeDecodeError:
         raise InputError(f"lot sheet {path}: not UTF-8 text") from None

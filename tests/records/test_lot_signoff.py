@@ -240,3 +240,15 @@ def test_bad_radius_tolerance_option(capsys):
               "--radius-tolerance", "1000 ± 5", "--radius-limits", "995", "1005"])
     err = capsys.readouterr().err
     assert rc == 2 and "not both" in err and "Traceback" not in err
+
+
+def test_lot_sheet_given_but_missing_or_too_large(tmp_path, capsys):
+    folder = _copy_lot(tmp_path, 1)
+    rc = cli(["batch", str(folder), "--lot-sheet", str(tmp_path / "nope.json"), "--db", str(tmp_path / "r.sqlite")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "lot sheet" in err and "not found" in err and "Traceback" not in err
+    big = tmp_path / "big.json"
+    big.write_text("{" + " " * 300_000 + "}", encoding="utf-8")
+    rc = cli(["batch", str(folder), "--lot-sheet", str(big), "--db", str(tmp_path / "r.sqlite")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "too large" in err
