@@ -98,18 +98,20 @@ class ImageView(QGraphicsView):
         self._rubber: QGraphicsEllipseItem | None = None
         self._fit_pending = True
         self.ring_step = 1
-        self._placeholder = QGraphicsSimpleTextItem("Open an interferogram: File > Open (Ctrl+O), or drop a file here")
+        # three short lines, so the hint stays whole even in a narrow view (it is scaled down to fit when needed)
+        self._placeholder = QGraphicsSimpleTextItem("Open an interferogram:\nFile > Open (Ctrl+O),\nor drop a file here")
         self._placeholder.setBrush(QBrush(QColor(230, 230, 230)))
         f = self._placeholder.font()
         f.setPointSizeF(f.pointSizeF() * 1.3)
         self._placeholder.setFont(f)
         self.scene().addItem(self._placeholder)
+        self._show_placeholder()
 
     # image ----------------------------------------------------------------------------------------------
     def set_image(self, a: np.ndarray | None, *, refit: bool = False) -> None:
         if a is None:
             self._pixmap.setPixmap(QPixmap())
-            self._placeholder.setVisible(True)
+            self._show_placeholder()
             return
         self._placeholder.setVisible(False)
         new_size = (a.shape[1], a.shape[0])
@@ -121,6 +123,19 @@ class ImageView(QGraphicsView):
         self._clip.setRect(QRectF(-0.5, -0.5, new_size[0], new_size[1]))
         if self._fit_pending and self.isVisible():
             self.fit()
+
+    def _show_placeholder(self) -> None:
+        """The empty view's hint, centred and whole: shrunk to the view when the view is narrower than it."""
+        self._placeholder.setVisible(True)
+        self._clip.setRect(QRectF())
+        rect = self._placeholder.sceneBoundingRect().adjusted(-12, -12, 12, 12)
+        self.scene().setSceneRect(rect)
+        self.resetTransform()
+        vp = self.viewport().rect()
+        if rect.width() > vp.width() or rect.height() > vp.height():
+            self.fitInView(rect, Qt.AspectRatioMode.KeepAspectRatio)
+        self.centerOn(rect.center())
+        self._fit_pending = True
 
     def image_size(self) -> tuple[int, int]:
         pm = self._pixmap.pixmap()
@@ -165,12 +180,16 @@ class ImageView(QGraphicsView):
 
     def showEvent(self, event):  # noqa: N802
         super().showEvent(event)
-        if self._fit_pending:
+        if self._pixmap.pixmap().isNull():
+            self._show_placeholder()
+        elif self._fit_pending:
             self.fit()
 
     def resizeEvent(self, event):  # noqa: N802
         super().resizeEvent(event)
-        if self._fit_pending:
+        if self._pixmap.pixmap().isNull():
+            self._show_placeholder()
+        elif self._fit_pending:
             self.fit()
 
     def wheelEvent(self, event):  # noqa: N802

@@ -132,14 +132,14 @@ class PlotPanel(QTabWidget):
             return
         c.figure.clear()
         ax = c.figure.add_subplot(111)
-        c.figure.subplots_adjust(left=0.15, right=0.97, top=0.86, bottom=0.15)
+        c.figure.subplots_adjust(left=0.15, right=0.97, top=0.88, bottom=0.2)
         ax.fill_between(prof["r_mm"], prof["lo_nm"], prof["hi_nm"], color=C_BRIGHT, alpha=0.2,
                         label="lowest to highest around the ring")
         ax.plot(prof["r_mm"], prof["mean_nm"], "-", color=C_BRIGHT, lw=1.5, label="mean around the ring")
         ax.axhline(0, color=C_LINE, lw=0.8)
         ax.set_xlabel("radius on the part r / mm")
-        ax.set_ylabel("gap less piston and tilt / nm")
-        ax.set_title("Form job (no ring orders): the form map along the radius", fontsize=10)
+        ax.set_ylabel("form / nm")
+        ax.set_title("Form job, no ring orders: the form map (less piston, tilt) along the radius", fontsize=9)
         ax.legend(loc="best", fontsize=8)
         c.shown()
 
@@ -170,7 +170,7 @@ class PlotPanel(QTabWidget):
             return
         c.figure.clear()
         ax = c.figure.add_subplot(111)
-        c.figure.subplots_adjust(left=0.12, right=0.92, top=0.92, bottom=0.13)
+        c.figure.subplots_adjust(left=0.12, right=0.92, top=0.88, bottom=0.16)
         if "extent_mm" in data:
             # millimetres on the part from the aperture's centre; +y up (image rows run down)
             im = ax.imshow(data["gap_nm"], extent=data["extent_mm"], cmap="cividis", interpolation="nearest")

@@ -8,6 +8,7 @@ import datetime as _dt
 import math
 
 from PySide6.QtCore import QDate, Qt, Signal
+from PySide6.QtGui import QFont
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QCheckBox,
@@ -130,6 +131,8 @@ class CalibrationDialog(QDialog):
         lay.addWidget(self.message)
         self.report = QTextBrowser()
         self.report.setMinimumHeight(160)
+        self.report.setLineWrapMode(QTextBrowser.LineWrapMode.NoWrap)  # the command line's columns stay aligned
+        self.report.setFont(QFont("DejaVu Sans Mono", 9))
         lay.addWidget(self.report, 1)
         bb = QDialogButtonBox(QDialogButtonBox.StandardButton.Close)
         self.b_run = bb.addButton("Measure", QDialogButtonBox.ButtonRole.ActionRole)

@@ -11,6 +11,7 @@ from PySide6.QtWidgets import (
     QHeaderView,
     QLabel,
     QListWidget,
+    QStyle,
     QTableWidget,
     QTableWidgetItem,
     QTabWidget,
@@ -138,6 +139,9 @@ class ResultsPanel(QWidget):
             t.setAlternatingRowColors(True)
             t.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
             t.horizontalHeader().setStretchLastSection(True)
+        # the values' columns are sized from every row (see _column_widths), the last one takes what is left
+        self.values.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        self.values.horizontalHeader().setStretchLastSection(True)
         self.warnings = QListWidget(self)
         self.tabs.addTab(self.values, "Values")
         self.tabs.addTab(self.budget, "Uncertainty budget")
@@ -194,13 +198,26 @@ class ResultsPanel(QWidget):
     def needed_width(self) -> int:
         """Width the values table needs to show every column whole (no cut text, no sideways scrolling)."""
         t = self.values
-        h = t.horizontalHeader()
-        cols = sum(max(h.sectionSizeHint(c), t.sizeHintForColumn(c)) for c in range(t.columnCount()))
+        cols = sum(self._column_widths())
         frame = 2 * t.frameWidth() + t.verticalScrollBar().sizeHint().width()
         lay = self.layout().contentsMargins()
         return cols + frame + lay.left() + lay.right() + 16
 
+    def _column_widths(self) -> list[int]:
+        t = self.values
+        h = t.horizontalHeader()
+        fm = t.fontMetrics()
+        pad = 2 * (t.style().pixelMetric(QStyle.PixelMetric.PM_FocusFrameHMargin, None, t) + 1) + 2
+        out = []
+        for c in range(t.columnCount()):
+            # every row counts, not only those scrolled into view (Qt's own sizing looks at visible rows only)
+            texts = [t.item(r, c).text() for r in range(t.rowCount()) if t.item(r, c) is not None]
+            out.append(max([h.sectionSizeHint(c)] + [fm.horizontalAdvance(x) + pad for x in texts]))
+        return out
+
     def _fit_width(self) -> None:
+        for c, wdt in enumerate(self._column_widths()):
+            self.values.setColumnWidth(c, wdt)
         # the splitter then takes the room from the photograph, never from the numbers
         self.setMinimumWidth(min(self.needed_width(), 640))
 

@@ -59,13 +59,12 @@ class TrainingPage(QWidget):
         self.level = QComboBox()
         for k, lv in LEVELS.items():
             self.level.addItem(lv.title, k)
-        self.level.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
-        self.level.setMinimumContentsLength(14)
+        self.level.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)  # the level's name whole
         self.b_new = QPushButton("New exercise")
         top.addWidget(QLabel("Trainee"))
         top.addWidget(self.trainee, 1)
         top.addWidget(QLabel("Level"))
-        top.addWidget(self.level, 1)
+        top.addWidget(self.level, 0)
         top.addWidget(self.b_new)
         left.addLayout(top)
         self.brief = QLabel("Press “New exercise” to get a practice interferogram.")

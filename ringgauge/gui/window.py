@@ -702,15 +702,20 @@ class MainWindow(QMainWindow):
         from .registers import CalibrationDialog
 
         dlg = CalibrationDialog(self, operator=self.session.setup.operator)
-        dlg.saved.connect(lambda _name: self.bench.setup_panel.reload_lists())
+        dlg.saved.connect(lambda _name: self._registers_changed())
         self._calibration = dlg
         dlg.show()
+
+    def _registers_changed(self) -> None:
+        # refill the lists, then show the session's own choices again (a refill alone would show the first item)
+        self.bench.setup_panel.reload_lists()
+        self.bench.setup_panel.refresh()
 
     def plates_dialog(self) -> None:
         from .registers import PlatesDialog
 
         dlg = PlatesDialog(self)
-        dlg.changed.connect(self.bench.setup_panel.reload_lists)
+        dlg.changed.connect(self._registers_changed)
         self._plates = dlg
         dlg.show()
 

@@ -4,7 +4,7 @@ and see the result follow; bad files, failed analyses and incomplete set-ups; re
 import json
 
 import pytest
-from gui_helpers import FakeEngine, analysed, make_window, write_rings
+from gui_helpers import cut_texts, FakeEngine, analysed, make_window, write_rings
 
 from ringgauge.gui.model import SetupState
 from ringgauge.gui.prefs import Prefs
@@ -144,6 +144,7 @@ def test_real_form_evaluation_gives_a_verdict_that_follows_the_tolerance(app, qt
     qtbot.waitUntil(done, timeout=180000)
     assert w.session.error is None
     form = w.session.result.form.to_dict()
+    assert cut_texts(w.bench.results) == []  # the form's longer names fit whole, every row (not only those in view)
     # astigmatism after the best-fit sphere is irregularity: 0.6 fringe of it fails B = 0.5
     assert w.bench.results.banner.word.text() == "FAIL" and w.bench.results.banner.tone == "fail"
     assert "irregularity: FAIL" in w.bench.results.banner.explain.text()

@@ -47,6 +47,11 @@ def test_no_cut_text_in_the_setup_panel_or_the_results_at_both_sizes(app, qtbot,
                           "U_fringes": 0.02, "limit_fringes": 0.5}]}
     w = make_window(qtbot, FakeEngine(verdict=verdict), rg_home)
     w.resize(*size)
+    qtbot.wait(20)
+    # the empty view's hint is whole inside the view
+    v = w.bench.view
+    hint = v.mapFromScene(v._placeholder.sceneBoundingRect()).boundingRect()
+    assert v.viewport().rect().contains(hint), (hint, v.viewport().rect())
     _open(qtbot, w, sample_dir / "lens-A01.png")
     for _ in range(5):
         qtbot.wait(20)
@@ -60,6 +65,12 @@ def test_no_cut_text_in_the_setup_panel_or_the_results_at_both_sizes(app, qtbot,
     assert bar.tabRect(2).right() <= bar.width()
     # the verdict names the trade's term, never the internal key
     assert "rot_sym" not in w.bench.results.banner.explain.text()
+    # the training page: the level's name and the reading's fields whole
+    w.tabs.setCurrentWidget(w.training)
+    w.training.level.setCurrentIndex(w.training.level.findData("bench"))
+    w.training.new_exercise(seed=14)
+    qtbot.wait(20)
+    assert cut_texts(w.training) == []
 
 
 def test_cut_text_is_found_when_there_is_some(app, qtbot, sample_dir, rg_home):
@@ -335,16 +346,24 @@ def test_plates_dialog_adds_and_retires_through_the_register(app, qtbot, rg_home
     from ringgauge.gui.registers import PlatesDialog
 
     w = make_window(qtbot, FakeEngine(), rg_home)
-    dlg = PlatesDialog(w)
-    qtbot.addWidget(dlg)
-    dlg.changed.connect(w.bench.setup_panel.reload_lists)
+    w.a_plates.trigger()  # Tools > Test plates…
+    dlg = w._plates
     dlg.pid.setText("TP-0412")
     dlg.radius.setText("51.68")
     dlg.radius_u.setText("0.002")
     assert dlg.add()
     got = {p.id: p for p in plates.load_register()}
     assert got["TP-0412"].radius_mm == 51.68 and got["TP-0412"].kind == "concave"
-    assert dlg.plate_ids() == ["TP-0412"] and w.bench.setup_panel.plate.findData("TP-0412") > 0
+    panel = w.bench.setup_panel
+    assert dlg.plate_ids() == ["TP-0412"] and panel.plate.findData("TP-0412") > 0
+    panel.plate.setCurrentIndex(panel.plate.findData("TP-0412"))  # widget -> model
+    assert w.session.setup.test_plate == "TP-0412"
+    dlg.pid.setText("TP-0500")
+    dlg.radius.setText("80.1")
+    dlg.radius_u.setText("0.003")
+    assert dlg.add()
+    # the lists are filled again, and the panel still shows the session's plate (model -> widget)
+    assert panel.plate.currentData() == "TP-0412" and panel.plate.findData("TP-0500") > 0
     # the command line sees the same register
     assert cli.main(["plates", "list"]) == 0 and "TP-0412" in capsys.readouterr().out
     # the register's own checks: the same identifier twice is refused with its message
@@ -356,8 +375,8 @@ def test_plates_dialog_adds_and_retires_through_the_register(app, qtbot, rg_home
     dlg.pid.setText("TP-0413")
     assert dlg.add() is False and "radius is empty" in dlg.message.text()
     assert dlg.retire("TP-0412")
-    assert plates.load_register()[0].retired and dlg.plate_ids() == []
-    assert w.bench.setup_panel.plate.findData("TP-0412") < 0
+    assert {p.id: p for p in plates.load_register()}["TP-0412"].retired and dlg.plate_ids() == ["TP-0500"]
+    assert panel.plate.findData("TP-0500") > 0
 
 
 def test_tools_menu_opens_both_dialogs(app, qtbot, rg_home):
