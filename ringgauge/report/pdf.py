@@ -893,11 +893,11 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
             story.append(Paragraph(_esc(f"Accepted on radius under {c.get('decision_rule')}: {c['accepted']} "
                                         "parts."), st["small"]))
     story.append(Spacer(1, 4))
-    story.append(_grid_table(
-        ["Quantity", "n", "Mean", "Standard deviation s", "Range"],
-        [["Radius of curvature", c["radius"]["n"], c["radius"]["mean"], c["radius"]["sd"], c["radius"]["range"]],
-         ["Power", c["power"]["n"], c["power"]["mean"], c["power"]["sd"], c["power"]["range"]]],
-        st, [W * 0.22, W * 0.08, W * 0.22, W * 0.2, W * 0.28]))
+    spreads = [[name, c[key]["n"], c[key]["mean"], c[key]["sd"], c[key]["range"]]
+               for name, key in (("Radius of curvature", "radius"), ("Power", "power")) if c[key]["n"] != "0"]
+    story.append(_grid_table(["Quantity", "n", "Mean", "Standard deviation s", "Range"],
+                             spreads or [["—", "0", "—", "—", "—"]],
+                             st, [W * 0.22, W * 0.08, W * 0.22, W * 0.2, W * 0.28]))
     if c["capability"]:
         story.append(Paragraph("Process capability", st["h2"]))
         story.append(_grid_table(["Quantity", "Specification", "n", "Mean", "s", "Cp", "Cpk"],
@@ -924,7 +924,15 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
                                st["small"]))
         story.append(Spacer(1, 3))
         has_radius = any(r.get("radius_verdict", "—") != "—" for r in c["rows"])
-        if has_radius:
+        has_power = any(r.get("power", "—") != "—" for r in c["rows"])
+        if has_radius and not has_power:  # lenses on a flat: no power column of dashes
+            header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Note"]
+            rows = [[r["serial"], r["record"], r["verdict"],
+                     r["radius_verdict"] + ("" if r.get("accepted") is None else
+                                            (" (accepted)" if r["accepted"] else " (not accepted)")),
+                     r["radius"], r["note"]] for r in c["rows"]]
+            widths = (0.13, 0.09, 0.13, 0.17, 0.19, 0.29)
+        elif has_radius:
             header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
             rows = [[r["serial"], r["record"], r["verdict"],
                      r["radius_verdict"] + ("" if r.get("accepted") is None else
