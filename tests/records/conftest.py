@@ -60,7 +60,9 @@ def pg_server():
                         "(initdb refuses root); install the postgresql package or run the tests as a user")
         os.chown(base, pw.pw_uid, pw.pw_gid)
     data = os.path.join(base, "data")
-    port = random.randint(20000, 45000)
+    # one port range per pytest-xdist worker (gw0, gw1, ...), so parallel workers never pick the same port
+    worker = os.environ.get("PYTEST_XDIST_WORKER", "gw0")
+    port = 20000 + 1000 * (int(worker[2:]) % 25 if worker[2:].isdigit() else 0) + random.randint(0, 999)
     log = os.path.join(base, "server.log")
     run = dict(check=True, capture_output=True, text=True, timeout=120)
     try:
