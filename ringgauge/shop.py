@@ -1,5 +1,9 @@
 """The shop's own details for certificates and lot reports, kept in ``shop.json`` in the ringgauge folder.
 
+Set them with ``ringgauge shop set --name … --address … …`` (``ringgauge shop show`` prints them with the
+fingerprint of the shop's signing certificate, see :mod:`ringgauge.report.signing`); the file can still be
+edited by hand.
+
 Example ``shop.json`` (every key optional)::
 
     {
