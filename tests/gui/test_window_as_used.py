@@ -428,3 +428,33 @@ def test_training_leaves_the_radius_empty_scores_irregularity_and_reviews_as_typ
     assert len(rows) == 2 and rows[0]["trainee"] == "New starter 1" and rows[0]["exercise"] == ex.id
     assert "Exported 2 attempts" in page.review_message.text()
     assert not page.export_csv(str(tmp_path / "no" / "dir.csv")) and "cannot write" in page.review_message.text()
+
+
+# -- what the form plots show ------------------------------------------------------------------------------------------
+def test_form_map_axes_in_mm_and_the_profile_along_the_radius(sample_dir):
+    import numpy as np
+    from gui_helpers import hand_result
+
+    from ringgauge.gui import display
+    from ringgauge.gui.model import SetupState
+    from ringgauge.imaging import load_frame
+
+    f = load_frame(str(sample_dir / "lens-A01.png"))  # 320 x 256 px
+    setup = SetupState(source="sodium-d", pixel_size_um=16.0, pixel_size_u_um=0.02).to_bench_setup()
+    d = hand_result(f, setup, 800.0).to_dict()
+    m = display.form_map(d, None, f.shape)
+    cx, cy = d["centre_px"]
+    # millimetres from the centre: 16 µm per pixel; +y up on the plot
+    assert m["extent_mm"] == pytest.approx((-cx * 0.016, (320 - cx) * 0.016, (cy - 256) * 0.016, cy * 0.016))
+    # a paraboloid gap g = c·r² comes back as c·r² along the radius (mean), with no spread around each ring
+    n = 201
+    xs = np.linspace(-5.0, 5.0, n)
+    X, Y = np.meshgrid(xs, xs)
+    R2 = X**2 + Y**2
+    gap = np.where(R2 <= 25.0, 10.0 * R2, np.nan)
+    prof = display.form_profile({"gap_nm": gap, "extent_mm": (-5.0, 5.0, -5.0, 5.0)}, bins=20)
+    r = prof["r_mm"]
+    assert r.max() < 5.0 and r.min() > 0
+    assert prof["mean_nm"] == pytest.approx(10.0 * r**2, rel=0.05, abs=2.0)
+    assert np.all(prof["hi_nm"] - prof["lo_nm"] <= 10.0 * (2 * 5.0 / 20) * 2 * r + 1.0)  # one bin's width of r²
+    assert display.form_profile(None) is None
