@@ -213,6 +213,29 @@ class LivePage(QWidget):
         self.capture_note.setWordWrap(True)
         cl.addWidget(self.capture_note)
         right.addWidget(cap)
+
+        prac = QGroupBox("Practice: read the sign yourself")
+        pl = QGridLayout(prac)
+        self.practice_btn = QPushButton("New practice sequence")
+        self.practice_btn.setToolTip("A generated part settles and is pressed; the machine's reading stays hidden "
+                                     "until you give yours")
+        self.practice_btn.clicked.connect(self.new_practice)
+        pl.addWidget(self.practice_btn, 0, 0)
+        self.call_plus = QPushButton("+  centre contact")
+        self.call_minus = QPushButton("−  edge contact")
+        self.call_plus.clicked.connect(lambda: self.answer_practice("+"))
+        self.call_minus.clicked.connect(lambda: self.answer_practice("-"))
+        self.call_plus.setEnabled(False)
+        self.call_minus.setEnabled(False)
+        pl.addWidget(self.call_plus, 0, 1)
+        pl.addWidget(self.call_minus, 0, 2)
+        self.practice_note = QLabel("")
+        self.practice_note.setWordWrap(True)
+        self.practice_note.setStyleSheet("font-size:10pt")
+        pl.addWidget(self.practice_note, 1, 0, 1, 3)
+        left.addWidget(prac)
+        self.practice: dict | None = None  # {"truth": ..., "answer": None} while a practice runs
+        self._practice_job = None
         self.a_capture = QAction("Capture settled frame", self)
         self.a_capture.setShortcut(QKeySequence(Qt.Key.Key_Space))
         self.a_capture.setShortcutContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
@@ -256,6 +279,10 @@ class LivePage(QWidget):
         from ..live.source import open_source
 
         self.stop()
+        if self.practice is not None and os.path.basename(str(spec)) != "practice.avi":
+            self.practice = None  # a real source ends the practice
+            self.call_plus.setEnabled(False)
+            self.call_minus.setEnabled(False)
         self.source_edit.setText(str(spec))
         try:
             setup = self.setup_fn()
@@ -333,12 +360,98 @@ class LivePage(QWidget):
             self.settle_label.setText(f"MOVING{mv}")
             self.settle_label.setStyleSheet(_MOVING_STYLE)
         self.radius_label.setText(f"R = {st.radius_mm:.4f} mm ± {st.radius_U_mm:.2g} mm  (k = {st.k:.2g})")
-        self.rings_label.setText({"in": "moving in ↘ (toward the centre)", "out": "moving out ↗ (away from the centre)",
-                                  "still": "still"}.get(st.rings, st.rings))
-        self.gap_label.setText(st.gap)
-        self.sign_label.setText({"+": "+  centre contact", "-": "−  edge contact"}.get(st.power_sign, "unknown"))
-        self.sign_detail.setText(st.sign_detail)
+        if self.hidden:
+            for lab in (self.rings_label, self.gap_label, self.sign_label):
+                lab.setText("hidden — your call")
+            self.sign_detail.setText("Watch the rings while the film thins and when the part is pressed, then "
+                                     "give your reading below.")
+        else:
+            self.rings_label.setText({"in": "moving in ↘ (toward the centre)",
+                                      "out": "moving out ↗ (away from the centre)",
+                                      "still": "still"}.get(st.rings, st.rings))
+            self.gap_label.setText(st.gap)
+            self.sign_label.setText({"+": "+  centre contact", "-": "−  edge contact"}.get(st.power_sign, "unknown"))
+            self.sign_detail.setText(st.sign_detail)
         self.capture_btn.setEnabled(st.settled)
+
+    # -- practice ----------------------------------------------------------------------------------------------
+    @property
+    def hidden(self) -> bool:
+        return self.practice is not None and self.practice.get("answer") is None
+
+    def new_practice(self, seed: int | None = None, *, wait: bool = False) -> None:
+        """Generate a sequence with a hidden contact (centre or edge) in the background, then play it."""
+        import tempfile
+        import threading
+
+        from .. import synth
+        from ..live.sequence import SequencePlan, write_sequence
+
+        g = np.random.default_rng(seed)
+        contact = str(g.choice(["centre", "edge"]))
+        plan = SequencePlan(radius_mm=float(g.uniform(500.0, 900.0)), contact=contact, settle_frames=30,
+                            rest_frames=12, press_frames=14, after_frames=12)
+        folder = tempfile.mkdtemp(prefix="rg-practice-")
+        out = os.path.join(folder, "practice.avi")
+        job: dict = {"done": False, "error": None}
+
+        def work():
+            try:
+                write_sequence(out, plan, source="mercury-e", camera=synth.Camera(width=480, height=384,
+                                                                                  pixel_um=12.0),
+                               rng=int(g.integers(1 << 30)))
+            except Exception as exc:  # noqa: BLE001 - shown as one line
+                job["error"] = str(exc)
+            job["done"] = True
+
+        self.stop()
+        self.practice_btn.setEnabled(False)
+        self.practice_note.setText("Making a practice sequence …")
+        self._practice_job = job
+        th = threading.Thread(target=work, name="ringgauge-practice", daemon=True)
+        th.start()
+        if wait:
+            th.join()
+            self._practice_ready(job, out, contact)
+            return
+
+        def poll():
+            if job["done"]:
+                self._practice_ready(job, out, contact)
+            else:
+                QTimer.singleShot(100, poll)
+
+        QTimer.singleShot(100, poll)
+
+    def _practice_ready(self, job, out, contact) -> None:
+        self.practice_btn.setEnabled(True)
+        if job["error"]:
+            self.practice_note.setText(f"the practice sequence could not be made: {job['error']}")
+            return
+        self.practice = {"truth": "+" if contact == "centre" else "-", "answer": None}
+        self.practice_note.setText("Watch the rings, then press + or −.")
+        self.call_plus.setEnabled(True)
+        self.call_minus.setEnabled(True)
+        if not self.start(out):
+            self.practice = None
+
+    def answer_practice(self, sign: str) -> str:
+        if self.practice is None:
+            return ""
+        self.practice["answer"] = sign
+        self.call_plus.setEnabled(False)
+        self.call_minus.setEnabled(False)
+        truth = self.practice["truth"]
+        machine = self.session.sign.sign if self.session is not None else "unknown"
+        name = {"+": "+ (centre contact)", "-": "− (edge contact)", "unknown": "unknown (not read yet)"}
+        verdict = "Right." if sign == truth else "Not this time."
+        text = (f"{verdict} You read {name[sign]}; the part was {name[truth]}; the machine read {name[machine]}. "
+                "Closing gap: rings moving out mean centre contact, moving in mean edge contact.")
+        self.practice_note.setText(text)
+        _f, st = self.session.snapshot() if self.session is not None else (None, None)
+        if st is not None:
+            self._show_state(st)
+        return text
 
     # -- capture -----------------------------------------------------------------------------------------------
     def capture(self) -> list[str]:

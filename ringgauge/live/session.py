@@ -181,6 +181,8 @@ class LiveSession:
                     wait = t0 + n / self._throttle - time.monotonic()
                     if wait > 0:
                         self._stop.wait(wait)
+                    elif wait < -1.0 / self._throttle:
+                        t0 -= wait  # behind (a slow first frame): keep the file's pace from here, do not rush
                     n += 1
                 if self.step() is None:
                     return

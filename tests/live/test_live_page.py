@@ -75,3 +75,18 @@ def test_capture_refused_while_moving(window, qtbot, sequences):
     assert st.frame < 25 and not st.settled
     assert page.capture() == []
     assert "not settled" in page.capture_note.text()
+
+
+def test_practice_hides_the_reading_until_the_trainee_answers(window, qtbot):
+    page = window.live
+    page.new_practice(seed=5, wait=True)
+    assert page.practice is not None and page.hidden
+    truth = page.practice["truth"]
+    qtbot.waitUntil(lambda: page.session.ended, timeout=90000)
+    page.refresh()
+    assert page.sign_label.text().startswith("hidden")
+    assert page.session.sign.sign == truth  # the machine reads the generated contact
+    wrong = "-" if truth == "+" else "+"
+    text = page.answer_practice(wrong)
+    assert text.startswith("Not this time") and not page.hidden
+    assert not page.sign_label.text().startswith("hidden")
