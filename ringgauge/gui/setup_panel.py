@@ -12,7 +12,6 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
     QFormLayout,
-    QGridLayout,
     QGroupBox,
     QLabel,
     QLineEdit,
@@ -138,28 +137,21 @@ class SetupPanel(QWidget):
 
         # who ----------------------------------------------------------------------------------------------------
         g = QGroupBox("Inspection")
-        grid = QGridLayout(g)
-        grid.setHorizontalSpacing(4)
-        grid.setVerticalSpacing(2)
+        f = QFormLayout(g)
         self.operator = QLineEdit()
         self.operator.setPlaceholderText("initials or name")
         self.details: dict[str, QLineEdit] = {}
         cells = (("serial", "Serial", "image name"), ("part", "Part", ""), ("drawing", "Drawing", ""),
                  ("surface", "Surface", "S1"), ("customer", "Customer", ""), ("order", "Order", ""))
-        for n, (key, label, hint) in enumerate(cells):
+        for key, label, hint in cells:
             e = QLineEdit()
             e.setPlaceholderText(hint)
             e.setAccessibleName(label)
             e.setToolTip(f"{label}: kept with the record and printed on the certificate"
                          + (" (empty: the image's file name)" if key == "serial" else ""))
             self.details[key] = e
-            r, c = divmod(n, 2)
-            grid.addWidget(QLabel(label), r, 2 * c)
-            grid.addWidget(e, r, 2 * c + 1)
-        grid.addWidget(QLabel("Operator"), 3, 0)
-        grid.addWidget(self.operator, 3, 1, 1, 3)
-        grid.setColumnStretch(1, 1)
-        grid.setColumnStretch(3, 1)
+            f.addRow(label, e)
+        f.addRow("Operator", self.operator)
         lay.addWidget(g)
 
         for combo in (self.source, self.profile, self.medium, self.kind, self.plate, self.rule, self.press, self.gap):
