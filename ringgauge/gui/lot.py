@@ -72,6 +72,8 @@ def summarise(result) -> dict:
         "irregularity": irr,
         "verdict": v.word,
         "radius_verdict": _radius_word(d),
+        "radius_tolerance": (((d.get("verdict") or {}).get("radius") or {}).get("tolerance") or {}).get("described")
+        if isinstance(d.get("verdict"), dict) else None,
         "decision_rule": v.decision_rule,
         "sha256": (d.get("image") or {}).get("sha256", ""),
         "wavelength_nm": _num((d.get("setup") or {}).get("wavelength_nm")),
@@ -196,8 +198,8 @@ class Lot:
             raise InputError("the lot is empty; open a folder of images first")
         k = next((r.summary["k"] for r in self.rows if r.summary and r.summary.get("k")), 2.0)
         headers = ["image", "path", "status", "radius_mm", f"radius_U_mm_k{k:g}", "power_fringes",
-                   "irregularity_fringes", "wavelength_nm", "verdict", "decision_rule", "image_sha256",
-                   "note"]
+                   "irregularity_fringes", "wavelength_nm", "verdict", "decision_rule", "radius_verdict",
+                   "radius_tolerance", "image_sha256", "note"]
         try:
             with open(target, "w", newline="", encoding="utf-8") as fh:
                 w = csv.writer(fh)
@@ -206,8 +208,8 @@ class Lot:
                     s = r.summary or {}
                     w.writerow([r.name, r.path, r.status, _csv(s.get("radius_mm")), _csv(s.get("radius_U_mm")),
                                 _csv(s.get("power")), _csv(s.get("irregularity")), _csv(s.get("wavelength_nm")),
-                                s.get("verdict", ""), s.get("decision_rule", ""), s.get("sha256", ""),
-                                r.message])
+                                s.get("verdict", ""), s.get("decision_rule", ""), s.get("radius_verdict") or "",
+                                s.get("radius_tolerance") or "", s.get("sha256", ""), r.message])
         except OSError as exc:
             raise InputError(f"{target}: cannot write the CSV file ({exc.strerror or exc})") from None
         return len(self.rows)

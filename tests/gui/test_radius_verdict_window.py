@@ -151,3 +151,30 @@ def test_details_change_no_measurement_and_a_new_image_clears_the_serial(app, qt
     assert seen[-1] == "setup"  # a tolerance changes the verdict: analysed again
     s.open_paths([str(LOT / "FH2604-02.png")])
     assert s.setup.serial == "" and s.setup.part == "PCX-1000"  # the serial belonged to the last part
+
+
+def test_lot_csv_carries_the_radius_verdict_and_tolerance(app, qtbot, tmp_path):
+    import csv
+
+    from ringgauge.gui.lot import Lot
+    from ringgauge.pipeline import analyse
+
+    folder = tmp_path / "lot"
+    folder.mkdir()
+    import shutil
+
+    shutil.copy(LOT / "FH2604-04.png", folder / "FH2604-04.png")
+    lot = Lot()
+    lot.load_folder(folder)
+    setup = SetupState(source="sodium-d", pixel_size_um=8.0, pixel_size_u_um=0.004, radius_tolerance="995..1005",
+                       decision_rule="guard-banded").to_bench_setup()
+    lot.set_result(0, Lot.analyse_one(lot.rows[0].path, setup, analyse))
+    R, U = lot.rows[0].result.radius_mm, lot.rows[0].result.radius_U_mm
+    out = tmp_path / "lot.csv"
+    lot.export_csv(out)
+    with open(out, newline="", encoding="utf-8") as fh:
+        (row,) = list(csv.DictReader(fh))
+    # ILAC-G8:09/2019 figures 4/5: the U interval straddles 1005 mm, inside it, not accepted under w = U
+    assert R <= 1005 < R + U
+    assert row["radius_verdict"] == "conditional pass (not accepted)"
+    assert row["radius_tolerance"] == "R 995 … 1005 mm"
