@@ -321,6 +321,8 @@ def parse_radius_tolerance(text: str) -> RadiusTolerance:
 
 
 def _nominal(raw, nom, up, dn, bad) -> RadiusTolerance:
+    if not all(math.isfinite(x) for x in (nom, up, dn, nom - dn, nom + up)):
+        bad("the numbers must be finite")
     if nom == 0:
         bad("the nominal radius cannot be 0")
     lo, hi = nom - dn, nom + up

@@ -135,6 +135,8 @@ def test_radius_tolerance_forms(text, lo, hi, nom):
     ("1 ± 0.5 m", "in mm"),
     ("about a metre", "nominal radius"),
     ("-5..5", "span zero"),
+    ("1e308 ± 1e308", "finite"),
+    ("1e400..1e401", "finite"),
 ])
 def test_radius_tolerance_errors_are_pointed_and_one_line(text, says):
     with pytest.raises(ToleranceSyntaxError) as e:
