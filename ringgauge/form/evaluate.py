@@ -27,6 +27,7 @@ import numpy as np
 from ..errors import AnalysisError, InputError
 from .aperture import Aperture, aperture_for
 from .fit import GapFit, finesse_coefficient, fit_gap
+from .phase import PhaseMap, ansi_nm, phase_map, zernike_fit
 from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxial, radius_budget
 from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
 from .tolerance import Tolerance, judge, parse_tolerance
@@ -68,25 +69,42 @@ def _lsq(cols, w):
 
 def form_terms(W: np.ndarray, u: np.ndarray, v: np.ndarray) -> dict:
     """Form terms (fringes) of gap samples ``W`` at points (u, v) on the unit test disc (a regular grid)."""
+    t = form_terms_batch(np.asarray(W, dtype=float)[None, :], u, v)
+    return {k: float(x[0]) for k, x in t.items()}
+
+
+def form_terms_batch(Ws: np.ndarray, u: np.ndarray, v: np.ndarray) -> dict:
+    """:func:`form_terms` of many gap sample sets at once (rows of ``Ws``): every least-squares fit is one
+    projection matrix applied to all rows. Returns name -> array of length ``len(Ws)``."""
+    Ws = np.atleast_2d(np.asarray(Ws, dtype=float))
     one = np.ones_like(u)
     r2 = u * u + v * v
-    _, wt = _lsq([one, u, v], W)
-    sph, wi = _lsq([one, u, v, r2], W)
-    ast, _ = _lsq([one, u, v, r2, u * u - v * v, 2 * u * v], W)
-    a1, a2 = ast[4], ast[5]
-    rot, _ = _lsq([one, r2, r2 * r2, r2**3], wi)
-    rot_part = np.stack([one, r2, r2 * r2, r2**3], axis=1) @ rot
+
+    def proj(cols):
+        X = np.stack(cols, axis=1)
+        return X, np.linalg.pinv(X)
+
+    Xt, Pt = proj([one, u, v])
+    Xs, Ps = proj([one, u, v, r2])
+    Xa, Pa = proj([one, u, v, r2, u * u - v * v, 2 * u * v])
+    Xr, Pr = proj([one, r2, r2 * r2, r2**3])
+    wt = Ws - (Ws @ Pt.T) @ Xt.T
+    sph = Ws @ Ps.T
+    wi = Ws - sph @ Xs.T
+    ast = Ws @ Pa.T
+    a1, a2 = ast[:, 4], ast[:, 5]
+    rot_part = (wi @ Pr.T) @ Xr.T
     wa = wi - rot_part
     return {
-        "power_fringes": float(sph[3]),
-        "astigmatism_fringes": float(2 * math.hypot(a1, a2)),
-        "astigmatism_axis_deg": float(math.degrees(0.5 * math.atan2(a2, a1)) % 180.0),
-        "irregularity_fringes": float(np.ptp(wi)),
-        "rot_sym_irregularity_fringes": float(np.ptp(rot_part)),
-        "rms_total_fringes": float(np.sqrt(np.mean(wt * wt))),
-        "rms_irregularity_fringes": float(np.sqrt(np.mean(wi * wi))),
-        "rms_asymmetric_fringes": float(np.sqrt(np.mean(wa * wa))),
-        "pv_total_fringes": float(np.ptp(wt)),
+        "power_fringes": sph[:, 3],
+        "astigmatism_fringes": 2 * np.hypot(a1, a2),
+        "astigmatism_axis_deg": np.degrees(0.5 * np.arctan2(a2, a1)) % 180.0,
+        "irregularity_fringes": np.ptp(wi, axis=1),
+        "rot_sym_irregularity_fringes": np.ptp(rot_part, axis=1),
+        "rms_total_fringes": np.sqrt(np.mean(wt * wt, axis=1)),
+        "rms_irregularity_fringes": np.sqrt(np.mean(wi * wi, axis=1)),
+        "rms_asymmetric_fringes": np.sqrt(np.mean(wa * wa, axis=1)),
+        "pv_total_fringes": np.ptp(wt, axis=1),
     }
 
 
@@ -119,6 +137,11 @@ class FormResult:
     k: float = 2.0
     notes: tuple[str, ...] = field(default_factory=tuple)
     budget_rows: dict = field(default_factory=dict)  # term -> ((source, u in fringes), ...)
+    route: str = "one-frame fit"  # how the form was measured (one-frame fit, model fit with piston steps, phase map)
+    zernike_ansi: dict | None = None  # ANSI Z80.28 coefficients over the test diameter (nm)
+    height_map_nm: np.ndarray | None = None  # surface departure less piston and tilt, nm, NaN outside (grid)
+    map_extent_px: tuple | None = None  # (x_left, x_right, y_bottom, y_top) of that grid in frame pixels
+    phase: dict | None = None  # phase-map details (steps, tilts, modulation) when that route was used
 
     def value(self, name: str) -> float:
         return self.terms[name]
@@ -172,6 +195,20 @@ class FormResult:
         d["warnings"] = list(self.warnings)
         d["notes"] = list(self.notes)
         d["elapsed_s"] = self.elapsed_s
+        d["route"] = self.route
+        d["zernike_ansi"] = self.zernike_ansi
+        if self.phase is not None:
+            d["phase_map"] = self.phase
+        if self.height_map_nm is not None:
+            m = self.height_map_nm
+            d["height_map"] = {
+                "unit": "nm of surface height, less piston and tilt; null outside the aperture",
+                "sign": "gap as measured (positive = gap grows)" if self.sign.sign else
+                        "orientation with power >= 0 (sign unknown)",
+                "rows": int(m.shape[0]), "cols": int(m.shape[1]),
+                "extent_px": list(self.map_extent_px) if self.map_extent_px is not None else None,
+                "values": [[None if not np.isfinite(x) else round(float(x), 2) for x in row] for row in m],
+            }
         return d
 
 
@@ -267,7 +304,31 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     fits: list[GapFit] = []
     masks: list[dict] = []
     masked_px = 0
-    for i, fr_ in enumerate(frames):
+    gap_change = (setup.extras or {}).get("gap_change", "increasing")
+    route = "one-frame fit" if len(frames) == 1 else f"model fit with piston steps ({len(frames)} frames)"
+    pm = None
+    if len(frames) >= 3 and (setup.extras or {}).get("form_route", "auto") != "model":
+        # three or more frames: the phase of every pixel from the frames' unknown steps (Wang-Han), no model
+        say(0.05, f"phase map from {len(frames)} frames")
+        sat0 = None
+        if frames[0].saturated_fraction > 0:
+            from scipy import ndimage
+
+            sat0 = ndimage.binary_dilation(np.asarray(frames[0].data) >= 0.999, iterations=2)
+        try:
+            pm = phase_map([f.data for f in frames], ap.centre_px, ap.radius_px, aspect=aspect,
+                           gap_change=gap_change, exclude=sat0, progress=lambda m: say(0.3, m))
+        except AnalysisError as exc:
+            warnings.append(f"no phase map from the frames ({exc}); each frame was fitted with the gap model")
+    if pm is not None:
+        route = f"phase map from {len(frames)} frames (Wang–Han)"
+        pm_mask = np.zeros(shape0, dtype=bool)
+        x0, y0 = pm.crop_origin_px
+        pm_mask[y0 : y0 + pm.masked.shape[0], x0 : x0 + pm.masked.shape[1]] = pm.masked
+        masks += _masks(pm_mask, (px, py), None, 0)
+        masked_px += int(pm.masked.sum()) * len(frames)
+        warnings += list(pm.notes)
+    for i, fr_ in enumerate(frames if pm is None else ()):
         f0 = 0.05 + 0.85 * i / len(frames)
         say(f0, f"frame {i + 1}/{len(frames)}: fitting the gap")
         data = np.asarray(fr_.data, dtype=np.float32)
@@ -296,7 +357,8 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     # Only an outward move is taken: the ray finder's known failure is reading the rim small when a fringe
     # runs along it, while the model's own edge reads slightly inside on a blurred bright rim.
     fit_radius = ap.radius_px
-    scale = 1.0 if ap.manual else max(1.0, fits[0].edge_scale)  # a hand-set aperture is evaluated as given
+    # a hand-set aperture is evaluated as given; the phase map has no model to extrapolate
+    scale = 1.0 if (ap.manual or pm is not None) else max(1.0, fits[0].edge_scale)
     if scale != 1.0:
         notes.append(f"part edge refined from the fringe model: radius {ap.radius_px:.2f} -> "
                      f"{ap.radius_px * scale:.2f} px")
@@ -316,26 +378,34 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
     k_td = min(1.0, td / ap_diam_mm) * ap.radius_px / fit_radius  # in the fit's normalised radius
     say(0.92, "form terms and their uncertainties")
-    # form terms from the first frame's fit (the other frames only move the piston)
-    g = fits[0]
     uu, vv, un, vn = _disc_grid(k_td)
-    Z = _basis(g, uu, vv)
-    W = g.coeffs @ Z
+    if pm is None:
+        # form terms from the first frame's fit (the other frames only move the piston)
+        g = fits[0]
+        Z = _basis(g, uu, vv)
+        coef, cov, alternatives = g.coeffs, g.covariance, g.alternatives
+        fit_row = "fit (pixel noise)"
+    else:
+        # form terms from the map's Zernike fit (ANSI, n <= 8) over the test diameter
+        coef, cov, map_sign = _map_coefficients(pm, k_td)
+        Z = zernike_fit(np.zeros(un.size), un, vn, MAP_NMAX)[1].T
+        alternatives = {}
+        fit_row = f"phase map: noise and ripple beyond the Zernike fit (n <= {MAP_NMAX})"
+    W = coef @ Z
     terms = form_terms(W, un, vn)
     terms_u: dict = {}
     axis_u = None
-    if g.covariance is not None:
+    if cov is not None:
         rng = np.random.default_rng(12345)  # fixed: the same image always reports the same uncertainty
         try:
-            draws = rng.multivariate_normal(g.coeffs, g.covariance, size=MC_DRAWS, method="eigh")
+            draws = rng.multivariate_normal(coef, cov, size=MC_DRAWS, method="eigh")
         except (np.linalg.LinAlgError, ValueError):
             draws = None
         if draws is not None:
-            samp = [form_terms(d @ Z, un, vn) for d in draws]
+            samp = form_terms_batch(draws @ Z, un, vn)
             for name in FORM_TERMS:
-                vals = np.array([s[name] for s in samp])
-                terms_u[name] = float(np.std(vals, ddof=1))
-            ax = np.array([s["astigmatism_axis_deg"] for s in samp])
+                terms_u[name] = float(np.std(samp[name], ddof=1))
+            ax = samp["astigmatism_axis_deg"]
             dax = (ax - terms["astigmatism_axis_deg"] + 90) % 180 - 90
             axis_u = float(np.std(dax, ddof=1))
     else:
@@ -345,8 +415,8 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     budget_rows: dict = {name: [] for name in FORM_TERMS}
     for name in FORM_TERMS:
         if name in terms_u:
-            budget_rows[name].append(("fit (pixel noise)", terms_u[name]))
-    for label, ca in g.alternatives.items():
+            budget_rows[name].append((fit_row, terms_u[name]))
+    for label, ca in alternatives.items():
         alt = form_terms(ca @ Z, un, vn)
         for name in FORM_TERMS:
             budget_rows[name].append((label, abs(alt[name] - terms[name]) / math.sqrt(3)))
@@ -360,6 +430,19 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     sign = UNKNOWN
     if setup.press_test:
         sign = sign_from_press(setup.press_test)
+    if pm is not None:
+        steps = tuple(pm.steps_fringes[1:])
+        if pm.orientation and map_sign:
+            sf = SignResult(map_sign, None, "frames (phase steps)",
+                            f"{pm.orientation_detail}: the phase map's departure is "
+                            f"{'centre' if map_sign > 0 else 'edge'} contact", steps)
+        else:
+            sf = SignResult(0, None, "frames (phase steps)",
+                            pm.orientation_detail if not pm.orientation else "no power to give a sign to", steps)
+        if sign.method == "press test" and sf.sign and sf.sign != sign.sign:
+            warnings.append("the press-test observation contradicts the frame sequence; the frames are used")
+        if sf.sign or sign.sign == 0:
+            sign = sf
     if len(fits) > 1:
         # every later frame was fitted from the first frame's parameters and keeps its orientation of W
         orient = [1.0] * len(fits)
@@ -393,6 +476,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         radius, rw = _radius_block(terms["power_fringes"], terms_u.get("power_fringes", 0.0), td,
                                    ap, px, setup, plate, sign)
         warnings += rw
+    hmap, hext = _height_map(pm, fits, ap, fr, sign)
     verdict = judge(tol, terms, terms_u, measured_fringe_nm=fr, measured_wavelength_nm=lam,
                     rule=setup.decision_rule, sign_known=bool(sign.sign))
     if verdict.get("wavelength_note"):
@@ -407,7 +491,128 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         warnings=tuple(dict.fromkeys(warnings)), pixel_size_um=(px, py),
         elapsed_s=time.perf_counter() - t0, notes=tuple(notes),
         budget_rows={k: tuple(v) for k, v in budget_rows.items()},
+        route=route,
+        zernike_ansi=_ansi_block(W, un, vn, td, fr),
+        height_map_nm=hmap, map_extent_px=hext,
+        phase=None if pm is None else _phase_dict(pm),
     )
+
+
+MAP_NMAX = 8  # Zernike degree of the phase map's smooth description (45 ANSI terms)
+MAP_GRID = 96  # cells across the height map kept in the result
+
+
+def _map_coefficients(pm: PhaseMap, k_td: float, max_samples: int = 40000):
+    """ANSI Zernike coefficients (fringes) of the phase map over the test disc, their covariance from the
+    misfit beyond the fit (scaled for its correlation at the sampling lattice), and the sign of the power of
+    the map as oriented (0 when the orientation is unknown)."""
+    from .fit import _correlation_factor
+
+    uc, vr = pm.pixel_coords()
+    gap = pm.gap_fringes
+    use = np.isfinite(gap) & ((uc[None, :] ** 2 + vr[:, None] ** 2) <= k_td**2)
+    n_use = int(use.sum())
+    if n_use < 200:
+        raise AnalysisError("the phase map covers too little of the test diameter (under 200 pixels)")
+    st = max(1, int(math.ceil(math.sqrt(n_use / max_samples))))
+    G, U, V, M = gap[::st, ::st], uc[::st], vr[::st], use[::st, ::st]
+    iy, ix = np.nonzero(M)
+    un, vn = U[ix] / k_td, V[iy] / k_td
+    w = G[iy, ix]
+    coef, X = zernike_fit(w, un, vn, MAP_NMAX)
+    res = w - X @ coef
+    dof = max(1, w.size - coef.size)
+    rmap = np.zeros(M.shape)
+    rmap[iy, ix] = res
+    corr = _correlation_factor(rmap, M, 1)
+    cov = np.linalg.inv(X.T @ X) * float(res @ res) / dof * corr
+    # power of the map as oriented: ANSI Z(2,0) = sqrt(3)(2 rho^2 - 1) -> rho^2 coefficient 2 sqrt(3) c
+    # (sign only; the reported power comes from the least-squares rho^2 fit in form_terms)
+    p2 = coef[4] if len(coef) > 4 else 0.0
+    sign = 0 if not pm.orientation else (1 if p2 >= 0 else -1)
+    if sign < 0 or (not pm.orientation and p2 < 0):
+        coef = -coef  # report in the power >= 0 orientation; the sign is carried separately
+    return coef, cov, sign
+
+
+def _ansi_block(W, un, vn, td_mm, fringe_nm) -> dict:
+    """The form as ANSI Z80.28 Zernike coefficients over the test diameter (nm of surface height)."""
+    coef, _ = zernike_fit(np.asarray(W, dtype=float), un, vn, 6)
+    rows = []
+    for j, c in enumerate(coef):
+        n_, m_ = ansi_nm(j)
+        rows.append({"j": j, "n": n_, "m": m_, "nm": float(c * fringe_nm)})
+    return {
+        "ordering": "ANSI Z80.28 / ISO 24157 single index j = (n(n+2)+m)/2",
+        "normalisation": "orthonormal over the unit disc: N = sqrt(2(n+1)/(1+δm0)); cos for m > 0, sin for m < 0",
+        "angle": "from the image x axis (columns) toward y (rows, down)",
+        "diameter_mm": float(td_mm),
+        "orientation": "power >= 0 (apply power_sign for the surface's sense)",
+        "terms": rows,
+    }
+
+
+def _height_map(pm, fits, ap, fringe_nm, sign):
+    """The surface departure less piston and tilt on a grid of at most MAP_GRID cells across (nm)."""
+    s = sign.sign if sign.sign else 1
+    if pm is not None:
+        uc, vr = pm.pixel_coords()
+        gap = pm.gap_fringes
+        st = max(1, int(math.ceil(max(gap.shape) / MAP_GRID)))
+        G = gap[::st, ::st]
+        U, V = np.meshgrid(uc[::st], vr[::st])
+        ok = np.isfinite(G)
+        if ok.sum() < 10:
+            return None, None
+        X = np.stack([np.ones(ok.sum()), U[ok], V[ok]], axis=1)
+        c, *_ = np.linalg.lstsq(X, G[ok], rcond=None)
+        out = np.full(G.shape, np.nan)
+        vals = G[ok] - X @ c
+        # the map as oriented by the steps; with the sign unknown, shown with power >= 0
+        if not pm.orientation:
+            r2 = U[ok] ** 2 + V[ok] ** 2
+            if np.polyfit(r2, vals, 1)[0] < 0:
+                vals = -vals
+        out[ok] = vals * fringe_nm
+        x0, y0 = pm.crop_origin_px
+        xs = np.arange(x0, x0 + gap.shape[1])[::st]
+        ys = np.arange(y0, y0 + gap.shape[0])[::st]
+        return out, (float(xs[0]), float(xs[-1]), float(ys[-1]), float(ys[0]))
+    if not fits:
+        return None, None
+    from .fit import gap_basis
+
+    f = fits[0]
+    n = MAP_GRID
+    cx, cy = f.centre_px
+    r, aspect = float(f.radius_px), float(f.aspect or 1.0)
+    xs = np.linspace(cx - r, cx + r, n)
+    ys = np.linspace(cy - r / aspect, cy + r / aspect, n)
+    X, Y = np.meshgrid(xs, ys)
+    u, v = (X - cx) / r, (Y - cy) * aspect / r
+    inside = u * u + v * v <= 1.0
+    coeffs = np.asarray(f.coeffs, dtype=float).copy()
+    coeffs[:3] = 0.0  # less piston and tilt
+    out = np.full(u.shape, np.nan)
+    out[inside] = s * (coeffs @ gap_basis(u[inside], v[inside], len(coeffs))) * fringe_nm
+    return out, (float(xs[0]), float(xs[-1]), float(ys[-1]), float(ys[0]))
+
+
+def _phase_dict(pm: PhaseMap) -> dict:
+    return {
+        "method": "advanced iterative algorithm (Wang & Han, Opt. Lett. 29, 1671, 2004) with per-frame piston "
+                  "and tilt, started by principal components (Vargas et al., Opt. Lett. 36, 1326, 2011); "
+                  "unwrapped with skimage.restoration.unwrap_phase",
+        "frames": pm.n_frames,
+        "steps_fringes": list(pm.steps_fringes),
+        "tilt_changes_fringes_per_radius": [list(t) for t in pm.tilts_fringes],
+        "orientation_from_steps": {1: "as stated gap change", -1: "reversed", 0: "undecided"}[pm.orientation],
+        "orientation_detail": pm.orientation_detail,
+        "fringe_visibility": pm.modulation,
+        "phase_noise_fringes": None if not math.isfinite(pm.phase_noise_fringes) else pm.phase_noise_fringes,
+        "iterations": pm.iterations,
+        "converged": pm.converged,
+    }
 
 
 def _basis(g: GapFit, u, v):

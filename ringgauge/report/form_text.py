@@ -50,6 +50,12 @@ def format_form(d: dict, *, skip_warnings=()) -> str:
         f"(± {k * ap.get('diameter_u_mm', 0):.3f} mm), centre ({ap['centre_px'][0]:.1f}, {ap['centre_px'][1]:.1f}) px"
     )
     out.append(f"  test diameter evaluated: Ø {d['test_diameter_mm']:.3f} mm ({d['test_diameter_source']})")
+    if d.get("route"):
+        out.append(f"  measured by: {d['route']}")
+    pmap = d.get("phase_map")
+    if pmap:
+        steps = ", ".join(f"{x:+.3f}" for x in pmap.get("steps_fringes", [])[1:])
+        out.append(f"  frame steps from frame 1: {steps} fringe; fringe visibility {pmap.get('fringe_visibility', 0):.2f}")
     nmask = len(d.get("masks") or [])
     out.append(
         f"  left out: {nmask} region(s) of dust, defects or glare, {100 * d.get('masked_fraction', 0):.2f} % of the "
