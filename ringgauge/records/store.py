@@ -469,6 +469,9 @@ def open_store(target: str | os.PathLike | None = None, *, migrate_to: int | Non
         except sqlite3.DatabaseError as exc:
             raise StoreError(f"{p} is not a ringgauge records store ({exc})") from None
         store = Store(conn, _SQLite(), str(p))
+    import logging
+
+    logging.getLogger("ringgauge.records").info("records store %s (%s)", store.where, store.dialect)
     try:
         store._migrate(migrate_to)
         store._version = store.schema_version()
@@ -746,8 +749,16 @@ class Store:
         by_row: dict[tuple[str, int], tuple] = {}
         last_id: dict[str, int] = {}
         legacy = 0
-        for seq, tbl, rid, rh, ph, eh, kid, mac, leg in entries:
-            seq, rid = int(seq), int(rid)
+        for raw_entry in entries:
+            try:
+                seq, tbl, rid, rh, ph, eh, kid, mac, leg = raw_entry
+                seq, rid = int(seq), int(rid)
+                if not all(isinstance(x, str) for x in (tbl, rh, ph, eh)):
+                    raise TypeError
+            except (TypeError, ValueError):
+                rep.add(None, None, "DAMAGED", f"chain entry {raw_entry[0]!r} is damaged (its fields are not what "
+                        "ringgauge writes)")
+                continue
             legacy += bool(leg)
             if seq != expect:
                 rep.add(None, None, "MISSING", f"chain entries {expect}–{seq - 1} are missing (rows and their "
@@ -786,7 +797,11 @@ class Store:
                 c.close()
             seen = set()
             for row in rows:
-                rid = int(row["id"])
+                try:
+                    rid = int(row["id"])
+                except (TypeError, ValueError):
+                    rep.add(tbl, None, "DAMAGED", f"a row of {tbl} has a damaged id {row.get('id')!r}")
+                    continue
                 seen.add(rid)
                 if tbl == "inspection":
                     rep.records += 1

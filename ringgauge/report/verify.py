@@ -280,9 +280,10 @@ def _signature_checks(v: Verification, path: Path) -> None:
 
 def _store_checks(v: Verification, content: dict, digest: str, store) -> None:
     try:
-        doc = store.document(v.number)
-    except RinggaugeError:
-        v.check(False, f"issued: document {v.number} is not in the records store {store.where}")
+        doc = store.document(str(v.number))
+    except RinggaugeError as exc:
+        v.check(False, f"issued: document {v.number} is not in the records store {store.where}"
+                if "no certificate or lot report numbered" in str(exc) else f"issued: {exc}")
         return
     files = store.issued_files(v.number)
     same_content = doc.content_sha256 == digest
@@ -388,7 +389,8 @@ def verify_pdf(path: str | os.PathLike, store=None) -> Verification:
         pages = [_norm(" ".join(t for _, _, t in sorted(rs, key=lambda r: (-r[1], r[0])))) for rs in runs]
         meta = reader.metadata or {}
         att = reader.attachments
-    except (PdfReadError, OSError, ValueError, KeyError, TypeError, AttributeError) as exc:
+    except (PdfReadError, OSError, ValueError, KeyError, TypeError, AttributeError, IndexError, RecursionError,
+            AssertionError, NotImplementedError, LookupError, ArithmeticError) as exc:
         raise InputError(f"{p}: not a readable PDF ({type(exc).__name__})") from None
     v.pages = len(pages)
     _signature_checks(v, p)
@@ -443,7 +445,11 @@ def verify_pdf(path: str | os.PathLike, store=None) -> Verification:
             if not missing else f"printed cells: {len(missing)} row(s) not printed as the content says: "
             + "; ".join(missing[:4]))
     if store is not None and v.number:
-        _store_checks(v, content, digest, store)
+        try:
+            _store_checks(v, content, digest, store)
+        except (KeyError, TypeError, AttributeError, ValueError, IndexError) as exc:
+            v.check(False, f"record: the embedded content lacks what the store check needs ({type(exc).__name__}: "
+                           f"{str(exc)[:80]})")
     elif not v.signed:
         v.check(False, "issued: unsigned, and no records store to compare with — an unsigned copy cannot be "
                        "verified on its own (give --db)")

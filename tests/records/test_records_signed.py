@@ -347,3 +347,22 @@ def test_pdftoppm_renders_the_signed_certificate(issued, tmp_path):
     if out.returncode == 127:
         pytest.skip("pdftoppm not installed")
     assert out.returncode == 0 and (tmp_path / "page-1.png").exists()
+
+
+def test_hostile_files_give_one_line(issued, tmp_path, capsys):
+    store, rec, doc, path = issued
+    data = path.read_bytes()
+    cases = {"garbage.pdf": b"%PDF-1.4\n" + bytes(range(256)) * 40, "half.pdf": data[: len(data) // 2],
+             "empty.pdf": b""}
+    for name, blob in cases.items():
+        (tmp_path / name).write_bytes(blob)
+        code = main(["certificate", "verify", str(tmp_path / name), "--db", store.where])
+        out, err = capsys.readouterr()
+        assert code in (1, 2) and "Traceback" not in out + err, (name, out, err)
+        assert err.count("\n") == 1 and err.startswith("ringgauge: "), (name, err)
+    # embedded content that is JSON but not a document's: named failures, no crash
+    w = PdfWriter(str(path), incremental=True)
+    w.add_attachment("ringgauge-content.json", json.dumps({"number": doc.number, "kind": "certificate"}).encode())
+    w.write(str(tmp_path / "odd.pdf"))
+    v = verify_pdf(tmp_path / "odd.pdf", store)
+    assert not v.ok and "whole file" in v.failed()

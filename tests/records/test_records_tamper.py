@@ -358,3 +358,13 @@ def test_reanalysed_correction_measures_the_image_again(sqlite_path, capsys, tmp
         new = s.get(2)
         assert new.origin == "re-analysed" and new.radius_mm == pytest.approx(res["radius_mm"], rel=1e-9)
         assert s.check().ok
+
+
+def test_damaged_chain_entry_is_reported(filled, capsys):
+    con = raw(filled)
+    drop_guards(con, "chain")
+    con.execute("UPDATE chain SET row_id = 'two' WHERE seq = 2")
+    con.commit()
+    con.close()
+    code, out, err = run(capsys, "records", "check", "--db", str(filled))
+    assert code == 1 and "chain entry 2 is damaged" in out and "Traceback" not in out + err
