@@ -57,6 +57,7 @@ def issue_certificate(store: Store, record_id: int, out: str | Path, shop: dict,
     """Issue (or reprint) the certificate of a record; returns (document, path, reprinted)."""
     from ..report.pdf import certificate_content, render_certificate
 
+    signer = prepare_signer(shop)
     rec = store.get(record_id)
     if not rec.intact():
         raise InputError(f"record {rec.id} fails its integrity check (its stored content was altered); "
@@ -75,7 +76,7 @@ def issue_certificate(store: Store, record_id: int, out: str | Path, shop: dict,
     image01, note = load_record_image(rec)
     path = render_certificate(doc.content, out, paper=paper or shop.get("paper") or "A4", result=rec.result,
                               image01=image01, image_note=note)
-    sign_and_keep(store, doc, path, shop)
+    sign_and_keep(store, doc, path, shop, signer)
     return doc, path, reprint
 
 
@@ -86,6 +87,7 @@ def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, pap
     from ..report.pdf import lot_report_content, render_lot_report
     from .lot import chart_png
 
+    signer = prepare_signer(shop)
     records = store.find(RecordFilter(lot=lot))
     if not records:
         raise InputError(f"lot {lot!r} has no records in {store.where}; run 'ringgauge batch' first")
@@ -96,7 +98,7 @@ def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, pap
     content = lot_report_content(records, summary, shop, tolerance=tol, approver=approver)
     doc = store.issue("lot report", content, lot=lot, prefix=shop.get("certificate_prefix") or "RG")
     path = render_lot_report(doc.content, out, paper=paper or shop.get("paper") or "A4")
-    sign_and_keep(store, doc, path, shop)
+    sign_and_keep(store, doc, path, shop, signer)
     if chart_out is not None and summary.charts:
         chart_png(summary.charts, chart_out, title=f"Lot {lot}")
     return doc, path
@@ -117,6 +119,7 @@ def reprint(store: Store, number: str, out: str | Path, *, paper: str = "A4") ->
     from ..report.pdf import render_certificate, render_lot_report
 
     doc = store.document(number)
+    signer = prepare_signer({})
     if doc.kind == "lot report":
         path = render_lot_report(doc.content, out, paper=paper)
     else:
@@ -124,7 +127,7 @@ def reprint(store: Store, number: str, out: str | Path, *, paper: str = "A4") ->
         image01, note = load_record_image(rec)
         path = render_certificate(doc.content, out, paper=paper, result=rec.result, image01=image01,
                                   image_note=note)
-    sign_and_keep(store, doc, path, {})
+    sign_and_keep(store, doc, path, {}, signer)
     return doc, path
 
 
@@ -141,14 +144,31 @@ def _refuse_broken_record(store: Store, record_id: int) -> None:
                          "no document can be issued for it")
 
 
-def sign_and_keep(store: Store, doc: IssuedDocument, path: Path, shop: dict) -> str:
-    """Sign the written PDF with the shop's key and keep its SHA-256 in the store; returns the fingerprint."""
-    import hashlib
-
-    from ..report.signing import ensure_key, sign_pdf_file, signature_box
+def prepare_signer(shop: dict):
+    """The shop's signer, ready before anything is numbered or written (a key is made if there is none; a
+    passphrase is asked for now), so a key that cannot be used stops the issue before it starts."""
+    from ..report.signing import ensure_key, load_signer
 
     ensure_key(shop)
-    fp = sign_pdf_file(path, reason=f"{doc.kind.capitalize()} {doc.number} issued",
-                       location=", ".join((shop.get("address") or [])[-1:]) or None, box=signature_box(path))
-    store.record_file(doc.number, hashlib.sha256(Path(path).read_bytes()).hexdigest(), signed=True, signer=fp)
+    return load_signer()
+
+
+def sign_and_keep(store: Store, doc: IssuedDocument, path: Path, shop: dict, signer=None) -> str:
+    """Sign the written PDF with the shop's key and keep its SHA-256 in the store; returns the fingerprint.
+
+    If signing or keeping fails, the unsigned file is removed: no unsigned copy is left looking issued."""
+    import hashlib
+
+    from ..report.signing import sign_pdf_file, signature_box
+
+    try:
+        if signer is None:
+            signer = prepare_signer(shop)
+        fp = sign_pdf_file(path, reason=f"{doc.kind.capitalize()} {doc.number} issued",
+                           location=", ".join((shop.get("address") or [])[-1:]) or None, box=signature_box(path),
+                           signer=signer)
+        store.record_file(doc.number, hashlib.sha256(Path(path).read_bytes()).hexdigest(), signed=True, signer=fp)
+    except BaseException:
+        Path(path).unlink(missing_ok=True)
+        raise
     return fp

@@ -270,6 +270,13 @@ def ensure_key(shop: dict, *, say=None) -> KeyInfo:
     return info
 
 
+def load_signer():
+    """The shop's signer (asks for the key's passphrase when it is encrypted)."""
+    if not has_key():
+        raise SigningError("the shop has no signing key yet; make one with 'ringgauge shop keygen'")
+    return _signer()
+
+
 def _signer():
     from cryptography.hazmat.primitives import serialization
     from pyhanko.sign import signers
@@ -295,7 +302,7 @@ def _signer():
 
 
 def sign_pdf_file(path: str | os.PathLike, *, reason: str, location: str | None = None,
-                  box: tuple[float, float, float, float] | None = None) -> str:
+                  box: tuple[float, float, float, float] | None = None, signer=None) -> str:
     """Sign the PDF at ``path`` in place (atomically); returns the signer's certificate fingerprint.
 
     ``box`` places a visible signature panel on the last page (points); without it the signature is invisible
@@ -306,7 +313,7 @@ def sign_pdf_file(path: str | os.PathLike, *, reason: str, location: str | None 
     from pyhanko.sign.signers.pdf_signer import PdfSignatureMetadata
 
     p = Path(path)
-    signer = _signer()
+    signer = signer or _signer()
     data = p.read_bytes()
     w = IncrementalPdfFileWriter(io.BytesIO(data), strict=False)
     meta = PdfSignatureMetadata(field_name=FIELD_NAME, reason=reason, location=location or None,
@@ -334,9 +341,7 @@ def sign_pdf_file(path: str | os.PathLike, *, reason: str, location: str | None 
     except OSError as exc:
         tmp.unlink(missing_ok=True)
         raise InputError(f"cannot write {p} ({exc.strerror or exc})") from None
-    from cryptography.hazmat.primitives.serialization import Encoding
-
-    return fingerprint(shop_certificates()[0].public_bytes(Encoding.DER))
+    return fingerprint(signer.signing_cert.dump())
 
 
 def signature_box(path: str | os.PathLike) -> tuple[float, float, float, float] | None:

@@ -366,3 +366,30 @@ def test_hostile_files_give_one_line(issued, tmp_path, capsys):
     w.write(str(tmp_path / "odd.pdf"))
     v = verify_pdf(tmp_path / "odd.pdf", store)
     assert not v.ok and "whole file" in v.failed()
+
+
+def test_passphrase_key_and_key_replacement(tmp_path, make_result, monkeypatch, capsys):
+    """A key with a passphrase signs only with it (nothing numbered or left behind without it); a replaced key
+    keeps older documents verifying (its certificate moves to the trust list)."""
+    from ringgauge.report import signing
+
+    monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
+    monkeypatch.setenv("RINGGAUGE_KEY_PASSPHRASE", "long enough phrase")
+    signing.keygen("Fernhill Optical Workshop", passphrase=b"long enough phrase")
+    assert signing.key_info().encrypted and b"ENCRYPTED" in signing.key_path().read_bytes()
+    assert signing.key_path().stat().st_mode & 0o777 == 0o600
+    with open_store(tmp_path / "r.sqlite") as s:
+        rec = s.add(RecordMeta(serial="1"), make_result("1"))
+        monkeypatch.setenv("RINGGAUGE_KEY_PASSPHRASE", "wrong phrase!")
+        with pytest.raises(signing.SigningError, match="wrong or missing passphrase"):
+            issue_certificate(s, rec.id, tmp_path / "c.pdf", SHOP)
+        assert not (tmp_path / "c.pdf").exists() and s.documents(record_id=rec.id) == []
+        monkeypatch.setenv("RINGGAUGE_KEY_PASSPHRASE", "long enough phrase")
+        _, old, _ = issue_certificate(s, rec.id, tmp_path / "c.pdf", SHOP)
+        monkeypatch.delenv("RINGGAUGE_KEY_PASSPHRASE")
+        signing.keygen("Fernhill Optical Workshop", replace=True)
+        _, new, _ = issue_certificate(s, rec.id, tmp_path / "c2.pdf", SHOP, new_issue=True)
+        v_old, v_new = verify_pdf(old, s), verify_pdf(new, s)
+        assert v_old.ok and v_new.ok and v_old.signer != v_new.signer
+    assert main(["shop", "trust", "list"]) == 0
+    assert capsys.readouterr().out.count("extra") == 1
