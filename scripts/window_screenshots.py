@@ -52,6 +52,8 @@ def main() -> int:
                                          operator="J.V."))
     win.bench.setup_panel.refresh()
     win.showMaximized()
+    # without a window manager (Xvfb) "maximised" is not applied: fill the screen by hand
+    win.setGeometry(QGuiApplication.primaryScreen().availableGeometry())
     OUT.mkdir(parents=True, exist_ok=True)
 
     def pump(seconds: float, until=None) -> None:

@@ -10,6 +10,7 @@ from typing import Any
 
 import numpy as np
 
+from ..report.labels import term_label
 from ..uncertainty import format_value, round_uncertainty
 
 
@@ -445,7 +446,7 @@ def verdict_view(d: dict | None) -> VerdictView:
     terms = []
     for t in v.get("terms", []) or []:
         if isinstance(t, dict):
-            name = str(t.get("term") or t.get("name") or "term").replace("_", " ")
+            name = term_label(str(t.get("term") or t.get("name") or "term"))  # the trade's name, not the key
             status = str(t.get("status") or t.get("verdict") or "").upper()
             val = _num(t.get("value", t.get("value_fringes")))
             lim = _num(t.get("limit", t.get("limit_fringes")))

@@ -141,6 +141,10 @@ class PlotPanel(QTabWidget):
         ax.set_ylabel("form / nm")
         ax.set_title("Form job, no ring orders: the form map (less piston, tilt) along the radius", fontsize=9)
         ax.legend(loc="best", fontsize=8)
+        try:
+            c.figure.tight_layout(pad=0.3)  # a short strip: keep the axis titles inside it
+        except ValueError:
+            pass
         c.shown()
 
     def _profile(self, d) -> None:

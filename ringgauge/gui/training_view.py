@@ -54,6 +54,7 @@ class TrainingPage(QWidget):
         top = QHBoxLayout()
         self.trainee = QLineEdit()
         self.trainee.setPlaceholderText("Trainee name")
+        self.trainee.setMinimumWidth(self.trainee.fontMetrics().horizontalAdvance("New starter 10") + 16)
         if prefs is not None:
             self.trainee.setText(str(prefs.get("training/trainee", "")))
         self.level = QComboBox()
@@ -61,12 +62,16 @@ class TrainingPage(QWidget):
             self.level.addItem(lv.title, k)
         self.level.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)  # the level's name whole
         self.b_new = QPushButton("New exercise")
+        # two rows, so the trainee's name and the level's full name both fit on a 1024 px screen
         top.addWidget(QLabel("Trainee"))
         top.addWidget(self.trainee, 1)
-        top.addWidget(QLabel("Level"))
-        top.addWidget(self.level, 0)
         top.addWidget(self.b_new)
         left.addLayout(top)
+        row = QHBoxLayout()
+        row.addWidget(QLabel("Level"))
+        row.addWidget(self.level, 0)
+        row.addStretch(1)
+        left.addLayout(row)
         self.brief = QLabel("Press “New exercise” to get a practice interferogram.")
         self.brief.setWordWrap(True)
         self.brief.setObjectName("imageTitle")

@@ -202,7 +202,9 @@ class MainWindow(QMainWindow):
         self.bench.view.centrePicked.connect(self._centre_picked)
         self.bench.view.aperturePicked.connect(self._aperture_picked)
         self.session.changed.connect(self._on_session)
-        self.resize(QSize(1280, 800))
+        screen = self.screen().availableGeometry() if self.screen() is not None else None
+        # 1280 x 800 where the screen allows, never larger than the screen (a 1024 x 700 bench PC)
+        self.resize(QSize(min(1280, screen.width()) if screen else 1280, min(800, screen.height()) if screen else 800))
         geo = self.prefs.get("window/geometry")
         if geo is not None:
             self.restoreGeometry(geo)
@@ -364,10 +366,16 @@ class MainWindow(QMainWindow):
         self.tabs.setCurrentWidget(self.bench)
         try:
             self.session.open_paths(paths)
-        except RinggaugeError as exc:
+        except Exception as exc:  # noqa: BLE001 - a file the loader chokes on is a message, never a dead window
+            from .worker import describe_failure
+
+            why = describe_failure(exc)  # the loader's own words; anything unexpected is logged as well
+            name = os.path.basename(os.fspath(paths[0])) if paths else ""
+            if name and name not in why:
+                why = f"{name}: {why}"
             # what was on show belongs to another part: it goes, and the banner says why
-            self.session.refuse(f"image not opened: {exc}")
-            self.show_problem(f"{exc} — the previous image and its result were closed")
+            self.session.refuse(f"image not opened: {why}")
+            self.show_problem(f"{why} — the previous image and its result were closed")
             return False
         self.bench.show_notice("")
         for p in paths:

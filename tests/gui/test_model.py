@@ -157,7 +157,7 @@ def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     assert rows["Wavelength λ"].unit == "nm" and rows["Pixel size x"].unit == "µm"
     v = display.verdict_view(d)
     assert (v.word, v.tone, v.decision_rule) == ("CONDITIONAL PASS", "conditional", "simple acceptance")
-    assert v.terms == ("power: CONDITIONAL PASS (2.90 ± 0.20 fringes, limit 3 fringes)",)
+    assert v.terms == ("power (A): CONDITIONAL PASS (2.90 ± 0.20 fringes, limit 3 fringes)",)
     assert v.explanation == "within U of a limit"
     for overall, word in (("pass", "PASS"), ("fail", "FAIL"), ("conditional fail", "CONDITIONAL FAIL")):
         assert display.verdict_view({"verdict": {"overall": overall}}).word == word

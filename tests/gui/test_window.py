@@ -147,7 +147,7 @@ def test_real_form_evaluation_gives_a_verdict_that_follows_the_tolerance(app, qt
     assert cut_texts(w.bench.results) == []  # the form's longer names fit whole, every row (not only those in view)
     # astigmatism after the best-fit sphere is irregularity: 0.6 fringe of it fails B = 0.5
     assert w.bench.results.banner.word.text() == "FAIL" and w.bench.results.banner.tone == "fail"
-    assert "irregularity: FAIL" in w.bench.results.banner.explain.text()
+    assert "irregularity (B): FAIL" in w.bench.results.banner.explain.text()
     assert "Decision rule: simple acceptance" in w.bench.results.banner.rule.text()
     value, U, unit = w.bench.results.value_of("Power (A)")
     assert unit == "fringes" and float(value) == pytest.approx(form["power_fringes"], abs=1e-3)

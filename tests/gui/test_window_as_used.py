@@ -65,6 +65,7 @@ def test_no_cut_text_in_the_setup_panel_or_the_results_at_both_sizes(app, qtbot,
     assert bar.tabRect(2).right() <= bar.width()
     # the verdict names the trade's term, never the internal key
     assert "rot_sym" not in w.bench.results.banner.explain.text()
+    assert "rotationally symmetric irregularity (C): PASS" in w.bench.results.banner.explain.text()
     # the training page: the level's name and the reading's fields whole
     w.tabs.setCurrentWidget(w.training)
     w.training.level.setCurrentIndex(w.training.level.findData("bench"))
