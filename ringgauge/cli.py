@@ -132,7 +132,9 @@ def main(argv: list[str] | None = None) -> int:
             from .imaging import set_pixel_budget
 
             set_pixel_budget(args.max_megapixels)
-        return int(args.func(args) or 0)
+        code = int(args.func(args) or 0)
+        log.info("%s finished (exit %d)", getattr(args, "command", ""), code)
+        return code
     except RinggaugeError as exc:
         print(f"ringgauge: {exc}", file=sys.stderr)
         log.error("%s (exit %d)", exc, exc.exit_code, extra={logs.FILE_ONLY: True})

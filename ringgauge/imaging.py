@@ -396,6 +396,8 @@ def load_frame(path: str | os.PathLike, *, max_megapixels: float | None = None) 
     if header.complex_valued:
         raise ImageError(f"{p}: the TIFF holds complex numbers, not intensities; save the intensity as a greyscale "
                          "image")
+    logging.getLogger("ringgauge.imaging").debug("%s: %s header %dx%d, %s page(s), %d bytes", p, header.format,
+                                                 header.width, header.height, header.pages or "several", len(data))
     notes: list[str] = []
     if header.pages != 1:
         count = f"{header.pages} pages" if header.pages else "several pages"

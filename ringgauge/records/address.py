@@ -158,6 +158,8 @@ def parse_address(target: str | os.PathLike | None, *, option: str = "--db") -> 
     if not isinstance(target, str):
         raise AddressError(f"{option} must be text, got {type(target).__name__}")
     text = target.strip()
+    if len(text) > 4096:
+        raise AddressError(f"{option} is {len(text)} characters long; a store address has at most 4096")
     if not text:
         raise AddressError(f"{option} is empty; give a SQLite file or a postgresql:// server address")
     if any(ord(c) < 32 or ord(c) == 127 for c in text):

@@ -343,5 +343,9 @@ def _record(store: Store, run: LotRun, meta: RecordMeta, job, result, failure, s
     run.recorded += 1
     run.failed += int(failure is not None)
     run.record_ids.append(rec.id)
+    import logging
+
+    logging.getLogger("ringgauge.batch").info("%s: record %d%s", path, rec.id,
+                                              f" (failed: {failure})" if failure is not None else "")
     if bar:
         bar.update(failed=failure is not None)
