@@ -86,6 +86,12 @@ class SettleDetector:
         return len(self._hist) >= self.n and motion <= self.tol, motion
 
 
+#: largest ring motion between two frames that is read as it looks, fringes: a frame samples the ring motion, and
+#: motion near half a fringe per frame cannot be told from the same motion the other way (as a wheel in a film
+#: seems to turn backwards), so faster steps are not used for the sign
+SAFE_STEP_FRINGES = 0.3
+
+
 @dataclass
 class Episode:
     first_frame: int
@@ -93,14 +99,23 @@ class Episode:
     kind: str  # "settling" (before the part first came to rest) or "press" (motion starting from rest)
     reading: dict | None = None
     path: list = field(default_factory=list)  # (frame, fringes moved since the start)
+    safe_start: float = 0.0  # phase where the current run of slow steps began
+    safe_first_frame: int = 0
+    fast_steps: int = 0
 
 
 class MotionSign:
     """The power's sign from which way the rings move while the gap closes.
 
     Feed every tracked frame with its index, the tracked phase (grows when the rings move in) and whether the
-    part is settled. An episode starts with the first frame and whenever the part leaves rest; once its rings
-    have moved ``min_fringes`` from where they started, the direction is read once for that episode.
+    part is settled. An episode starts with the first frame and whenever the part leaves rest.
+
+    * Settling (the part laid down, the film thinning): the film closes fastest at first — often faster than the
+      camera can follow — and slows to a stop, so the direction is read when the part comes to rest, from the
+      last run of slow steps (each under ``SAFE_STEP_FRINGES``), if the rings moved ``min_fringes`` in it.
+    * A press from rest starts slowly: the direction is read once the rings have moved ``min_fringes`` in slow
+      steps from where they stood. A press too quick for the camera gives no reading (the release that follows
+      moves the rings back and must not be read as the press).
     """
 
     def __init__(self, min_fringes: float = SIGN_MIN_FRINGES):
@@ -120,24 +135,23 @@ class MotionSign:
             # motion from the start, or the part left rest: the episode starts where the rings last stood
             start = self._last_phase if self._last_phase is not None else phase
             first = self._last_frame if self._last_frame is not None else frame
-            self._open = Episode(first, start, "press" if self._seen_rest else "settling")
+            self._open = Episode(first, start, "press" if self._seen_rest else "settling", safe_start=start,
+                                 safe_first_frame=first)
             self.episodes.append(self._open)
         ep = self._open
         if ep is not None:
             moved = (phase - ep.start_phase) / TWO_PI
             ep.path.append((frame, moved))
-            if ep.reading is None and abs(moved) >= self.min_fringes:
-                rings = "in" if moved > 0 else "out"
-                ep.reading = {
-                    "event": ep.kind,
-                    "first_frame": ep.first_frame,
-                    "read_at_frame": frame,
-                    "rings": rings,
-                    "fringes_moved": round(moved, 3),
-                    "gap": "closing (assumed: settling or pressing)",
-                    "power_sign": "+" if rings == "out" else "-",
-                    "meaning": "centre contact" if rings == "out" else "edge contact",
-                }
+            step = 0.0 if self._last_phase is None else (phase - self._last_phase) / TWO_PI
+            if abs(step) > SAFE_STEP_FRINGES:
+                ep.fast_steps += 1
+                ep.safe_start, ep.safe_first_frame = phase, frame  # slow steps count again from here
+            safe = (phase - ep.safe_start) / TWO_PI
+            if ep.reading is None and abs(safe) >= self.min_fringes:
+                if ep.kind == "press" and ep.fast_steps == 0:
+                    ep.reading = self._reading(ep, frame, safe)
+                elif ep.kind == "settling" and settled:
+                    ep.reading = self._reading(ep, frame, safe)
             if settled:
                 self._open = None
         if settled:
@@ -145,6 +159,22 @@ class MotionSign:
         self._was_settled = settled
         self._last_phase = phase
         self._last_frame = frame
+
+    @staticmethod
+    def _reading(ep: Episode, frame: int, moved: float) -> dict:
+        rings = "in" if moved > 0 else "out"
+        return {
+            "event": ep.kind,
+            "first_frame": ep.first_frame,
+            "read_from_frame": ep.safe_first_frame,
+            "read_at_frame": frame,
+            "rings": rings,
+            "fringes_moved": round(moved, 3),
+            "fast_steps_left_out": ep.fast_steps,
+            "gap": "closing (assumed: settling or pressing)",
+            "power_sign": "+" if rings == "out" else "-",
+            "meaning": "centre contact" if rings == "out" else "edge contact",
+        }
 
     @property
     def readings(self) -> list[dict]:
@@ -160,6 +190,10 @@ class MotionSign:
     def detail(self) -> str:
         rs = self.readings
         if not rs:
+            if self._open is not None and self._open.kind == "press" and self._open.fast_steps:
+                return "the rings moved too fast for the camera to read: press more slowly"
+            if self._open is not None and self._open.kind == "settling":
+                return "the part is settling: the sign is read when the rings come to rest"
             return "no ring motion seen yet: let the part settle, or press it gently"
         signs = {r["power_sign"] for r in rs}
         if len(signs) > 1:

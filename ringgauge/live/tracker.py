@@ -189,13 +189,10 @@ class RingTracker:
         phase = float(p[3]) + (math.pi if m_med < 0 else 0.0)
         if self.phase_unwrapped is None:
             un = math.remainder(phase, 2 * math.pi)
-            self._velocity = 0.0
         else:
-            # unwrapped against the phase predicted from the last two frames (constant ring speed), so rings moving
-            # up to half a fringe per frame faster or slower than in the last frame stay on the right fringe
-            pred = self.phase_unwrapped + self._velocity
-            un = pred + math.remainder(phase - pred, 2 * math.pi)
-            self._velocity = un - self.phase_unwrapped
+            # the nearest fringe to the last frame's: motion faster than half a fringe per frame is aliased (the
+            # sign reader leaves such steps out rather than guess)
+            un = self.phase_unwrapped + math.remainder(phase - self.phase_unwrapped, 2 * math.pi)
         self.phase_unwrapped = un
         self.p = p
         # statistical uncertainty of q from the fit (covariance scaled by the residual variance)

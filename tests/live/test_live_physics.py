@@ -51,3 +51,20 @@ def test_closing_gap_moves_rings_as_the_textbook_says(tmp_path, contact, sign, r
     assert np.allclose(per_frame, expect, atol=0.005), per_frame
     # the radius is the sphere's (r² = m λ R for dark rings in air)
     assert abs(states[-1].radius_mm - R_MM) <= states[-1].radius_U_mm
+
+
+@pytest.mark.parametrize("contact,sign", [("centre", "+"), ("edge", "-")])
+def test_settling_faster_than_the_camera_gives_no_wrong_sign(tmp_path, contact, sign):
+    # The film first closes by 0.77 fringe per frame: sampled once a frame that looks like 0.23 fringe the other
+    # way (the stroboscopic effect; Nyquist: motion above half a fringe per frame is aliased). The reading must
+    # come from the slow end of the settling, never from the aliased start.
+    t0 = [300.0 + 1320.0 * max(0.0, 1 - i / 12) ** 2 for i in range(30)]
+    steps = -np.diff(t0) * 2 / LAM_NM
+    assert steps[0] > 0.5  # the generated start is indeed faster than half a fringe per frame
+    two_beam_frames(tmp_path, contact, t0)
+    with open_source(str(tmp_path)) as src:
+        s = LiveSession(src, default_setup(PIX_UM, "mercury-e"))
+        states = list(s)
+    assert states[-1].settled
+    assert states[-1].power_sign == sign
+    assert all(st.power_sign in ("unknown", sign) for st in states)
