@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import sys
 
+import argparse
+
 from ..errors import InputError
 
 FIELDS = ("name", "contact", "accreditation", "certificate_prefix", "approver", "paper")
@@ -42,6 +44,7 @@ def register(sub) -> None:
     q.add_argument("--days", type=int, default=3650, help="validity of the certificate in days (default 3650)")
     q.add_argument("--replace", action="store_true",
                    help="replace an existing key (its certificate stays trusted for documents already signed)")
+    q.add_argument("stray", nargs="*", help=argparse.SUPPRESS)  # refused without echoing (it may be a passphrase)
     q.set_defaults(func=run_keygen)
 
     q = ss.add_parser("import-p12", help="use a key and certificate from the shop's own certificate authority",
@@ -51,6 +54,7 @@ def register(sub) -> None:
     q.add_argument("file", metavar="FILE.p12")
     q.add_argument("--passphrase", action="store_true", help="encrypt the stored key with a passphrase")
     q.add_argument("--replace", action="store_true", help="replace an existing key")
+    q.add_argument("stray", nargs="*", help=argparse.SUPPRESS)
     q.set_defaults(func=run_import)
 
     q = ss.add_parser("trust", help="certificates whose signatures 'certificate verify' accepts besides the shop's")
@@ -105,6 +109,12 @@ def run_set(args) -> int:
     return 0
 
 
+def _no_stray(args) -> None:
+    if getattr(args, "stray", None):
+        raise InputError("unexpected extra argument(s) (not shown: a passphrase must never be typed on the command "
+                         "line); use RINGGAUGE_KEY_PASSPHRASE or answer the prompt")
+
+
 def _new_passphrase(asked: bool) -> bytes | None:
     if not asked:
         return None
@@ -120,6 +130,7 @@ def run_keygen(args) -> int:
     from ..report.signing import keygen
     from ..shop import load_shop
 
+    _no_stray(args)
     shop = load_shop()
     name = shop["name"]
     if name.startswith("(shop name not set"):
@@ -137,6 +148,7 @@ def run_import(args) -> int:
 
     from ..report.signing import import_p12
 
+    _no_stray(args)
     env = os.environ.get("RINGGAUGE_P12_PASSPHRASE")
     if env is not None:
         p12pw = env.encode() or None
