@@ -125,3 +125,16 @@ def test_silent_stream_times_out(tmp_path):
     assert p.returncode == 2
     assert "did not answer within 2 s" in p.stderr and len(p.stderr.strip().splitlines()) == 1
     assert took < 20
+
+
+@pytest.mark.parametrize("extra,words", [
+    (["--settle-fringes", "0.7"], "between 0 and 0.5"),
+    (["--max-frames", "0"], "at least 1"),
+    (["--open-timeout", "0"], "between 0 and 120"),
+    (["--test-diameter", "20"], "optical flat"),
+])
+def test_watch_bad_options_one_line(sequences, capsys, extra, words):
+    seq = sequences[("centre", "pressing")]
+    rc = main(["watch", "--camera", seq["video"], *SETUP, *extra])
+    err = capsys.readouterr().err
+    assert rc == 2 and words in err and len(err.strip().splitlines()) == 1, err
