@@ -320,6 +320,12 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
                            gap_change=gap_change, exclude=sat0, progress=lambda m: say(0.3, m))
         except AnalysisError as exc:
             warnings.append(f"no phase map from the frames ({exc}); each frame was fitted with the gap model")
+        if pm is not None and not pm.converged:
+            # few fringes or steps that barely differ leave the unknown-step problem ill-posed: the iteration
+            # wanders instead of settling, and its map would be wrong
+            warnings.append(f"the phase steps of the {len(frames)} frames did not settle ({pm.iterations} rounds; "
+                            "few fringes or small steps); each frame was fitted with the gap model instead")
+            pm = None
     if pm is not None:
         route = f"phase map from {len(frames)} frames (Wang–Han)"
         pm_mask = np.zeros(shape0, dtype=bool)

@@ -264,7 +264,7 @@ def unknown_steps(I, u, v, *, tilt: bool = True, max_iter: int = 40, tol: float 
 
     I : (N, P) intensities of N >= 3 frames at P pixels; u, v : (P,) normalised coordinates.
     The alternation converges linearly; it stops when no step or tilt moves by more than ``tol`` radians
-    (1e-3 rad = 0.00016 fringe) in a round. With four or more frames, joint Gauss-Newton rounds
+    (1e-3 rad = 0.00016 fringe) in a round. With five or more frames, joint Gauss-Newton rounds
     (:func:`_joint_refine`) finish it after a few alternations.
     """
     I = np.asarray(I, dtype=np.float64)
@@ -275,10 +275,21 @@ def unknown_steps(I, u, v, *, tilt: bool = True, max_iter: int = 40, tol: float 
     a = I.mean(axis=0)
     b = np.sqrt(2.0 * np.mean((I - a) ** 2, axis=0))
     steps = np.zeros((N, 3))
+    # start steps by linear least squares: I_n - a = (b cos phi) cos d_n - (b sin phi) sin d_n, so the two
+    # regression coefficients give d_n directly (Gauss-Newton from d = 0 stalls when a step is near pi)
+    Xs = np.stack([b * np.cos(phi), -b * np.sin(phi)], axis=1)
+    coef, *_ = np.linalg.lstsq(Xs, (I - a).T, rcond=None)
+    steps[:, 0] = np.arctan2(coef[1], coef[0])
     it = 0
     converged = False
     for it in range(1, max_iter + 1):
-        new = _frame_steps(I, phi, u, v, steps, tilt) if N == 3 else _frame_steps_pixel(I, a, b, phi, u, v, steps, tilt)
+        # three or four frames: smooth per-frame light and amplitude (with a per-pixel background and amplitude
+        # any three steps fit three frames exactly, and four frames leave a one-parameter family of step sets
+        # that fit exactly: the frames' span must hold 1, cos delta and sin delta); five or more: per pixel
+        if N <= 4:
+            new = _frame_steps(I, phi, u, v, steps, tilt)
+        else:
+            new = _frame_steps_pixel(I, a, b, phi, u, v, steps, tilt)
         # re-reference to frame 1: its step becomes zero and is moved into the phase
         ref = new[0].copy()
         new = new - ref
@@ -294,7 +305,7 @@ def unknown_steps(I, u, v, *, tilt: bool = True, max_iter: int = 40, tol: float 
         if change < tol:
             converged = True
             break
-        if it >= 4 and N > 3 and change < 0.05:
+        if it >= 4 and N >= 5 and change < 0.05:
             # close enough for the joint Gauss-Newton rounds, which settle the slow directions; kept only when
             # they stay within a radian of the alternation's steps and do not head for a degenerate step set
             # (steps bunched at two phases half a turn apart, where the per-pixel model fits anything)
