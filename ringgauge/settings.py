@@ -166,6 +166,45 @@ def _fsync_dir(folder: Path) -> None:
         os.close(dfd)
 
 
+def read_regular_bytes(source: str | os.PathLike, *, what: str, max_bytes: int | None = None) -> bytes:
+    """The bytes of a file the user named, refusing anything but a regular file without blocking on it (a named
+    pipe or device given as a lot sheet, result or document used to hang the command). One-line errors."""
+    import stat as _stat
+
+    p = Path(source)
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_NOCTTY", 0)
+    try:
+        fd = os.open(p, flags)
+    except FileNotFoundError:
+        raise InputError(f"{what} {p}: no such file") from None
+    except IsADirectoryError:
+        raise InputError(f"{what} {p} is a folder; give a file") from None
+    except OSError as exc:
+        raise InputError(f"cannot read {what} {p}: {exc.strerror or exc}") from None
+    try:
+        st = os.fstat(fd)
+        if _stat.S_ISDIR(st.st_mode):
+            raise InputError(f"{what} {p} is a folder; give a file")
+        if not _stat.S_ISREG(st.st_mode):
+            raise InputError(f"{what} {p} is not a regular file (a named pipe or device?); give a file")
+        if max_bytes is not None and st.st_size > max_bytes:
+            raise InputError(f"{what} {p} is {st.st_size} bytes, more than the {max_bytes} allowed")
+        chunks, total = [], 0
+        while True:
+            chunk = os.read(fd, 1 << 20)
+            if not chunk:
+                break
+            total += len(chunk)
+            if max_bytes is not None and total > max_bytes:
+                raise InputError(f"{what} {p} is more than the {max_bytes} bytes allowed")
+            chunks.append(chunk)
+        return b"".join(chunks)
+    except OSError as exc:
+        raise InputError(f"cannot read {what} {p}: {exc.strerror or exc}") from None
+    finally:
+        os.close(fd)
+
+
 def check_target(target: str | os.PathLike, what: str) -> Path:
     """Refuse an output file that cannot be written, before any work is done (one-line message naming ``what``):
     a folder, a special file, a missing or read-only folder."""

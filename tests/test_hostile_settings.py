@@ -128,3 +128,18 @@ def test_two_processes_adding_plates_lose_nothing(tmp_path):
     ids = sorted(pl.id for pl in plates.load_register(reg))
     assert ids == sorted([f"TP-A{i:03d}" for i in range(n)] + [f"TP-B{i:03d}" for i in range(n)])
     assert not [p.name for p in tmp_path.iterdir() if p.name.endswith(".tmp")]
+
+
+@pytest.mark.parametrize("kind", ["fifo", "folder", "missing"])
+def test_user_named_files_never_block(tmp_path, kind):
+    p = tmp_path / "thing.json"
+    if kind == "fifo":
+        os.mkfifo(p)
+    elif kind == "folder":
+        p.mkdir()
+    with pytest.raises(RinggaugeError) as ei:
+        settings.read_regular_bytes(p, what="the lot sheet")
+    msg = str(ei.value)
+    assert msg.startswith("the lot sheet ") and "\n" not in msg
+    assert {"fifo": "not a regular file", "folder": "is a folder", "missing": "no such file"}[kind] in msg
+

@@ -294,6 +294,8 @@ def run_supersede(args) -> int:
         from ..records.keys import check_seal
 
         p = Path(args.result)
+        if p.exists() and not p.is_file():
+            raise InputError(f"{p} is not a regular file; give the result file written by 'analyze --out'")
         try:
             result = json.loads(p.read_text(encoding="utf-8"))
         except FileNotFoundError:

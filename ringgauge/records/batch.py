@@ -211,9 +211,8 @@ def run_lot(
         p = Path(p).resolve()  # records keep absolute paths: certificates are printed from anywhere
         try:
             sha = sha256_file(p)
-        except OSError as exc:
+        except (OSError, RinggaugeError):  # unreadable, or swapped for a pipe: recorded as failed by its worker
             todo.append((str(p), None, None))
-            del exc
             continue
         if sha in seen:  # the same image twice in the folder (a copy): analyse once
             run.skipped += 1

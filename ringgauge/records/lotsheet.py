@@ -92,7 +92,9 @@ def read_sheet(path: str | Path) -> dict:
         if path.stat().st_size > MAX_BYTES:
             raise InputError(f"lot sheet {path}: {path.stat().st_size} bytes is too large for a lot sheet "
                              f"(at most {MAX_BYTES // 1000} kB)")
-        text = path.read_text(encoding="utf-8")
+        from ..settings import read_regular_bytes
+
+        text = read_regular_bytes(path, what="lot sheet", max_bytes=MAX_BYTES).decode("utf-8")
     except UnicodeDecodeError:
         raise InputError(f"lot sheet {path}: not UTF-8 text") from None
     except OSError as exc:
