@@ -477,4 +477,10 @@ def chart_png(charts: Sequence[IndividualsChart], path, *, title: str = "") -> N
     if title:
         fig.suptitle(title, fontsize=10)
     fig.tight_layout(rect=(0, 0, 0.9, 1))
-    fig.savefig(path, format="png")
+    import io
+
+    from ..settings import write_text_atomic
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    write_text_atomic(path, buf.getvalue())  # whole or not at all: a killed run leaves no half chart
