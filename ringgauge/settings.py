@@ -109,10 +109,13 @@ def locked(target: str | os.PathLike, *, timeout: float | None = None) -> Iterat
         lock.release()
 
 
-def write_text_atomic(target: str | os.PathLike, text: str | bytes, *, encoding: str = "utf-8") -> Path:
+def write_text_atomic(target: str | os.PathLike, text: str | bytes, *, encoding: str = "utf-8",
+                      lock: bool = True) -> Path:
     """Write ``text`` to ``target`` atomically (temp file in the same folder, fsync, ``os.replace``) under its lock.
 
-    ``text`` may also be ``bytes`` (written as they are).
+    ``text`` may also be ``bytes`` (written as they are). ``lock=False`` is for one-off outputs in the user's
+    folders (exports, charts, result files): the replacement is just as atomic, and no ``.lock`` file is left
+    beside them; settings files keep the lock (their read-modify-write cycles need it).
 
     The replaced file keeps the old file's permission bits (or 0o644 less the umask for a new file). A failure
     leaves the old file untouched and no temporary file behind, and is raised as one line.
@@ -121,7 +124,7 @@ def write_text_atomic(target: str | os.PathLike, text: str | bytes, *, encoding:
     if target.is_dir():
         raise InputError(f"{target} is a folder; give a file name to write to")
     data = text if isinstance(text, bytes) else text.encode(encoding)
-    with locked(target):
+    with (locked(target) if lock else contextlib.nullcontext()):
         fd, tmp = None, None
         try:
             fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=str(target.parent))

@@ -143,3 +143,8 @@ def test_user_named_files_never_block(tmp_path, kind):
     assert msg.startswith("the lot sheet ") and "\n" not in msg
     assert {"fifo": "not a regular file", "folder": "is a folder", "missing": "no such file"}[kind] in msg
 
+
+
+def test_one_off_outputs_leave_no_lock_file(tmp_path):
+    settings.write_text_atomic(tmp_path / "records.csv", "a,b\n", lock=False)
+    assert [p.name for p in tmp_path.iterdir()] == ["records.csv"]

@@ -165,7 +165,7 @@ def run(args: argparse.Namespace) -> int:
     if args.out:
         from ..records.keys import seal_result  # sealed: 'records supersede --result' takes it as measured
 
-        write_text_atomic(args.out, dumps_json(seal_result(d), what="the result") + "\n")
+        write_text_atomic(args.out, dumps_json(seal_result(d), what="the result") + "\n", lock=False)
     if args.json:
         print(text)
     else:

@@ -75,5 +75,5 @@ def export_to_file(records: Iterable, out: str | Path, fmt: str) -> int:
     out = check_out_path(out)
     buf = io.StringIO(newline="")
     n = (write_json if fmt == "json" else write_csv)(records, buf)
-    write_text_atomic(out, buf.getvalue())
+    write_text_atomic(out, buf.getvalue(), lock=False)
     return n

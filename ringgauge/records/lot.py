@@ -483,4 +483,4 @@ def chart_png(charts: Sequence[IndividualsChart], path, *, title: str = "") -> N
 
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
-    write_text_atomic(path, buf.getvalue())  # whole or not at all: a killed run leaves no half chart
+    write_text_atomic(path, buf.getvalue(), lock=False)  # whole or not at all: a killed run leaves no half chart
