@@ -11,7 +11,9 @@ Each check is one named line, so a user sees which one failed:
                     exactly the content's (text is read with its position, not searched for on the page);
 ``issued``          the store issued this number with this content, and this exact file (SHA-256);
 ``records chain``   the store's chain holds the document and its record unaltered;
-``record``          the printed results are what the record holds.
+``record``          the printed results are what the record holds;
+``page text``       (unsigned copies, with the store) every line on the pages is one that laying out the stored
+                    content again gives: edits in paragraphs and headings, or text drawn over a page, show up.
 
 A PDF without a signature (made before signing existed) is checked by the other checks and marked
 "unsigned"; it verifies only against a records store that issued it unsigned: without a signature anyone
@@ -316,6 +318,52 @@ def _store_checks(v: Verification, content: dict, digest: str, store) -> None:
     v.check(not bad, "records chain: intact for this document and its record(s)" if not bad else
             f"records chain: BROKEN — {bad[0].message}")
     _record_checks(v, content, store, doc)
+    if not v.signed:
+        _page_text_check(v, content, store, doc)
+
+
+_PAGE_MARK = re.compile(r"^(Page \d+ of \d+|Image not shown: .*)$")
+
+
+def _page_text_check(v: Verification, content: dict, store, doc) -> None:
+    """Unsigned copies only (a signature already covers every byte): every line of text on the pages must be
+    one that laying out the stored content again gives — a changed word in a paragraph, a line drawn over the
+    page or a value outside the tables shows up as a line the content does not make."""
+    import tempfile
+
+    from pypdf import PdfReader
+
+    from ..records.documents import load_record_image
+    from .pdf import render_certificate, render_lot_report
+
+    def texts(path) -> set[str]:
+        return {t for rs in page_runs(PdfReader(str(path))) for _, _, t in rs}
+
+    try:
+        box = PdfReader(v.path).pages[0].mediabox
+        paper = "Letter" if abs(float(box.width) - 612.0) < 2 else "A4"
+        allowed: set[str] = set()
+        with tempfile.TemporaryDirectory(prefix="rg-verify-") as tmp:
+            if doc.kind == "certificate":
+                rec = store.get(doc.record_id)
+                image01, note = load_record_image(rec)
+                # with and without the figures: the image may have moved since the document was laid out
+                for i, (res, img, nt) in enumerate(((rec.result, image01, note), (rec.result, None, None),
+                                                    (None, None, None))):
+                    p = render_certificate(content, Path(tmp) / f"{i}.pdf", paper=paper, result=res, image01=img,
+                                           image_note=nt)
+                    allowed |= texts(p)
+            else:
+                allowed |= texts(render_lot_report(content, Path(tmp) / "lot.pdf", paper=paper))
+    except (RinggaugeError, KeyError, TypeError, ValueError, AttributeError, IndexError, OSError) as exc:
+        v.check(True, f"page text: not compared (the content cannot be laid out again by this version: "
+                      f"{type(exc).__name__})")
+        return
+    reader = PdfReader(v.path)
+    extra = sorted({t for rs in page_runs(reader) for _, _, t in rs} - allowed)
+    extra = [t for t in extra if not _PAGE_MARK.match(t)]
+    v.check(not extra, "page text: every line on the pages is one the stored content lays out" if not extra else
+            f"page text: {len(extra)} line(s) the content does not make: " + "; ".join(e[:60] for e in extra[:3]))
 
 
 def _record_checks(v: Verification, content: dict, store, doc) -> None:

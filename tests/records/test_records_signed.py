@@ -324,7 +324,7 @@ def test_printed_cells_catch_edits_on_unsigned_copies(legacy, tmp_path, what):
     old, new = EDITS[what](doc)
     bad = tmp_path / "bad.pdf"
     edit_rewrite(path, bad, old, new)
-    assert failed(bad, store) == {"printed cells"}
+    assert failed(bad, store) == {"printed cells", "page text"}
 
 
 def test_value_moved_to_another_cell_is_caught(legacy, tmp_path):
@@ -393,3 +393,28 @@ def test_passphrase_key_and_key_replacement(tmp_path, make_result, monkeypatch, 
         assert v_old.ok and v_new.ok and v_old.signer != v_new.signer
     assert main(["shop", "trust", "list"]) == 0
     assert capsys.readouterr().out.count("extra") == 1
+
+
+@pytest.mark.parametrize("old,new", [
+    (b"(Expanded uncertainty U = k", b"(Expanded uncertainty U = 2"),     # a paragraph, not a table cell
+    (b"(Conformity statement)", b"(Conformity statemant)"),                # a heading
+])
+def test_page_text_of_unsigned_copies_is_compared_with_a_new_layout(legacy, tmp_path, old, new):
+    store, rec, doc, path = legacy
+    assert failed(path, store) == set()
+    bad = tmp_path / "bad.pdf"
+    edit_rewrite(path, bad, old, new)
+    assert failed(bad, store) == {"page text"}
+
+
+def test_page_painted_over_on_an_unsigned_copy(legacy, tmp_path):
+    store, rec, doc, path = legacy
+    w = PdfWriter(clone_from=PdfReader(str(path)))
+    page = w.pages[-1]
+    font = next(k for k in page["/Resources"]["/Font"] if "F2" in k)
+    cs = page.get_contents()
+    cs.set_data(cs.get_data() + f"\nq 1 1 1 rg 0 0 595 842 re f Q BT {font} 12 Tf 57 400 Td (Released with "
+                                 f"concession) Tj ET\n".encode())
+    page.replace_contents(cs)
+    w.write(str(tmp_path / "painted.pdf"))
+    assert failed(tmp_path / "painted.pdf", store) == {"page text"}
