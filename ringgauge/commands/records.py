@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
-from ..options import number
+from ..options import integer, number
 from ..uncertainty import format_value
 from ._records_common import add_db_argument, open_from_args
 
@@ -43,7 +43,7 @@ def register(sub) -> None:
 
     q = rs.add_parser("show", help="show one record in full, with its correction history")
     add_db_argument(q)
-    q.add_argument("record_id", type=int, metavar="RECORD_ID")
+    q.add_argument("record_id", type=integer("RECORD_ID", lo=1, hi=2**63 - 1), metavar="RECORD_ID")
     q.add_argument("--json", action="store_true", help="print the record as JSON (with the full result)")
     q.set_defaults(func=run_show)
 
@@ -65,7 +65,7 @@ def register(sub) -> None:
                                   "--manual is given; it is then kept as a MANUAL ENTRY, shown as such by "
                                   "'records show' and on the certificate.")
     add_db_argument(q)
-    q.add_argument("record_id", type=int, metavar="RECORD_ID")
+    q.add_argument("record_id", type=integer("RECORD_ID", lo=1, hi=2**63 - 1), metavar="RECORD_ID")
     q.add_argument("--reason", required=True, help="why the record is corrected (kept with the correction)")
     for name in ("lot", "part", "drawing", "surface", "serial", "operator", "customer"):
         q.add_argument(f"--{name}", help=f"corrected {name}")
