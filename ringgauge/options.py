@@ -33,7 +33,7 @@ TEXT_MAX = 2000
 
 
 def _fmt(x: float) -> str:
-    return f"{x:g}"
+    return str(x) if isinstance(x, int) else f"{x:g}"
 
 
 def _range_text(lo, hi, lo_open, hi_open, unit) -> str:
