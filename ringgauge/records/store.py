@@ -1081,9 +1081,10 @@ class Store:
         """Every PDF written for document ``number``: file SHA-256, signed or not, signer, when."""
         if not self._table_exists("issued_file"):
             return []
-        rows = self._read("SELECT file_sha256, signed, signer, written_utc FROM issued_file WHERE number = ? "
+        rows = self._read("SELECT file_sha256, signed, signer, written_utc, id FROM issued_file WHERE number = ? "
                           "ORDER BY id", (number,))
-        return [{"file_sha256": r[0], "signed": bool(r[1]), "signer": r[2], "written_utc": r[3]} for r in rows]
+        return [{"file_sha256": r[0], "signed": bool(r[1]), "signer": r[2], "written_utc": r[3], "id": int(r[4])}
+                for r in rows]
 
     def document(self, number: str) -> IssuedDocument:
         rows = self._read("SELECT id, number, kind, record_id, lot, issued_utc, content_json, content_sha256 "

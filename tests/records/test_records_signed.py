@@ -418,3 +418,19 @@ def test_page_painted_over_on_an_unsigned_copy(legacy, tmp_path):
     page.replace_contents(cs)
     w.write(str(tmp_path / "painted.pdf"))
     assert failed(tmp_path / "painted.pdf", store) == {"page text"}
+
+
+def test_file_checksum_added_to_the_store_by_hand_is_not_trusted(issued, tmp_path):
+    """A forged copy's SHA-256 slipped into the store's list of issued files (outside ringgauge)."""
+    store, rec, doc, path = issued
+    bad = tmp_path / "bad.pdf"
+    edit_incremental(path, bad, b"(51.700 mm)", b"(51.900 mm)")
+    con = sqlite3.connect(store.where)
+    con.execute("INSERT INTO issued_file (number, file_sha256, signed, signer, written_utc) VALUES (?, ?, 1, 'x', "
+                "'2026-01-01')", (doc.number, hashlib.sha256(bad.read_bytes()).hexdigest()))
+    con.commit()
+    con.close()
+    with open_store(store.where) as s:
+        v = verify_pdf(bad, s)
+    assert set(v.failed()) == {"whole file", "printed cells", "issued", "records chain"}
+    assert "issued file entry 2" in dict((w.split(":")[0], w) for _, w in v.checks)["records chain"]
