@@ -182,9 +182,12 @@ def run_show(args) -> int:
         rec = store.get(args.record_id)
         chain = store.history(rec.id)
         docs = store.documents(record_id=rec.id)
+        sealed = store.check(only={"inspection": {rec.id}})
+    problems = [f.message for f in sealed.findings if f.row_id == rec.id or f.table is None]
     if args.json:
         d = rec.to_dict()
         d["intact"] = rec.intact()
+        d["chain_problems"] = problems
         d["manual_entry"] = rec.manual
         d["history"] = [{"id": r.id, "created_utc": r.created_utc, "supersede_reason": r.supersede_reason}
                         for r in chain]
@@ -235,7 +238,10 @@ def run_show(args) -> int:
     from ..records.store import ORIGIN_TEXT
 
     lines.append(f"  origin          {ORIGIN_TEXT.get(rec.origin, rec.origin)}")
-    lines.append(f"  integrity       {'intact (checksum matches)' if rec.intact() else 'ALTERED: checksum does not match'}")
+    lines.append(f"  integrity       {'intact (checksum matches)' if rec.intact() else 'ALTERED: checksum does not match'}"
+                 + ("; sealed in the records chain" if not problems else ""))
+    for p in problems:
+        lines.append(f"  CHAIN           {p}")
     if len(chain) > 1:
         lines.append("  history:")
         for r in chain:

@@ -109,7 +109,7 @@ def test_replace_with_new_values_after_dropping_the_triggers_is_named(filled, ca
     assert code == 1 and "record 2: ALTERED" in out and "3 intact, 1 altered" in out
 
 
-def test_edit_with_a_recomputed_plain_checksum_is_found(filled):
+def test_edit_with_a_recomputed_plain_checksum_is_found(filled, capsys):
     con = raw(filled)
     drop_guards(con)
     row = dict(con.execute("SELECT * FROM inspection WHERE id = 3").fetchone())
@@ -127,6 +127,9 @@ def test_edit_with_a_recomputed_plain_checksum_is_found(filled):
     rep = check(filled)
     assert kinds(rep)[("inspection", 3)] == {"ALTERED"}
     assert rep.bad_records() == {3}
+    assert main(["records", "show", "3", "--db", str(filled)]) == 0
+    out = capsys.readouterr().out
+    assert "intact (checksum matches)" in out and "CHAIN           record 3: ALTERED" in out
 
 
 # ------------------------------------------------------------------------------------ inserts and deletions
