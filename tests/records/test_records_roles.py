@@ -27,7 +27,8 @@ def test_bench_login_may_only_insert_and_read(pg_split, make_result):
         rec = s.add(RecordMeta(lot="PG", serial="1"), make_result("1"))
         s.supersede(rec.id, "serial misread", meta_changes={"serial": "10"})
         doc = s.issue("certificate", {"x": 1}, record_id=rec.id)
-        assert s.write_refusal is None and s.check().ok
+        s.record_file(doc.number, "ab" * 32, signed=True, signer="test")
+        assert s.write_refusal is None and s.check().ok and s.issued_files(doc.number)[0]["signed"]
     with psycopg.connect(bench_url, autocommit=True) as c:
         for stmt in ("UPDATE inspection SET serial = '2'", "DELETE FROM inspection", "DELETE FROM chain",
                      "TRUNCATE inspection", "UPDATE issued_document SET content_json = '{}'",
