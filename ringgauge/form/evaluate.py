@@ -53,12 +53,20 @@ FORM_TERMS = (
 )
 
 
-def _disc_grid(k: float, n: int = 61):
-    """Points on a square grid inside the disc of radius k (aperture-normalised), and the same scaled to 1."""
+RIM = 720  # points on the test disc's edge used for the PV terms (a square grid misses the rim's extremes)
+
+
+def _disc_grid(k: float, n: int = 61, rim: int = 0):
+    """Points on a square grid inside the disc of radius k (aperture-normalised), and the same scaled to 1;
+    ``rim`` points on the edge are appended last (for the PV terms only, see :func:`form_terms_batch`)."""
     t = np.linspace(-1, 1, n)
     U, V = np.meshgrid(t, t)
     m = U * U + V * V <= 1.0
-    return U[m] * k, V[m] * k, U[m], V[m]
+    Un, Vn = U[m], V[m]
+    if rim:
+        a = np.linspace(0, 2 * np.pi, rim, endpoint=False)
+        Un, Vn = np.concatenate([Un, np.cos(a)]), np.concatenate([Vn, np.sin(a)])
+    return Un * k, Vn * k, Un, Vn
 
 
 def _lsq(cols, w):
@@ -67,16 +75,21 @@ def _lsq(cols, w):
     return coef, w - X @ coef
 
 
-def form_terms(W: np.ndarray, u: np.ndarray, v: np.ndarray) -> dict:
-    """Form terms (fringes) of gap samples ``W`` at points (u, v) on the unit test disc (a regular grid)."""
-    t = form_terms_batch(np.asarray(W, dtype=float)[None, :], u, v)
+def form_terms(W: np.ndarray, u: np.ndarray, v: np.ndarray, rim: int = 0) -> dict:
+    """Form terms (fringes) of gap samples ``W`` at points (u, v) on the unit test disc (a regular grid; the
+    last ``rim`` points lie on the edge and count for the PV terms only)."""
+    t = form_terms_batch(np.asarray(W, dtype=float)[None, :], u, v, rim)
     return {k: float(x[0]) for k, x in t.items()}
 
 
-def form_terms_batch(Ws: np.ndarray, u: np.ndarray, v: np.ndarray) -> dict:
+def form_terms_batch(Ws: np.ndarray, u: np.ndarray, v: np.ndarray, rim: int = 0) -> dict:
     """:func:`form_terms` of many gap sample sets at once (rows of ``Ws``): every least-squares fit is one
-    projection matrix applied to all rows. Returns name -> array of length ``len(Ws)``."""
+    projection matrix applied to all rows. Returns name -> array of length ``len(Ws)``. Fits and RMS use the
+    grid (area) points; PV values also the last ``rim`` edge points."""
     Ws = np.atleast_2d(np.asarray(Ws, dtype=float))
+    na = Ws.shape[1] - rim
+    uf, vf = u, v
+    u, v = u[:na], v[:na]
     one = np.ones_like(u)
     r2 = u * u + v * v
 
@@ -88,23 +101,30 @@ def form_terms_batch(Ws: np.ndarray, u: np.ndarray, v: np.ndarray) -> dict:
     Xs, Ps = proj([one, u, v, r2])
     Xa, Pa = proj([one, u, v, r2, u * u - v * v, 2 * u * v])
     Xr, Pr = proj([one, r2, r2 * r2, r2**3])
-    wt = Ws - (Ws @ Pt.T) @ Xt.T
-    sph = Ws @ Ps.T
-    wi = Ws - sph @ Xs.T
-    ast = Ws @ Pa.T
+    Wa = Ws[:, :na]
+    # the same fits evaluated at every point (rim included) for the PV terms
+    one_f, r2f = np.ones_like(uf), uf * uf + vf * vf
+    Xtf = np.stack([one_f, uf, vf], axis=1)
+    Xsf = np.stack([one_f, uf, vf, r2f], axis=1)
+    Xrf = np.stack([one_f, r2f, r2f * r2f, r2f**3], axis=1)
+    wt_f = Ws - (Wa @ Pt.T) @ Xtf.T
+    sph = Wa @ Ps.T
+    wi_f = Ws - sph @ Xsf.T
+    ast = Wa @ Pa.T
     a1, a2 = ast[:, 4], ast[:, 5]
-    rot_part = (wi @ Pr.T) @ Xr.T
-    wa = wi - rot_part
+    wt, wi = wt_f[:, :na], wi_f[:, :na]
+    rot_f = (wi @ Pr.T) @ Xrf.T
+    wa = wi - rot_f[:, :na]
     return {
         "power_fringes": sph[:, 3],
         "astigmatism_fringes": 2 * np.hypot(a1, a2),
         "astigmatism_axis_deg": np.degrees(0.5 * np.arctan2(a2, a1)) % 180.0,
-        "irregularity_fringes": np.ptp(wi, axis=1),
-        "rot_sym_irregularity_fringes": np.ptp(rot_part, axis=1),
+        "irregularity_fringes": np.ptp(wi_f, axis=1),
+        "rot_sym_irregularity_fringes": np.ptp(rot_f, axis=1),
         "rms_total_fringes": np.sqrt(np.mean(wt * wt, axis=1)),
         "rms_irregularity_fringes": np.sqrt(np.mean(wi * wi, axis=1)),
         "rms_asymmetric_fringes": np.sqrt(np.mean(wa * wa, axis=1)),
-        "pv_total_fringes": np.ptp(wt, axis=1),
+        "pv_total_fringes": np.ptp(wt_f, axis=1),
     }
 
 
@@ -384,7 +404,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
     k_td = min(1.0, td / ap_diam_mm) * ap.radius_px / fit_radius  # in the fit's normalised radius
     say(0.92, "form terms and their uncertainties")
-    uu, vv, un, vn = _disc_grid(k_td)
+    uu, vv, un, vn = _disc_grid(k_td, rim=RIM)
     if pm is None:
         # form terms from the first frame's fit (the other frames only move the piston)
         g = fits[0]
@@ -398,7 +418,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         alternatives = {}
         fit_row = f"phase map: noise and ripple beyond the Zernike fit (n <= {MAP_NMAX})"
     W = coef @ Z
-    terms = form_terms(W, un, vn)
+    terms = form_terms(W, un, vn, RIM)
     terms_u: dict = {}
     axis_u = None
     if cov is not None:
@@ -408,7 +428,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         except (np.linalg.LinAlgError, ValueError):
             draws = None
         if draws is not None:
-            samp = form_terms_batch(draws @ Z, un, vn)
+            samp = form_terms_batch(draws @ Z, un, vn, RIM)
             for name in FORM_TERMS:
                 terms_u[name] = float(np.std(samp[name], ddof=1))
             ax = samp["astigmatism_axis_deg"]
@@ -423,9 +443,20 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         if name in terms_u:
             budget_rows[name].append((fit_row, terms_u[name]))
     for label, ca in alternatives.items():
-        alt = form_terms(ca @ Z, un, vn)
+        alt = form_terms(ca @ Z, un, vn, RIM)
         for name in FORM_TERMS:
             budget_rows[name].append((label, abs(alt[name] - terms[name]) / math.sqrt(3)))
+    # a fit whose main terms move by more than 0.05 fringe (k = 2) with the model choice is weak: say so
+    # (the budget already carries it); 0.05 fringe is the accuracy asked of the form terms
+    sensitive = []
+    for name in ("power_fringes", "astigmatism_fringes", "irregularity_fringes"):
+        mc = math.sqrt(sum(x * x for label, x in budget_rows[name] if label in alternatives))
+        if 2 * mc > 0.05:
+            sensitive.append(f"{name.replace('_fringes', '')} ±{2 * mc:.2f}")
+    if sensitive and not any(w.startswith("weak fit") or ": weak fit" in w for w in warnings):
+        warnings.append("weak fit: the terms depend on the model's fringe shape and illumination "
+                        f"({', '.join(sensitive)} fringe, k = 2); the uncertainty includes it — a frame set "
+                        "(three or more frames) measures such parts without that model")
     rel_a = ap.radius_u_px / ap.radius_px
     for name in FORM_TERMS:
         budget_rows[name].append(("aperture radius", 2 * abs(terms[name]) * rel_a))
@@ -498,7 +529,7 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
         elapsed_s=time.perf_counter() - t0, notes=tuple(notes),
         budget_rows={k: tuple(v) for k, v in budget_rows.items()},
         route=route,
-        zernike_ansi=_ansi_block(W, un, vn, td, fr),
+        zernike_ansi=_ansi_block(W[:-RIM], un[:-RIM], vn[:-RIM], td, fr),
         height_map_nm=hmap, map_extent_px=hext,
         phase=None if pm is None else _phase_dict(pm),
     )

@@ -858,9 +858,19 @@ def _start_values(img, uc, vr, inside, radius_px):
     ``img`` is a (block-averaged) frame with column / row coordinates ``uc`` / ``vr`` and ``radius_px`` its
     aperture radius in its own pixels."""
     cands = []
-    q = _frequency_quadratic(img, uc, vr, inside, radius_px)
+    q, theta = _frequency_quadratic(img, uc, vr, inside, radius_px)
     if q is not None:
-        cands += _from_quadratic(q)
+        quad = _from_quadratic(q)
+        cands += quad
+        # straight or gently curved fringes (a near-flat, a tilted part): |grad W|^2 is nearly constant and the
+        # quadratic gives no tilt direction; the fringes' orientation (structure tensor) does, up to sign
+        t = math.sqrt(max(q[0], 0.0))
+        if t > 0.3 and theta is not None:
+            tv = t * np.array([math.cos(theta), math.sin(theta)])
+            cands.append(np.array([0.25, tv[0], tv[1], 0.0, 0.0, 0.0]))
+            c = quad[0].copy()
+            c[1:3] = tv
+            cands.append(c)
     # small-power guesses: a fraction of a fringe to two fringes with the rings centred
     for p in (0.25, 0.6, 1.2, 2.0):
         cands.append(np.array([0.25, 0.0, 0.0, p / 2, 0.0, 0.0]))
@@ -868,7 +878,9 @@ def _start_values(img, uc, vr, inside, radius_px):
 
 
 def _frequency_quadratic(img, uc, vr, inside, radius_px):
-    """Fit |grad W|^2 (fringes per aperture radius, squared) as a quadratic in (u, v)."""
+    """Fit |grad W|^2 (fringes per aperture radius, squared) as a quadratic in (u, v); also the dominant
+    direction (radians from u toward v, modulo pi) of the intensity gradient. (None, None) when too little
+    of the aperture is usable."""
     u = np.broadcast_to(uc[None, :], img.shape)
     v = np.broadcast_to(vr[:, None], img.shape)
     s_hp = max(3.0, radius_px / 10)
@@ -884,19 +896,24 @@ def _frequency_quadratic(img, uc, vr, inside, radius_px):
     w_in = _smooth(fin, s_avg)
     core = inside & (u * u + v * v < 0.8**2) & (w_in > 0.9)
     if core.sum() < 100:
-        return None
+        return None, None
+    # dominant direction of the fringes' gradient over the core, in (u, v): the structure tensor
+    du = abs(uc[1] - uc[0]) if uc.size > 1 else 1.0
+    dv = abs(vr[1] - vr[0]) if vr.size > 1 else 1.0
+    gu, gv = gx[core] / du, gy[core] / dv
+    theta = 0.5 * math.atan2(2 * float(np.mean(gu * gv)), float(np.mean(gu * gu) - np.mean(gv * gv)))
     step = max(1, int(math.sqrt(core.sum() / 5000)))
     sel = np.zeros_like(core)
     sel[::step, ::step] = True
     sel &= core & (e_sig > 1e-12)
     if sel.sum() < 50:
-        return None
+        return None, None
     f2 = e_grad[sel] / e_sig[sel] * (radius_px / (2 * np.pi)) ** 2  # fringes per radius, squared
     uu, vv = u[sel], v[sel]
     X = np.stack([np.ones_like(uu), uu, vv, uu * uu, uu * vv, vv * vv]).T
     w = np.sqrt(e_sig[sel])
     coef, *_ = np.linalg.lstsq(X * w[:, None], f2 * w, rcond=None)
-    return coef
+    return coef, theta
 
 
 def _from_quadratic(q):
