@@ -76,6 +76,9 @@ def build_parser() -> argparse.ArgumentParser:
             continue
         importlib.import_module(modname).register(sub)
     _add_log_options_below(parser)
+    from .options import guard_parser
+
+    guard_parser(parser)  # no option of any command lets NaN or infinity through
     return parser
 
 

@@ -213,3 +213,39 @@ def add_max_megapixels(parser: argparse.ArgumentParser) -> None:
         default=argparse.SUPPRESS, metavar="MP",
         help=f"refuse images larger than MP megapixels before decoding them (default {DEFAULT_MAX_MEGAPIXELS:g}; "
              "a crafted small file can declare a huge image)")
+
+
+# ------------------------------------------------------------------------------------ a guard for every option
+
+
+def guard_parser(parser: argparse.ArgumentParser) -> None:
+    """Make every option of ``parser`` and its sub-parsers refuse a non-finite number, whatever its ``type=``.
+
+    Called once by the command line after all commands registered: an option whose own type converter lets
+    ``nan`` or ``inf`` through (``type=float``, a hand-written converter) is refused in one line naming it,
+    before any work is done. Options using :func:`number` / :func:`integer` are checked (and ranged) already.
+    """
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in dict.fromkeys(action.choices.values()):
+                guard_parser(sub)
+            continue
+        convert = action.type
+        if convert is None or getattr(convert, "_finite_guard", False) or \
+                getattr(convert, "__name__", "") in ("number", "integer", "name"):
+            continue
+        if isinstance(convert, type) and not issubclass(convert, (int, float)):
+            continue  # str, Path...: nothing numeric to guard
+        action.type = _guarded(convert)
+
+
+def _guarded(convert):
+    def guarded(text):
+        value = convert(text)
+        if isinstance(value, float) and not math.isfinite(value):
+            raise argparse.ArgumentTypeError(f"'{text}' is not a finite number")
+        return value
+
+    guarded.__name__ = getattr(convert, "__name__", "value")  # argparse names it in "invalid ... value" messages
+    guarded._finite_guard = True
+    return guarded
