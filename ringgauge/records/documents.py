@@ -68,9 +68,10 @@ def issue_certificate(store: Store, record_id: int, out: str | Path, shop: dict,
         doc, reprint = earlier[-1], True
     else:
         content = certificate_content(rec, shop, approver=approver)
-        if rec.manual:
+        if rec.manual:  # said right under the results table and again in the notes
             content["origin"] = "manual"
             content["warnings"] = [MANUAL_NOTE] + list(content.get("warnings") or [])
+            content["coverage"] = MANUAL_NOTE + " " + str(content.get("coverage") or "")
         doc, reprint = store.issue("certificate", content, record_id=rec.id, lot=rec.meta.lot,
                                    prefix=shop.get("certificate_prefix") or "RG"), False
     image01, note = load_record_image(rec)
