@@ -205,7 +205,7 @@ class LivePage(QWidget):
         self.capture_btn.setEnabled(False)
         self.capture_btn.setToolTip("Keep the settled frame, with the ring motion seen before it, as a normal "
                                     "analysis on the Bench page")
-        self.capture_btn.clicked.connect(self.capture)
+        self.capture_btn.clicked.connect(lambda: self.capture())
         cl.addWidget(self.capture_btn)
         self.auto_box = QCheckBox("Capture automatically when settled")
         cl.addWidget(self.auto_box)
@@ -239,7 +239,7 @@ class LivePage(QWidget):
         self.a_capture = QAction("Capture settled frame", self)
         self.a_capture.setShortcut(QKeySequence(Qt.Key.Key_Space))
         self.a_capture.setShortcutContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
-        self.a_capture.triggered.connect(self.capture)
+        self.a_capture.triggered.connect(lambda: self.capture())
         self.addAction(self.a_capture)
 
         safety = QGroupBox("Bench safety")
@@ -326,11 +326,11 @@ class LivePage(QWidget):
             self._shown_frame = st.frame
             self.view.show_frame(f.codes, st)
             self._show_state(st)
-            if self.auto_box.isChecked() and st.settled:
-                ep = len(s.sign.episodes)
-                if self._auto_done_episode != ep:
-                    self._auto_done_episode = ep
-                    self.capture()
+            # once per settling: the episode count travels with the state (the analysis thread may already be
+            # on the next episode when the page draws this one)
+            if self.auto_box.isChecked() and st.settled and self._auto_done_episode != st.episode:
+                if self.capture(st.frame):
+                    self._auto_done_episode = st.episode
         if s.error:
             self.show_problem(s.error)
         if s.ended:
@@ -454,15 +454,17 @@ class LivePage(QWidget):
         return text
 
     # -- capture -----------------------------------------------------------------------------------------------
-    def capture(self) -> list[str]:
-        """Write the settled frame and the sign evidence; emits ``captured(paths, evidence)``."""
+    def capture(self, at_frame: int | None = None) -> list[str]:
+        """Write the settled frame and the sign evidence; emits ``captured(paths, evidence)``.
+
+        ``at_frame``: capture the settled run that holds this frame (auto-capture names the frame it saw)."""
         import cv2
 
         if self.session is None:
             self.capture_note.setText("Start a camera first.")
             return []
         try:
-            got = self.session.capture_set(1)
+            got = self.session.capture_set(1, at_frame=at_frame)
         except RinggaugeError as exc:
             self.capture_note.setText(str(exc))
             return []

@@ -50,6 +50,7 @@ class LiveState:
     latency_ms: float | None = None
     analysed_fps: float | None = None
     contrast: float | None = None
+    episode: int = 0  # motion episodes seen so far (settling, presses): a new settled state once per episode
 
     def to_json(self) -> dict:
         d = asdict(self)
@@ -141,7 +142,7 @@ class LiveSession:
             st = LiveState(
                 f.index, True, pt.message, (pt.x0, pt.y0), pt.r_fit_px, pt.q, pt.phase, pt.radius_mm,
                 pt.radius_u_mm, pt.radius_U_mm, pt.k, settled, None if math.isnan(motion) else motion, rings, gap,
-                sign, self.sign.detail, dropped, latency, fps, pt.contrast,
+                sign, self.sign.detail, dropped, latency, fps, pt.contrast, len(self.sign.episodes),
             )
         self.analysed += 1
         with self._lock:
@@ -204,14 +205,19 @@ class LiveSession:
             return self.latest_frame, self.latest
 
     # -- capture -------------------------------------------------------------------------------------------
-    def capture_set(self, n_frames: int = 1) -> dict:
+    def capture_set(self, n_frames: int = 1, *, at_frame: int | None = None) -> dict:
         """The newest settled frame(s) and the motion seen before them, for a capture.
 
-        Returns ``{"frames": [SourceFrame...], "states": [LiveState...], "evidence": dict}``; raises
-        :class:`InputError` when the part is not settled.
+        ``at_frame`` takes the settled run ending at that frame instead of the newest frame (the page names the
+        frame it showed; the analysis may have moved on). Returns ``{"frames": [SourceFrame...], "states":
+        [LiveState...], "evidence": dict}``; raises :class:`InputError` when the part is not settled.
         """
         with self._lock:
             hist = list(self.history)
+        if at_frame is not None:
+            upto = [i for i, (f, _st) in enumerate(hist) if f.index == at_frame]
+            if upto:
+                hist = hist[: upto[0] + 1]
         if not hist or not hist[-1][1].settled:
             raise InputError("the part is not settled: wait until the rings stand still, then capture")
         settled = []

@@ -90,3 +90,19 @@ def test_practice_hides_the_reading_until_the_trainee_answers(window, qtbot):
     text = page.answer_practice(wrong)
     assert text.startswith("Not this time") and not page.hidden
     assert not page.sign_label.text().startswith("hidden")
+
+
+def test_auto_capture_once_per_settling(window, qtbot, sequences):
+    seq = sequences[("centre", "pressing")]  # at rest, pressed, released, at rest again: two settlings
+    page = window.live
+    page.auto_box.setChecked(True)
+    caught = []
+    page.captured.connect(lambda paths, ev: caught.append((paths, ev)))
+    assert page.start(seq["video"])
+    qtbot.waitUntil(lambda: page.session.ended, timeout=60000)
+    page.refresh()
+    assert len(caught) == 2, [ev["captured_frames"] for _p, ev in caught]
+    first, second = (ev["captured_frames"][0] for _p, ev in caught)
+    ev = {e["event"]: e for e in seq["truth"]["events"]}
+    assert first < ev["pressing"]["first"] <= ev["releasing"]["last"] < second
+    assert caught[1][1]["power_sign"] == "+"
