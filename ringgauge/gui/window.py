@@ -13,6 +13,7 @@ from PySide6.QtWidgets import (
     QDialog,
     QDialogButtonBox,
     QFileDialog,
+    QGroupBox,
     QHBoxLayout,
     QLabel,
     QMainWindow,
@@ -77,6 +78,12 @@ class BenchPage(QWidget):
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
         self.setup_panel = SetupPanel(session)
+        # what changes with every part (operator, serial, ...) goes first, above the fold of a 800 px screen; the
+        # bench set-up below it is set once a day
+        for grp in self.setup_panel.findChildren(QGroupBox):
+            if grp.title() == "Inspection" and grp.parentWidget() is self.setup_panel:
+                self.setup_panel.layout().removeWidget(grp)
+                self.setup_panel.layout().insertWidget(0, grp)
         scroll = QScrollArea()
         scroll.setWidget(self.setup_panel)
         scroll.setWidgetResizable(True)
