@@ -58,6 +58,11 @@ def test_no_cut_text_in_the_setup_panel_or_the_results_at_both_sizes(app, qtbot,
     assert w.width() <= size[0] and w.height() <= size[1]
     assert cut_texts(w.bench.setup_panel) == []
     assert cut_texts(w.bench.results) == []
+    # the per-part Inspection group is in view without scrolling
+    from PySide6.QtWidgets import QGroupBox
+
+    insp = next(g for g in w.bench.setup_panel.findChildren(QGroupBox) if g.title() == "Inspection")
+    assert insp.geometry().bottom() <= w.bench.setup_scroll.viewport().height()
     # the values table shows more than a couple of rows, and the Warnings tab is on screen (not scrolled away)
     t = w.bench.results.values
     assert t.rowAt(t.viewport().height() - 2) >= 4 or t.rowAt(t.viewport().height() - 2) == -1
