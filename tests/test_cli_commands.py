@@ -207,6 +207,7 @@ def test_analyze_json_is_the_out_file(tmp_path, lens, capsys):
     assert code == 0, err
     printed, written = json.loads(out), json.loads(out_json.read_text())
     printed.pop("elapsed_s", None), written.pop("elapsed_s", None)
+    written.pop("ringgauge_seal", None)  # the file carries a seal of its content besides the result
     assert printed == written
 
 
@@ -251,7 +252,7 @@ def test_form_from_several_frames_with_a_tolerance(plate_frames, capsys):
     assert f["power_fringes"] == pytest.approx(2.0 * scale, abs=0.05)
     assert f["irregularity_fringes"] == pytest.approx(0.4 * scale, abs=0.05)
     assert f["power_nm"] == pytest.approx(f["power_fringes"] * 546.074 / 2, rel=2e-4)  # one fringe = lambda/2
-    assert f["sign"]["sign"] == "+" and f["sign"]["method"] == "frames"  # gap grew between frames
+    assert f["sign"]["sign"] == "+" and f["sign"]["method"].startswith("frames")  # gap grew between frames
     assert d["verdict"]["overall"] == "pass"
     assert _term(d, "power")["limit_fringes"] == 2.0 and _term(d, "irregularity")["limit_fringes"] == 0.5
     # a tighter drawing tolerance fails on irregularity
