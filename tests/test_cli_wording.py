@@ -212,3 +212,18 @@ def test_help_loads_no_numerical_library():
     assert "ringgauge.cli" in loaded and "analyze" in r.stdout and "simulate" in r.stdout  # all registered
     for heavy in ("numpy", "scipy", "cv2", "PySide6", "matplotlib"):
         assert heavy not in loaded, f"--help imports {heavy}"
+
+
+@pytest.mark.parametrize("argv", [["analyze", "--help"], ["batch", "--help"], ["plates", "add", "--help"],
+                                  ["simulate", "--help"]])
+def test_help_examples_keep_each_option_whole_on_a_narrow_terminal(capsys, monkeypatch, argv):
+    monkeypatch.setenv("COLUMNS", "60")
+    with pytest.raises(SystemExit):
+        cli.main(argv)
+    out = capsys.readouterr().out
+    example = out[out.index("Example:"):].splitlines()
+    assert len(example) > 1
+    for line in example:
+        # a break inside an option would leave "--pixel-" at a line's end or "size-u" at the next one's start
+        assert not re.search(r"-\w*-$", line.rstrip(" \\")), line
+        assert not re.match(r"\s+[a-z]+-[a-z-]+ ", line) or line.strip().startswith("--"), line
