@@ -27,7 +27,7 @@ demo: $(STAMP)
 	@bash scripts/demo.sh
 
 test: $(STAMP)
-	@$(PY) -m pytest -q -n auto
+	@$(PY) -m pytest -q -n auto --dist loadfile
 
 bench: $(STAMP)
 	@$(PY) scripts/bench.py
