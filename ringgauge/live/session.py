@@ -21,8 +21,10 @@ from .motion import SETTLE_FRAMES, SETTLE_FRINGES, SIGN_MIN_FRINGES, MotionSign,
 from .source import FrameSource, SourceFrame
 from .tracker import TRACK_PIXELS, RingTracker
 
-#: frames kept for a capture (the settled ones and the motion before them)
+#: states kept as the motion evidence of a capture (small); only the last few frames themselves are kept
 HISTORY_FRAMES = 240
+#: frames (images) kept beyond the settle window, for a capture of the frame the page showed
+SPARE_FRAMES = 6
 
 
 @dataclass(frozen=True)
@@ -92,7 +94,9 @@ class LiveSession:
         self.tracker = RingTracker(setup, n_pixels=o.track_pixels)
         self.settle = SettleDetector(o.settle_frames, o.settle_fringes)
         self.sign = MotionSign(o.sign_min_fringes)
-        self.history: deque = deque(maxlen=o.history)  # (SourceFrame, LiveState)
+        self.history: deque = deque(maxlen=o.history)  # (frame index, LiveState)
+        # images are large (1 MB per megapixel): only those a capture can take are kept
+        self.recent_frames: deque = deque(maxlen=o.settle_frames + SPARE_FRAMES)
         self._phases: deque = deque(maxlen=4)
         self._times: deque = deque(maxlen=20)
         self.latest: LiveState | None = None
@@ -146,7 +150,8 @@ class LiveSession:
             )
         self.analysed += 1
         with self._lock:
-            self.history.append((f, st))
+            self.history.append((f.index, st))
+            self.recent_frames.append(f)
             self.latest = st
             self.latest_frame = f
         return st
@@ -215,22 +220,27 @@ class LiveSession:
         with self._lock:
             hist = list(self.history)
         if at_frame is not None:
-            upto = [i for i, (f, _st) in enumerate(hist) if f.index == at_frame]
+            upto = [i for i, (idx, _st) in enumerate(hist) if idx == at_frame]
             if upto:
                 hist = hist[: upto[0] + 1]
         if not hist or not hist[-1][1].settled:
             raise InputError("the part is not settled: wait until the rings stand still, then capture")
+        with self._lock:
+            kept = {f.index: f for f in self.recent_frames}
         settled = []
-        for f, st in reversed(hist):
+        for idx, st in reversed(hist):
             if not st.settled:
                 break
-            settled.append((f, st))
+            if idx in kept:
+                settled.append((kept[idx], st))
+        if not settled:
+            raise InputError("the settled frame is no longer held (the camera moved on); capture again")
         settled = list(reversed(settled))[-max(1, n_frames):]
         last = settled[-1][1]
         motion = [
             {"frame": st.frame, "phase_fringes": round(st.phase / (2 * math.pi), 4), "rings": st.rings,
              "settled": st.settled}
-            for _f, st in hist if st.ok
+            for _i, st in hist if st.ok
         ]
         evidence = {
             "power_sign": last.power_sign,

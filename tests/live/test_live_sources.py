@@ -4,8 +4,10 @@ import time
 
 import cv2
 import numpy as np
+import pytest
 from live_common import setup_for_tests
 
+from ringgauge.errors import InputError
 from ringgauge.live.session import LiveSession
 from ringgauge.live.source import CaptureSource, open_source
 
@@ -48,3 +50,21 @@ def test_track_lost_on_a_blank_frame_and_found_again(sequences, tmp_path):
     assert not states[7].settled  # the settle window starts again after a lost track
     # the track found again goes on to read the sign when the part comes to rest
     assert states[-1].settled and states[-1].power_sign == "-"
+
+
+def test_capture_set_keeps_few_images_and_the_motion_evidence(sequences):
+    seq = sequences[("edge", "pressing")]
+    with open_source(seq["video"]) as src:
+        s = LiveSession(src, setup_for_tests())
+        states = list(s)
+    assert len(s.recent_frames) <= s.options.settle_frames + 6  # images are not hoarded (1 MB per megapixel)
+    assert len(s.history) == len(states)  # the states (small) are all kept as evidence
+    got = s.capture_set(1)
+    assert [f.index for f in got["frames"]] == [states[-1].frame]
+    ev = got["evidence"]
+    assert ev["power_sign"] == "-" and [r["event"] for r in ev["readings"]] == ["press"]
+    assert len(ev["motion_before"]) == len(states)
+    # a frame that moved on past the kept images cannot be captured as if it were there
+    first_settled = next(st.frame for st in states if st.settled)
+    with pytest.raises(InputError, match="no longer held"):
+        s.capture_set(1, at_frame=first_settled)
