@@ -3,8 +3,9 @@ in its own process under a memory limit. Every run must end cleanly: a documente
 internal error — nor a signal, nor a hang), at most one line on stderr (exactly one when it fails), no traceback.
 
 Cost is bounded: the base images are small (160 x 120), the pixel budget is 4 megapixels, each case has 45 s
-(a case takes about a second), and no new case starts after :data:`TIME_BUDGET_S` (all 300 run on an idle machine). Cases run in processes forked from a server that has already
-imported ringgauge, so a case costs its own work only. The cases are seeded: a failure names its case number and
+(a case takes about a second), and no new case starts after :data:`TIME_BUDGET_S`, so a busy machine runs fewer
+of the 300 (about 140-200 at a load of 10 on 2 cores). Cases run in processes forked from a server that has
+already imported ringgauge, so a case costs its own work only. The cases are seeded: a failure names its case number and
 the mutated file is kept for replay.
 """
 
@@ -271,6 +272,6 @@ def test_mutated_images_end_cleanly(tmp_path):
     report = "; ".join(f"{cases[i].name}: {why} — {results[i][1].strip()[:200]!r}" for i, why in sorted(bad.items()))
     assert not bad, f"{len(bad)} of {len(results)} mutated files did not end cleanly: {report}"
     slowest = max(ans.get("elapsed", 0.0) for ans, _ in results.values())
-    # 300 cases fit in the time budget on an idle 2-core machine; a busy one runs fewer, but never too few
+    # a busy machine runs fewer cases in the time budget, but never too few to mean something
     assert len(results) >= 40, f"only {len(results)} cases ran in {elapsed:.0f} s (exit statuses {codes})"
     print(f"fuzz: {len(results)} cases in {elapsed:.1f} s, slowest {slowest:.1f} s, exit statuses {codes}")
