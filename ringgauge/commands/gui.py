@@ -41,6 +41,10 @@ def run(args) -> int:
         parse_address(db if db else os.environ["RINGGAUGE_DB"], option="--db" if db else "RINGGAUGE_DB")
         if db:
             os.environ["RINGGAUGE_DB"] = db
+    cam = getattr(args, "camera", None)
+    if cam is not None and not cam.strip().isdigit() and "://" not in cam and not os.path.exists(cam):
+        raise InputError(f"--camera {cam}: no such file or folder (give a camera index, a stream address, a video "
+                         "file or a folder of frames)")
     for p in args.paths:
         if not os.path.exists(p):
             raise InputError(f"{p}: no such file or folder")

@@ -138,3 +138,9 @@ def test_watch_bad_options_one_line(sequences, capsys, extra, words):
     rc = main(["watch", "--camera", seq["video"], *SETUP, *extra])
     err = capsys.readouterr().err
     assert rc == 2 and words in err and len(err.strip().splitlines()) == 1, err
+
+
+def test_gui_camera_missing_file_stops_before_the_window(tmp_path, capsys):
+    rc = main(["gui", "--camera", str(tmp_path / "nope.avi")])
+    err = capsys.readouterr().err
+    assert rc == 2 and "no such file" in err and len(err.strip().splitlines()) == 1
