@@ -13,7 +13,14 @@ baseline that counts dark-fringe minima along the two meridians through the aper
 the half-counts, astigmatism = their difference; irregularity is not visible to it), whether |error| <= 2u
 (expanded uncertainty coverage), and seconds per image.
 
-Usage: python scripts/bench_form.py [--n 12] [--seed 1] [--size 384]
+Speed (``--speed``, also run by default after the accuracy sets; ``--quick`` runs a small accuracy set and the
+speed part): a 1.3-megapixel frame (1280 x 1024, part 900 px across) and a five-frame set with unequal steps
+and tilt changes are written as PNG files, then each case runs in a fresh process that loads them and
+evaluates the form (wall and CPU seconds, peak resident memory). ``--code DIR`` runs the same cases against
+another checkout of ringgauge (e.g. an earlier commit unpacked with ``git archive``) for before/after figures.
+The machine may be shared: the CPU seconds are the steadier figure when other work is running.
+
+Usage: python scripts/bench_form.py [--n 12] [--seed 1] [--size 384] [--speed] [--quick] [--code DIR]
 """
 
 from __future__ import annotations
@@ -123,12 +130,97 @@ def count_minima(image, centre, radius):
     return {"power": 0.5 * (nx + ny), "astig": abs(nx - ny)}
 
 
+SPEED_CASES = (
+    # (label, frames, aperture given by hand)
+    ("one frame, 1.3 MP, aperture given", 1, True),
+    ("one frame, 1.3 MP, aperture found", 1, False),
+    ("five frames, 1.3 MP, aperture given", 5, True),
+    ("five frames, 1.3 MP, aperture found", 5, False),
+)
+SPEED_CHILD = r"""
+import json, sys, time
+sys.path.insert(0, sys.argv[1])
+
+
+def hwm():
+    # peak resident memory of this process (VmHWM; ru_maxrss would carry the forking parent's peak)
+    for line in open("/proc/self/status"):
+        if line.startswith("VmHWM:"):
+            return int(line.split()[1]) / 1024
+    return float("nan")
+
+
+from ringgauge.bench_setup import default_setup
+from ringgauge.form.evaluate import evaluate_form
+from ringgauge.imaging import load_frame
+paths, given = sys.argv[3:], sys.argv[2] == "1"
+frames = [load_frame(p) for p in paths]
+extras = {"aperture_px": (639.5, 511.5, 450.0)} if given else {}
+setup = default_setup(20.0, "mercury-e", pixel_size_u_um=0.02, extras=extras)
+base = hwm()
+t0, c0 = time.perf_counter(), time.process_time()
+r = evaluate_form(frames, setup)
+out = {"wall": time.perf_counter() - t0, "cpu": time.process_time() - c0,
+       "rss_mb": hwm(), "rss_before_mb": base,
+       "power": r.terms["power_fringes"], "route": getattr(r, "route", "one-frame fit" if len(frames) == 1 else
+                                                       "model fit (all frames)")}
+print(json.dumps(out))
+"""
+
+
+def speed(code_dir: Path, log=print) -> list[dict]:
+    """Time the form evaluation of a 1.3-megapixel frame and a five-frame set in fresh processes."""
+    import json
+    import subprocess
+    import tempfile
+
+    from ringgauge.imaging import save_png
+
+    cam = synth.Camera(width=1280, height=1024, pixel_um=20.0, blur_px=0.8)
+    form = synth.SurfaceForm(power=3.0, astig=0.5, astig_axis_deg=30, zonal=0.1, piston=0.3)
+    steps = (0.0, 0.12, 0.27, 0.41, 0.58)
+    tilts = ((0, 0), (0.03, -0.02), (0.05, 0.0), (0.01, 0.04), (-0.03, 0.02))
+    rows = []
+    with tempfile.TemporaryDirectory(prefix="rg-bench-form-") as tmp:
+        paths = []
+        for i, (st, (tx, ty)) in enumerate(zip(steps, tilts)):
+            f = synth.SurfaceForm(**{**form.__dict__, "piston": form.piston + st, "tilt_x": tx, "tilt_y": ty})
+            img = synth.test_plate_fringes(f, aperture_diameter_mm=18.0, camera=cam, rng=500 + i)
+            pth = Path(tmp) / f"set-{i + 1}.png"
+            save_png(pth, img.image01, bits=8)
+            paths.append(str(pth))
+        for label, n, given in SPEED_CASES:
+            cmd = [sys.executable, "-c", SPEED_CHILD, str(code_dir), "1" if given else "0", *paths[:n]]
+            pr = subprocess.run(cmd, capture_output=True, text=True)
+            if pr.returncode:
+                err = (pr.stderr.strip().splitlines() or ["?"])[-1]
+                log(f"  {label:38s} failed: {err[:110]}")
+                rows.append({"label": label, "failed": err})
+                continue
+            d = json.loads(pr.stdout.strip().splitlines()[-1])
+            d["label"] = label
+            rows.append(d)
+            log(f"  {label:38s} {d['wall']:6.2f} s wall {d['cpu']:6.2f} s CPU  peak {d['rss_mb']:5.0f} MB "
+                f"(after loading {d['rss_before_mb']:4.0f} MB)  power {d['power']:+.3f} fr  [{d['route']}]")
+    return rows
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--n", type=int, default=12, help="images per set (default 12, two sets)")
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--size", type=int, default=384, help="image side in pixels (default 384)")
+    ap.add_argument("--speed", action="store_true", help="only the speed and memory part")
+    ap.add_argument("--quick", action="store_true", help="a small accuracy set (3 per kind) and the speed part")
+    ap.add_argument("--code", type=Path, default=Path(__file__).resolve().parents[1],
+                    help="ringgauge checkout to time (default: this one)")
     args = ap.parse_args(argv)
+    if args.speed:
+        print(f"surface-form speed ({args.code}); targets: one frame <= 0.5 s and <= 300 MB, five frames <= 1.5 s")
+        speed(args.code)
+        return 0
+    if args.quick:
+        args.n = 3
     g = np.random.default_rng(args.seed)
     rows = []
     print(f"surface-form benchmark: {2 * args.n} images of {args.size}×{args.size} px (seed {args.seed})")
@@ -188,6 +280,9 @@ def main(argv=None) -> int:
               f"{100 * cov:.0f} %; {sec:.1f} s/image")
         print(f"  {'':12s}        counting minima: power {pc:.3f} (max {pcm:.3f}), astig {ac:.3f} (max {acm:.3f}); "
               f"ratio counting/fit RMS: power {pc / max(pf, 1e-9):.0f}×, astig {ac / max(af, 1e-9):.0f}×")
+    print()
+    print(f"surface-form speed ({args.code}); targets: one frame <= 0.5 s and <= 300 MB, five frames <= 1.5 s")
+    speed(args.code)
     return 0
 
 

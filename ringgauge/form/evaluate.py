@@ -280,6 +280,15 @@ def _masks(mask: np.ndarray | None, pixel_um, saturated: np.ndarray | None, fram
 
 
 def evaluate_form(frames, setup, *, progress=None) -> FormResult:
+    """Evaluate the surface form of a part on a test plate from one or more frames (see :func:`_evaluate_form`;
+    run with the BLAS library held to one thread: its matrices are small and the machine is shared)."""
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _evaluate_form(frames, setup, progress=progress)
+
+
+def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     """Evaluate the surface form of a part on a test plate from one or more frames.
 
     Parameters
@@ -349,10 +358,15 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     if pm is not None:
         route = f"phase map from {len(frames)} frames (Wang–Han)"
         pm_mask = np.zeros(shape0, dtype=bool)
-        x0, y0 = pm.crop_origin_px
-        pm_mask[y0 : y0 + pm.masked.shape[0], x0 : x0 + pm.masked.shape[1]] = pm.masked
+        xs_m, ys_m = pm.pixel_xy()
+        st_m = pm.stride
+        for dy in range(st_m):
+            for dx in range(st_m):
+                yy_m, xx_m = ys_m + dy, xs_m + dx
+                okr, okc = yy_m < shape0[0], xx_m < shape0[1]
+                pm_mask[np.ix_(yy_m[okr], xx_m[okc])] |= pm.masked[np.ix_(okr, okc)]
         masks += _masks(pm_mask, (px, py), None, 0)
-        masked_px += int(pm.masked.sum()) * len(frames)
+        masked_px += int(pm.masked.sum()) * st_m * st_m * len(frames)
         warnings += list(pm.notes)
     for i, fr_ in enumerate(frames if pm is None else ()):
         f0 = 0.05 + 0.85 * i / len(frames)
@@ -611,9 +625,8 @@ def _height_map(pm, fits, ap, fringe_nm, sign):
             if np.polyfit(r2, vals, 1)[0] < 0:
                 vals = -vals
         out[ok] = vals * fringe_nm
-        x0, y0 = pm.crop_origin_px
-        xs = np.arange(x0, x0 + gap.shape[1])[::st]
-        ys = np.arange(y0, y0 + gap.shape[0])[::st]
+        xs, ys = pm.pixel_xy()
+        xs, ys = xs[::st], ys[::st]
         return out, (float(xs[0]), float(xs[-1]), float(ys[-1]), float(ys[0]))
     if not fits:
         return None, None

@@ -510,7 +510,7 @@ def _fit_gap(
     drho2 = duc[None, :] ** 2 + dvr[:, None] ** 2
     dinside = drho2 <= r_use**2
     nd = int(dinside.sum())
-    cst = max(1, int(math.ceil(math.sqrt(nd / 3000))))
+    cst = max(1, int(math.ceil(math.sqrt(nd / 2000))))
     coarse = np.zeros_like(dinside)
     coarse[::cst, ::cst] = True
     coarse &= dinside
@@ -552,7 +552,7 @@ def _fit_gap(
         tried = []
         cprob = _Problem(cu, cv, cy_, finesse=0.0)
         for c0 in starts:
-            r = _refine(cprob, cprob.start(c0, (-0.8, 0, 0)), LOW_ORDER, max_nfev=30)
+            r = _refine(cprob, cprob.start(c0, (-0.8, 0, 0)), LOW_ORDER, max_nfev=20)
             tried.append((_cost(r), tuple(r.x)))
         tried.sort(key=lambda t: t[0])
         if progress:
@@ -615,15 +615,26 @@ def _fit_gap(
         # model-choice sensitivity
         if progress:
             progress("choosing the fringe shape")
-        fits = [(finesse, prob, res)]
+        # the choice and the sensitivities are refits on a third of the sample (the same pixels for every
+        # candidate, so their differences are the model's, not the noise's)
+        kk = max(1, prob.y.size // 6000)
+
+        def on_mid(F, deg=illum_degree, _p=prob):
+            return _Problem(_p.u[::kk], _p.v[::kk], _p.y[::kk], deg, finesse=F)
+
+        fits = [(finesse, _refine(on_mid(finesse), res.x, nw, max_nfev=30))]
         for Fc in finesse_candidates:
             if abs(Fc - finesse) < 1e-9:
                 continue
-            pc = _Problem(prob.u, prob.v, prob.y, illum_degree, finesse=Fc)
-            fits.append((Fc, pc, _refine(pc, res.x, nw, max_nfev=40)))
-        fits.sort(key=lambda t: _cost(t[2]))
-        finesse, prob, res = fits[0]
-        alternatives["fringe shape (next best F)"] = (fits[1][2].x[:nw].copy(), fits[1][2].x[nw : nw + 3].copy())
+            fits.append((Fc, _refine(on_mid(Fc), res.x, nw, max_nfev=40)))
+        fits.sort(key=lambda t: _cost(t[1]))
+        if abs(fits[0][0] - finesse) > 1e-9:
+            finesse = fits[0][0]
+            prob = _Problem(prob.u, prob.v, prob.y, illum_degree, finesse=finesse)
+            res = _refine(prob, fits[0][1].x, nw, max_nfev=60)
+        chosen = fits[0][1].x
+        d_alt = fits[1][1].x - chosen
+        alternatives["fringe shape (next best F)"] = ((res.x + d_alt)[:nw].copy(), (res.x + d_alt)[nw : nw + 3].copy())
         shape_note = f"fringe shape: coefficient of finesse F = {finesse:.3f} fitted best"
     p = res.x
     r = res.fun[:-2]  # without the two constraint rows
@@ -642,9 +653,11 @@ def _fit_gap(
     if finesse_candidates:
         if progress:
             progress("model sensitivity (illumination)")
-        alt = _Problem(prob.u, prob.v, prob.y, illum_degree + 1, finesse=finesse)
-        ra = _refine(alt, alt.start(p[:nw], p[nw : nw + 3]), nw, max_nfev=40)
-        alternatives[f"illumination model (degree {illum_degree + 1})"] = (ra.x[:nw].copy(), ra.x[nw : nw + 3].copy())
+        alt = on_mid(finesse, illum_degree + 1)
+        ra = _refine(alt, alt.start(chosen[:nw], chosen[nw : nw + 3]), nw, max_nfev=40)
+        dc = ra.x[: nw + 3] - chosen[: nw + 3]
+        alternatives[f"illumination model (degree {illum_degree + 1})"] = ((p[:nw] + dc[:nw]).copy(),
+                                                                          (p[nw : nw + 3] + dc[nw:]).copy())
     edge_scale = _edge_from_model(resid, crop.rho2, radius_px) if prior is None else 1.0
     c, m = p[:nw], p[nw : nw + 3]
     contrast = _contrast(prob, p, nw)
@@ -988,6 +1001,7 @@ def _correlation_factor(resid, mask, stride):
     samples share; the factor (1 + 2 rho_x)(1 + 2 rho_y), floored at 1, is the usual first-order correction
     for a sum over an AR(1)-like correlated sample.
     """
+    # every fourth row (for the x lag) and column (for the y lag) is plenty for two correlation coefficients
     m = mask
     r = np.where(m, resid, 0.0)
     rv = r[m]
@@ -996,9 +1010,10 @@ def _correlation_factor(resid, mask, stride):
         return 1.0
     rhos = []
     for dy, dx in ((0, stride), (stride, 0)):
-        a = r[: r.shape[0] - dy, : r.shape[1] - dx]
-        b = r[dy:, dx:]
-        mm = m[: m.shape[0] - dy, : m.shape[1] - dx] & m[dy:, dx:]
+        sub = (slice(None, None, 4), slice(None)) if dy == 0 else (slice(None), slice(None, None, 4))
+        a = r[: r.shape[0] - dy, : r.shape[1] - dx][sub]
+        b = r[dy:, dx:][sub]
+        mm = (m[: m.shape[0] - dy, : m.shape[1] - dx] & m[dy:, dx:])[sub]
         if mm.sum() < 100:
             rhos.append(0.0)
             continue

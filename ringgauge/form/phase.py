@@ -332,7 +332,8 @@ class PhaseMap:
     """Surface departure from the frames, in fringes of gap (one fringe = lambda / (2 n))."""
 
     gap_fringes: np.ndarray  # (rows, cols) over the crop, NaN outside the aperture or where masked
-    crop_origin_px: tuple[int, int]  # (x0, y0) of the crop in the frame
+    crop_origin_px: tuple[int, int]  # (x0, y0) of the map's first pixel in the frame
+    stride: int  # frame pixels between neighbouring map pixels
     centre_px: tuple[float, float]
     radius_px: float
     aspect: float
@@ -349,12 +350,16 @@ class PhaseMap:
     n_frames: int
     notes: tuple[str, ...] = field(default_factory=tuple)
 
-    def pixel_coords(self):
+    def pixel_xy(self):
+        """Frame column and row of the map's columns and rows."""
         H, W = self.gap_fringes.shape
         x0, y0 = self.crop_origin_px
-        uc = (np.arange(x0, x0 + W) - self.centre_px[0]) / self.radius_px
-        vr = (np.arange(y0, y0 + H) - self.centre_px[1]) * self.aspect / self.radius_px
-        return uc, vr
+        return x0 + self.stride * np.arange(W), y0 + self.stride * np.arange(H)
+
+    def pixel_coords(self):
+        """Normalised aperture coordinates (u of the columns, v of the rows)."""
+        xs, ys = self.pixel_xy()
+        return (xs - self.centre_px[0]) / self.radius_px, (ys - self.centre_px[1]) * self.aspect / self.radius_px
 
 
 def _decimate_complex(z, q):
@@ -441,9 +446,15 @@ def _phase_map(images, centre_px, radius_px, *, aspect: float = 1.0, gap_change:
                                   f"({', '.join(f'{c / (2 * np.pi):+.3f}' for c in consec)} fringe); "
                                   "the gap did not change in one direction, so the sign is not taken from them")
     o = orientation if orientation else 1
-    # per-pixel phase at full resolution with the found steps
+    # per-pixel phase with the found steps, on a grid of at most ~250 px across the aperture radius (the
+    # form terms need Zernike degree 8 at most; a 1.3-megapixel frame's map is taken every second pixel)
     if progress:
         progress("phase of every pixel")
+    q = max(1, int(math.ceil(radius_px / 250)))
+    if q > 1:
+        stack = stack[:, ::q, ::q]
+        inside = inside[::q, ::q]
+        uc, vr = uc[::q], vr[::q]
     py, px_ = np.nonzero(inside)
     pu, pv = uc[px_], vr[py]
     delta = steps[:, :1] + steps[:, 1:2] * pu[None, :] + steps[:, 2:3] * pv[None, :]
@@ -468,7 +479,8 @@ def _phase_map(images, centre_px, radius_px, *, aspect: float = 1.0, gap_change:
         progress("unwrapping")
     from skimage.restoration import unwrap_phase
 
-    q = max(1, int(radius_px // 200))
+    q_g = max(1, int(radius_px / q // 200))
+    q, q_map = q_g, q
     z = np.where(good, np.exp(1j * wrapped), 0)
     zq = _decimate_complex(z, q)
     gq = _decimate_complex(good.astype(float), q) > 0.75
@@ -496,7 +508,8 @@ def _phase_map(images, centre_px, radius_px, *, aspect: float = 1.0, gap_change:
     if not res.converged:
         notes.append(f"the phase-step iteration did not settle in {res.iterations} rounds")
     return PhaseMap(
-        gap_fringes=gap, crop_origin_px=(x0, y0), centre_px=(float(cx), float(cy)), radius_px=float(radius_px),
+        gap_fringes=gap, crop_origin_px=(x0, y0), stride=q_map, centre_px=(float(cx), float(cy)),
+        radius_px=float(radius_px),
         aspect=float(aspect),
         steps_fringes=tuple(float(o * x / (2 * np.pi)) for x in np.concatenate([[0.0], np.cumsum(consec)])),
         tilts_fringes=tuple((float(o * t[1] / (2 * np.pi)), float(o * t[2] / (2 * np.pi))) for t in steps),
