@@ -159,8 +159,11 @@ class FolderSource(FrameSource):
 
 def _open_capture(spec, timeout_s: float):
     """Open a VideoCapture and read its first frame in a helper thread, waiting at most ``timeout_s``."""
+    from ..imaging import pixel_budget
+
     cv2 = _quiet_opencv()
     box: dict = {}
+    budget = pixel_budget()
 
     def work():
         try:
@@ -173,6 +176,11 @@ def _open_capture(spec, timeout_s: float):
                 cap = cv2.VideoCapture(arg)
             ok = cap.isOpened()
             first = None
+            if ok:
+                w, h = cap.get(cv2.CAP_PROP_FRAME_WIDTH), cap.get(cv2.CAP_PROP_FRAME_HEIGHT)
+                if w * h > budget * 1e6:  # refused before the first frame is decoded
+                    box["too_big"] = (int(w), int(h))
+                    ok = False
             if ok:
                 ok, first = cap.read()
             box["cap"], box["ok"], box["first"] = cap, ok, first
@@ -190,6 +198,11 @@ def _open_capture(spec, timeout_s: float):
         raise InputError(f"{spec}: the source did not answer within {timeout_s:g} s; check the address or cable")
     if "error" in box:
         raise InputError(f"{spec}: cannot open it ({box['error']})")
+    if "too_big" in box:
+        w, h = box["too_big"]
+        box["cap"].release()
+        raise InputError(f"{spec}: frames of {w}×{h} px exceed the limit of {budget:g} megapixels "
+                         "(--max-megapixels)")
     return box["cap"], box["ok"], box["first"], time.monotonic() - t0 >= 0.9 * timeout_s
 
 

@@ -144,3 +144,10 @@ def test_gui_camera_missing_file_stops_before_the_window(tmp_path, capsys):
     rc = main(["gui", "--camera", str(tmp_path / "nope.avi")])
     err = capsys.readouterr().err
     assert rc == 2 and "no such file" in err and len(err.strip().splitlines()) == 1
+
+
+def test_watch_refuses_frames_over_the_pixel_budget(sequences, capsys):
+    seq = sequences[("centre", "pressing")]  # 320 x 256 px = 0.08 MP
+    rc = main(["watch", "--camera", seq["video"], *SETUP, "--max-megapixels", "0.05"])
+    err = capsys.readouterr().err
+    assert rc == 2 and "exceed the limit of 0.05 megapixels" in err and len(err.strip().splitlines()) == 1
