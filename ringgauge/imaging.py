@@ -359,10 +359,26 @@ def load_frame(path: str | os.PathLike, *, max_megapixels: float | None = None) 
     complex-valued TIFF is refused, a multi-page TIFF is read from its first page with a note saying so, and
     every decoder failure or limit becomes one line; library warnings are not printed.
     """
+    p = Path(path)
+    raw, digest, notes = _read_raw(p, max_megapixels)
+    frame = frame_from_array(raw, path=str(p), sha256=digest)
+    if notes:
+        frame = Frame(frame.data, frame.path, frame.sha256, frame.bit_depth, frame.saturated_fraction,
+                      frame.channel, frame.notes + tuple(notes))
+    return frame
+
+
+def read_image_codes(path: str | os.PathLike, *, max_megapixels: float | None = None) -> np.ndarray:
+    """The decoded pixel codes of an image file (uint8 / uint16 / float32, grey or BGR), read with every check
+    of :func:`load_frame` (regular file, pixel budget from the header, one-line errors) — for code that needs
+    the codes themselves, e.g. frames of a camera folder."""
+    return _read_raw(Path(path), max_megapixels)[0]
+
+
+def _read_raw(p: Path, max_megapixels: float | None) -> tuple[np.ndarray, str, list[str]]:
     import cv2
 
     _quiet_opencv(cv2)
-    p = Path(path)
     budget = pixel_budget() if max_megapixels is None else float(max_megapixels)
     max_bytes = int(budget * 1e6 * _BYTES_PER_PIXEL_LIMIT) + _METADATA_SLACK_BYTES
     with _open_regular(p) as fh:
@@ -434,12 +450,7 @@ def load_frame(path: str | os.PathLike, *, max_megapixels: float | None = None) 
         with np.errstate(all="ignore"):
             raw = raw.astype(np.float32)
     digest = hashlib.sha256(data).hexdigest()
-    del buf, data
-    frame = frame_from_array(raw, path=str(p), sha256=digest)
-    if notes:
-        frame = Frame(frame.data, frame.path, frame.sha256, frame.bit_depth, frame.saturated_fraction,
-                      frame.channel, frame.notes + tuple(notes))
-    return frame
+    return raw, digest, notes
 
 
 @contextlib.contextmanager

@@ -238,3 +238,18 @@ def test_loader_script_in_child_never_warns(tmp_path):
     r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60, cwd=REPO)
     assert r.returncode == 0, r.stderr
     assert r.stderr == "" and "3 pages" in r.stdout
+
+
+def test_camera_folder_frames_get_the_same_checks(tmp_path):
+    from ringgauge.live.source import FolderSource
+
+    save_png(tmp_path / "frame_00000.png", _rings())
+    png_bomb(tmp_path / "frame_00001.png", 16000, 16000)
+    os.mkfifo(tmp_path / "frame_00002.png")
+    src = FolderSource(str(tmp_path))
+    assert src.read() is not None
+    with pytest.raises(ImageError, match="declares 16000x16000 pixels"):
+        src.read()
+    src._i = 2
+    with pytest.raises(ImageError, match="is a named pipe"):
+        src.read()

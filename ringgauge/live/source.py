@@ -134,8 +134,6 @@ class FolderSource(FrameSource):
         self._t0 = None
 
     def read(self) -> SourceFrame | None:
-        import cv2
-
         if self.pace:
             now = time.monotonic()
             if self._t0 is None:
@@ -147,9 +145,9 @@ class FolderSource(FrameSource):
         if self._i >= len(self.files):
             return None
         p = self.files[self._i]
-        img = cv2.imread(str(p), cv2.IMREAD_UNCHANGED)
-        if img is None:
-            raise InputError(f"{p.name}: not an image OpenCV can read")
+        from ..imaging import read_image_codes
+
+        img = read_image_codes(p)  # a pipe, device or size bomb among the frames is refused in one line
         g = _grey(img)
         full = 255.0 if g.dtype == np.uint8 else 65535.0
         f = SourceFrame(self._i, g, time.monotonic(), full)
