@@ -225,6 +225,20 @@ def _open_regular(p: Path):
     return os.fdopen(fd, "rb")
 
 
+def check_image_path(path: str | os.PathLike) -> Path:
+    """Refuse a missing file, a folder, a pipe or a device by its path alone (nothing is opened), so that no
+    other code that peeks at the image first (a header read for option checks) can block on it."""
+    p = Path(path)
+    try:
+        st = os.stat(p)
+    except FileNotFoundError:
+        raise ImageError(f"{p}: no such file; check the path") from None
+    except OSError as exc:
+        raise ImageError(f"{p}: cannot be read ({exc.strerror or exc})") from None
+    _refuse_irregular(p, st.st_mode)
+    return p
+
+
 def _refuse_irregular(p: Path, mode: int) -> None:
     if stat.S_ISREG(mode):
         return

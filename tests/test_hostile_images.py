@@ -253,3 +253,10 @@ def test_camera_folder_frames_get_the_same_checks(tmp_path):
     src._i = 2
     with pytest.raises(ImageError, match="is a named pipe"):
         src.read()
+
+
+def test_fifo_with_aperture_option_does_not_hang(tmp_path):
+    fifo = tmp_path / "frame.png"
+    os.mkfifo(fifo)
+    r = _cli("analyze", str(fifo), *CLI_ARGS, "--aperture", "10", "10", "10", timeout=30)
+    assert r.returncode == 2 and "is a named pipe" in r.stderr and r.stderr.count("\n") == 1

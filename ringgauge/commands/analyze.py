@@ -151,6 +151,10 @@ def run(args: argparse.Namespace) -> int:
 
     if args.out:
         check_target(args.out, "--out")  # before the analysis, not after it
+    from ..imaging import check_image_path
+
+    for image in args.images:
+        check_image_path(image)  # a pipe or device is refused before anything opens it (option checks peek)
     setup, warnings = setup_from_args(args)
     progress = None
     if not args.quiet and sys.stderr.isatty():
