@@ -391,7 +391,10 @@ class LivePage(QWidget):
         contact = str(g.choice(["centre", "edge"]))
         plan = SequencePlan(radius_mm=float(g.uniform(500.0, 900.0)), contact=contact, settle_frames=30,
                             rest_frames=12, press_frames=14, after_frames=12)
+        self.stop()
+        self._drop_practice_dir()
         folder = tempfile.mkdtemp(prefix="rg-practice-")
+        self._practice_dir = folder
         out = os.path.join(folder, "practice.avi")
         job: dict = {"done": False, "error": None}
 
@@ -404,7 +407,6 @@ class LivePage(QWidget):
                 job["error"] = str(exc)
             job["done"] = True
 
-        self.stop()
         self.practice_btn.setEnabled(False)
         self.practice_note.setText("Making a practice sequence …")
         self._practice_job = job
@@ -422,6 +424,14 @@ class LivePage(QWidget):
                 QTimer.singleShot(100, poll)
 
         QTimer.singleShot(100, poll)
+
+    def _drop_practice_dir(self) -> None:
+        import shutil
+
+        d = getattr(self, "_practice_dir", None)
+        if d:
+            shutil.rmtree(d, ignore_errors=True)
+            self._practice_dir = None
 
     def _practice_ready(self, job, out, contact) -> None:
         self.practice_btn.setEnabled(True)
@@ -496,7 +506,8 @@ class LivePage(QWidget):
 
 
 class _StopOnClose(QObject):
-    """Stops the live session (its thread and the camera) when the main window closes."""
+    """Stops the live session (its thread and the camera) when the main window closes, and removes a practice
+    sequence's temporary files."""
 
     def __init__(self, page: LivePage, parent):
         super().__init__(parent)
@@ -505,6 +516,7 @@ class _StopOnClose(QObject):
     def eventFilter(self, obj, event):  # noqa: N802
         if event.type() == QEvent.Type.Close:
             self.page.stop()
+            self.page._drop_practice_dir()
         return False
 
 

@@ -106,3 +106,13 @@ def test_auto_capture_once_per_settling(window, qtbot, sequences):
     ev = {e["event"]: e for e in seq["truth"]["events"]}
     assert first < ev["pressing"]["first"] <= ev["releasing"]["last"] < second
     assert caught[1][1]["power_sign"] == "+"
+
+
+def test_practice_files_removed_when_the_window_closes(window, qtbot):
+    page = window.live
+    page.new_practice(seed=3, wait=True)
+    folder = page._practice_dir
+    assert os.path.isdir(folder)
+    window.close()
+    assert not os.path.exists(folder)
+    assert page.session is None or page.session.ended or page.session._stop.is_set()
