@@ -1,9 +1,11 @@
 """The clear aperture of a part on a test plate, and the pixels left out of the form fit.
 
-The part's edge bounds the fringe field: inside it the gap reflects with fringe modulation, outside it the
-plate shows a flat, dim level. The aperture is found from local brightness and local modulation, the largest
-region is kept and made convex (a dark fringe or a chip touching the edge only bites into it), and a
-geometric least-squares circle is fitted to the region's outline with a robust loss.
+The part's edge bounds the fringe field: inside it the gap reflects with fringes, outside it the plate alone
+shows the lamp's smooth light. The plate's light is modelled and divided out (so uneven light is neither part
+nor dust), the part is the region departing from it, and the rim is placed to a fraction of a pixel by fitting
+a blurred-edge model along rays — a step in brightness and slope, so a rim on a dark, grey or bright fringe is
+found alike — and a geometric circle through all rays at once (see :func:`find_aperture`). An aperture can
+also be set by hand (:func:`aperture_for`), as the window and ``analyze --aperture`` do.
 
 Masks: saturated pixels (glare) are removed before the fit; dust, scratches and chips are found afterwards as
 connected clusters of large fit residuals (see :mod:`ringgauge.form.fit`).
@@ -11,7 +13,10 @@ connected clusters of large fit residuals (see :mod:`ringgauge.form.fit`).
 References
 ----------
 Geometric circle fit: least squares on the orthogonal distances (scipy ``least_squares``), preferred over
-algebraic fits, which are biased on partial arcs.
+algebraic fits, which are biased on partial arcs. Blurred edge: a step convolved with a Gaussian point-spread
+function is an error function (the closed forms used are moments of the normal distribution). Variable
+projection for models linear in some parameters: G. H. Golub, V. Pereyra, SIAM J. Numer. Anal. 10(2) 413
+(1973).
 """
 
 from __future__ import annotations
@@ -22,7 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import ndimage, optimize
 
-from ..errors import AnalysisError
+from ..errors import AnalysisError, InputError
 
 
 @dataclass(frozen=True)
@@ -45,6 +50,7 @@ class Aperture:
     radius_u_px: float = 0.0
     edge_rms_px: float = 0.0
     notes: tuple[str, ...] = field(default_factory=tuple)
+    manual: bool = False  # set by hand (window or --aperture): evaluated as given, never moved by the engine
 
     def to_dict(self, pixel_size_um: tuple[float, float] | None = None) -> dict:
         d = {
@@ -54,6 +60,7 @@ class Aperture:
             "diameter_u_px": 2 * float(self.radius_u_px),
             "edge_rms_px": float(self.edge_rms_px),
             "notes": list(self.notes),
+            "source": "set by hand" if self.manual else "found from the image",
         }
         if pixel_size_um is not None:
             d["diameter_mm"] = 2 * float(self.radius_px) * pixel_size_um[0] * 1e-3
@@ -61,8 +68,47 @@ class Aperture:
         return d
 
 
+_NO_EDGE = "the part's edge was not found"
+_TRY = ("; show the whole part with some plate around it, in focus, or give the aperture by hand "
+        "(analyze --aperture X Y DIAMETER, or set it in the window)")
+
+
+def aperture_for(image: np.ndarray, *, aspect: float = 1.0, extras: dict | None = None) -> Aperture:
+    """The aperture set by hand (``extras["aperture_px"] = (x, y, radius)``, as the window and ``--aperture``
+    pass it), else the one found by :func:`find_aperture`."""
+    given = (extras or {}).get("aperture_px")
+    if given is None:
+        return find_aperture(image, aspect=aspect)
+    try:
+        x, y, r = (float(v) for v in given)
+    except (TypeError, ValueError):
+        raise InputError("the aperture set by hand must be three numbers: centre x, y and radius in pixels") from None
+    H, W = np.shape(image)[:2]
+    if not all(math.isfinite(v) for v in (x, y, r)) or r <= 0:
+        raise InputError(f"the aperture set by hand ({x:g}, {y:g}, radius {r:g}) px is not a usable circle")
+    if not (-0.5 <= x <= W - 0.5 and -0.5 <= y <= H - 0.5):
+        raise InputError(f"the aperture set by hand is centred at ({x:g}, {y:g}) px, outside the image ({W} x {H} px)")
+    if r < 4:
+        raise InputError(f"the aperture set by hand is too small to evaluate (diameter {2 * r:g} px, at least 8 px)")
+    notes = [f"aperture set by hand: diameter {2 * r:.1f} px about ({x:.1f}, {y:.1f}) px"]
+    if x - r < -0.5 or y - r / aspect < -0.5 or x + r > W - 0.5 or y + r / aspect > H - 0.5:
+        notes.append("the aperture set by hand runs off the frame; the form is evaluated on the part seen")
+    # a hand-set circle is a stated evaluation area; a quarter pixel stands for placing it on the image
+    return Aperture((x, y), r, (0.25, 0.25), 0.25, 0.0, tuple(notes), manual=True)
+
+
 def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     """Find the circular clear aperture of the fringe field.
+
+    Two stages. (1) Coarse: the plate around the part shows no fringes, only the lamp's smooth light; a
+    low-order surface fitted to log-brightness over the frame's border (then over everything outside the
+    current part estimate) models that light, so the part is the region that departs from it — uneven light
+    and vignetting are divided out instead of being mistaken for the part or for dust. (2) Fine: along rays
+    from the coarse centre, the outermost point where the brightness (divided by that light model) leaves the
+    plate's level; there a blurred-edge model — plate level outside, a local quadratic fringe profile inside,
+    a step in value and slope at the rim, convolved with a Gaussian blur — is fitted by least squares, which
+    places the rim to a fraction of a pixel whether it falls on a dark, grey or bright fringe. A geometric
+    least-squares circle (robust loss) through those rim points gives centre, radius and their uncertainties.
 
     Parameters
     ----------
@@ -75,56 +121,51 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     Raises
     ------
     AnalysisError
-        When no bounded fringe field is found.
+        When no bounded fringe field is found (the image shows no edge between part and plate).
     """
     img = np.asarray(image, dtype=np.float64)
     H, W = img.shape
-    # work on a reduced copy: the edge is found to a pixel or so, then refined on the full image
-    step = max(1, int(round(max(H, W) / 512)))
-    small = img[::step, ::step]
-    s = max(2.0, min(small.shape) / 80.0)
-    mean = ndimage.uniform_filter(small, size=int(4 * s) | 1)
-    sq = ndimage.uniform_filter(small * small, size=int(4 * s) | 1)
-    std = np.sqrt(np.clip(sq - mean * mean, 0, None))
-    feat = ndimage.gaussian_filter(mean + 2 * std, s)
-    lo, hi = np.percentile(feat, [2, 98])
-    if hi - lo <= 1e-6:
-        raise AnalysisError("no fringe field found: the image has no region of fringes against a darker surround")
-    thr = _otsu(feat)
-    mask = feat > thr
-    mask = ndimage.binary_opening(mask, iterations=2)
-    lab, n = ndimage.label(mask)
-    if n == 0:
-        raise AnalysisError("no fringe field found: try a sharper image of the whole part on the plate")
-    sizes = ndimage.sum(mask, lab, index=np.arange(1, n + 1))
-    region = lab == (1 + int(np.argmax(sizes)))
-    region = ndimage.binary_fill_holes(region)
-    if region.all() or region.sum() < 0.01 * region.size:
-        raise AnalysisError(
-            "the part's edge was not found (the fringe field fills the frame or is tiny); show the whole part "
-            "with some plate around it, or give the aperture by hand"
-        )
+    if min(H, W) < 24:
+        raise AnalysisError(_NO_EDGE + f" (the image, {W} x {H} px, is too small)" + _TRY)
+    light, region = _coarse_region(img)
     from skimage.morphology import convex_hull_image
 
     hull = convex_hull_image(region)
     edge = hull & ~ndimage.binary_erosion(hull)
     ys, xs = np.nonzero(edge)
-    xs = xs * step
-    ys = ys * step
+    if xs.size < 12:
+        raise AnalysisError(_NO_EDGE + " (no part outline against the plate)" + _TRY)
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
-    # refine on the full-resolution gradient: the strongest brightness step along each ray near the circle
-    hull_full = np.kron(hull, np.ones((step, step), dtype=bool))[:H, :W] if step > 1 else hull
-    circle, n_edge = _refine_edge(img, circle, aspect, hull_full, window=0.5)
-    fine, n_fine = _refine_edge(img, circle, aspect, hull_full, window=0.05)
-    moved = math.hypot(fine[0] - circle[0], fine[1] - circle[1]) + abs(fine[2] - circle[2])
-    if n_fine >= 0.5 * n_edge and moved < 0.03 * circle[2]:  # the close look only polishes the circle
-        circle, n_edge = fine, n_fine
-    if n_edge < 0.12 * EDGE_RAYS:  # under about 45 degrees of clear edge
-        raise AnalysisError(
-            "the part's round edge was not found (the fringe field has no clear circular boundary); show the "
-            "whole part with some plate around it, in focus"
-        )
+    n_rays = 0
+    norm = img / np.maximum(light, 1e-6 * max(float(light.max()), 1e-12))
+    tab = _rim_tables(norm, circle, aspect, window=0.25)
+    if tab is not None:
+        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect)
+        # close look: the part's side of the model is a local quadratic, so it may reach only a fraction of the
+        # fringe spacing into the part; the longest stretch the quadratic still explains to the noise is kept
+        got = []
+        for in_px in (6.0, 4.0, 2.5):
+            # the rough departure point lies up to about two blur widths outside the rim
+            near = tuple(x for x in SIGMAS if abs(math.log(x / sig)) < 0.3)  # the blur found, +- one step
+            tab = _rim_tables(norm, circle, aspect, window=0.06, out_px=max(6.0, 3 * sig + 2),
+                              in_px=in_px + 2 * sig, sigmas=near)
+            if tab is not None:
+                got.append(_rim_circle(tab, circle, aspect))
+        if got:
+            least = min(g[3] for g in got)
+            circle, n_rays, sig, _ = next(g for g in got if g[3] <= 1.5 * least)
+        else:
+            n_rays = 0
+    if n_rays < 0.12 * RIM_RAYS:  # under about 45 degrees of clear edge
+        raise AnalysisError(_NO_EDGE + " (the fringe field has no clear circular boundary)" + _TRY)
     cx, cy, r, ucx, ucy, ur, rms = circle
+    # the fit's own u sees only pixel noise; the edge model's mismatch shows as the scatter of the rays' own
+    # best rim positions about the circle (largest where the rim's brightness nearly matches the plate's and
+    # only its slope changes): a shared bias of the rim can be as large as that scatter, so it is added whole,
+    # with 0.05 px for the blurred-step model itself (Type B)
+    ur = math.hypot(ur if math.isfinite(ur) else 0.0, rms if math.isfinite(rms) else 1.0, 0.05)
+    ucx = math.hypot(ucx if math.isfinite(ucx) else 0.0, 0.05)
+    ucy = math.hypot(ucy if math.isfinite(ucy) else 0.0, 0.05)
     notes = []
     if cx - r < 0 or cy - r / aspect < 0 or cx + r > W - 1 or cy + r / aspect > H - 1:
         notes.append("the aperture circle runs off the frame; the form is evaluated on the part seen")
@@ -133,10 +174,83 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     return Aperture((float(cx), float(cy)), float(r), (float(ucx), float(ucy)), float(ur), float(rms), tuple(notes))
 
 
-def _otsu(values: np.ndarray) -> float:
-    from skimage.filters import threshold_otsu
+def _poly_terms(X, Y, order=3):
+    cols = [np.ones_like(X)]
+    for d in range(1, order + 1):
+        for k in range(d + 1):
+            cols.append(X ** (d - k) * Y**k)
+    return np.stack(cols, axis=-1)
 
-    return float(threshold_otsu(values))
+
+def _coarse_region(img: np.ndarray):
+    """The plate's light model (full size) and a boolean mask of the part (full size).
+
+    Works on a reduced copy. The plate's light is modelled as exp(quadratic in x, y) — a Gaussian fall-off and a
+    gentle ramp both fit it — over pixels taken to be plate: first a border strip, then all pixels outside the
+    dilated part estimate. Pixels departing from it by more than the plate's own scatter are the part.
+    """
+    H, W = img.shape
+    step = max(1, int(math.ceil(max(H, W) / 256)))
+    h2, w2 = H // step, W // step
+    small = img[: h2 * step, : w2 * step].reshape(h2, step, w2, step).mean(axis=(1, 3))
+    floor = max(1e-6, 1e-3 * float(np.percentile(small, 99)))
+    logi = np.log(np.maximum(small, floor))
+    yy, xx = np.mgrid[0:h2, 0:w2]
+    Xn, Yn = (xx - w2 / 2) / max(w2, h2), (yy - h2 / 2) / max(w2, h2)
+    A = _poly_terms(Xn, Yn)
+    b = max(2, int(round(0.06 * min(h2, w2))))
+    plate = np.zeros((h2, w2), dtype=bool)
+    plate[:b, :] = plate[-b:, :] = True
+    plate[:, :b] = plate[:, -b:] = True
+    sm = ndimage.gaussian_filter(logi, 1.0)
+    region = None
+    for _ in range(4):
+        m = plate.copy()
+        coef = None
+        for _ in range(3):  # robust: drop the plate pixels the model does not explain (dust, a part's corner)
+            if m.sum() < 3 * A.shape[-1]:
+                break
+            coef, *_ = np.linalg.lstsq(A[m], sm[m], rcond=None)
+            res = sm - A @ coef
+            s = 1.4826 * np.median(np.abs(res[m] - np.median(res[m]))) + 1e-9
+            m = plate & (np.abs(res) < 4 * s)
+        if coef is None:
+            break
+        res = sm - A @ coef
+        s = 1.4826 * np.median(np.abs(res[m])) + 1e-9
+        dev = np.abs(res) > max(6 * s, 0.03)
+        dev = ndimage.binary_opening(dev, iterations=1)
+        lab, n = ndimage.label(dev)
+        if n == 0:
+            raise AnalysisError(_NO_EDGE + " (nothing departs from the plate's smooth light)" + _TRY)
+        # the part is the component that, holes filled, covers most: fringes crossing the plate's own level
+        # split the part into a central patch and rings around it, and a ring filled holds the patch
+        sizes = ndimage.sum(dev, lab, index=np.arange(1, n + 1))
+        reg = None
+        for c in np.argsort(sizes)[::-1][:8]:
+            filled = ndimage.binary_fill_holes(lab == (1 + int(c)))
+            if reg is None or filled.sum() > reg.sum():
+                reg = filled
+        if reg.sum() > 0.9 * reg.size or reg.sum() < 0.005 * reg.size:
+            raise AnalysisError(_NO_EDGE + " (the fringe field fills the frame or is tiny)" + _TRY)
+        grown = ndimage.binary_dilation(reg, iterations=max(2, int(0.04 * min(h2, w2))))
+        new_plate = ~grown
+        if region is not None and (reg ^ region).sum() < 0.002 * reg.size:
+            region = reg
+            break
+        region = reg
+        if new_plate.sum() >= 3 * A.shape[-1] * 4:
+            plate = new_plate
+    # full-size light model and part mask
+    yyf, xxf = np.mgrid[0:H, 0:W]
+    Xf = ((xxf + 0.5) / step - 0.5 - w2 / 2) / max(w2, h2)
+    Yf = ((yyf + 0.5) / step - 0.5 - h2 / 2) / max(w2, h2)
+    light = np.exp(_poly_terms(Xf, Yf) @ coef)
+    ys, xs = np.nonzero(region)
+    mask = np.zeros((H, W), dtype=bool)
+    full = np.kron(region, np.ones((step, step), dtype=bool))
+    mask[: full.shape[0], : full.shape[1]] = full
+    return light, mask
 
 
 def _fit_circle(xs, ys, aspect, x0=None):
@@ -164,105 +278,170 @@ def _fit_circle(xs, ys, aspect, x0=None):
     return cx, cyy / aspect, abs(rad), u[0], u[1] / aspect, u[2], rms
 
 
-EDGE_RAYS = 720
+RIM_RAYS = 360
+RIM_INSIDE_PX = 6.0
+SIGMAS = tuple(0.4 * 1.25**k for k in range(10))  # trial blur widths, 0.4-3 px
+EDGE_RAYS = RIM_RAYS  # kept for callers of the earlier name
 
 
-def _refine_edge(img, circle, aspect, hull, window: float = 0.3, nrays: int = EDGE_RAYS):
-    """Outline points where, walking each ray inward from the dim surround, the brightness first rises
-    clearly above the surround level; then a robust circle through them.
+def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, out_px: float = 6.0,
+                in_px: float = RIM_INSIDE_PX, sigmas=SIGMAS):
+    """Per-ray misfit of the blurred-edge model against the trial rim position, for each trial blur.
 
-    A dark fringe that meets the edge gives a point too far inside; the robust loss sets it aside.
+    ``norm`` is the image divided by the plate's light model, so the plate reads about 1 everywhere. On each
+    ray the outermost sustained departure from the plate's level marks the rim roughly; the blurred-edge model
+    (:func:`_edge_basis`) is compared with the profile over ``out_px`` of plate beyond and ``in_px`` of part
+    within that point. The model is linear in its levels and slopes, so for each trial position and blur they
+    are solved in closed form (variable projection) for all rays at once. Returns None when too few rays see
+    a rim, else a dict with the rays' angles, their departure radii, the trial offsets and a table of the
+    residual sum of squares per blur (N rays x K offsets) and the noise variance of one sample.
     """
     cx, cy, r = circle[0], circle[1], circle[2]
-    H, W = img.shape
-    sm = ndimage.gaussian_filter(img, 1.0)
-    # the surround level from well outside the current circle (a dark rim just outside a too-small first
-    # circle must not pull it down)
-    yy, xx = np.mgrid[0:H, 0:W]
-    far = np.hypot(xx - cx, (yy - cy) * aspect) > (1.0 + window) * r
-    outside = far if far.sum() >= 200 else ~ndimage.binary_dilation(hull, iterations=3)
-    if outside.sum() < 50:
-        return circle, 0
-    vals = sm[outside]
-    b0 = float(np.median(vals))
-    s0 = float(1.4826 * np.median(np.abs(vals - b0)))
-    inside_hi = float(np.percentile(sm[hull], 95))
-    dist = np.hypot(xx - cx, (yy - cy) * aspect)
-    ring = (dist > 0.7 * r) & (dist < (1.0 + window) * r)
-    inside_lo = float(np.percentile(sm[ring | hull], 2))
-    thr = b0 + max(6 * s0, 0.2 * (inside_hi - b0))
-    # a dark fringe at the rim is darker than the surround (the plate alone still reflects; the gap at a dark
-    # fringe does not): the edge shows as a drop there
-    dark_ok = b0 - inside_lo > 5 * s0
-    thr_lo = b0 - max(3 * s0, 0.4 * (b0 - inside_lo)) if dark_ok else -np.inf
+    H, W = norm.shape
+    ds = 0.25
+    s_out = max(out_px + 6.0, window * r)
+    s_in = max(in_px + 4.0, window * r)
+    ss = np.arange(s_out, -s_in - 1e-9, -ds)  # outward -> inward, relative to the current radius
     th = np.linspace(0, 2 * np.pi, nrays, endpoint=False)
-    ds = np.arange(window * r, -window * r, -0.25)  # outward -> inward
-    rr = r + ds[None, :]
+    rr = r + ss[None, :]
     xs = cx + rr * np.cos(th)[:, None]
     ys = cy + rr * np.sin(th)[:, None] / aspect
     ok = (xs >= 0) & (xs <= W - 1) & (ys >= 0) & (ys <= H - 1)
-    prof = ndimage.map_coordinates(sm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1)
-    prof[~ok] = b0  # beyond the frame: treat as surround
-    cross = (prof > thr) | (prof < thr_lo)
-    hit = cross.any(axis=1)
-    first = np.argmax(cross, axis=1)
-    good = hit & (first > 0)
-    if good.sum() < 20:
-        return circle, 0
-    # keep rays that meet a clear step (bright, or dark against the surround) and place the point at half
-    # height between the surround and the level just inside, which is symmetric under blur
-    n = ds.size
-    step_in = 8  # 2 px inward
-    jj = np.clip(first - step_in, 0, n - 1)
-    idx = np.nonzero(good & (first + step_in < n) & ok[np.arange(len(first)), jj])[0]
-    sgn = np.where(prof[idx, first[idx]] > b0, 1.0, -1.0)
-    level = prof[idx, first[idx] + step_in]
-    # a clear step: the level just inside is a good part of the most extreme fringe further in along the same
-    # ray (uneven light makes a global reference unfair to the dim side)
-    ray_ext = np.array([np.max(sg * (prof[i, first[i]:] - b0)) for i, sg in zip(idx, sgn)])
-    span = np.where(sgn > 0, inside_hi - b0, b0 - inside_lo)
-    strong = (sgn * (level - b0) > 0.33 * ray_ext) & (ray_ext > 0.15 * span)
-    idx, level, sgn = idx[strong], level[strong], sgn[strong]
-    if idx.size < 20:
-        return circle, 0
-    rb = np.empty(idx.size)
-    for k, (i, L, sg) in enumerate(zip(idx, level, sgn)):
-        t = 0.5 * (b0 + L)
-        j0 = max(1, first[i] - step_in)
-        seg = sg * (prof[i, j0 : first[i] + step_in + 1] - t)
-        jj = int(np.argmax(seg > 0))
-        j = j0 + jj
-        p0, p1 = prof[i, j - 1], prof[i, j]
-        frac = np.clip((t - p0) / (p1 - p0), 0, 1) if p1 != p0 else 0.5
-        rb[k] = r + ds[j - 1] - 0.25 * frac
-    px = cx + rb * np.cos(th[idx])
-    py = cy + rb * np.sin(th[idx]) / aspect
-    # a dark fringe meeting the edge puts points inside the true edge: keep the consensus set (RANSAC)
-    from skimage.measure import CircleModel, ransac
+    prof = ndimage.map_coordinates(norm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1, mode="nearest")
+    # plate level and scatter (noise) from the outer part of every ray
+    n_ref = max(8, int(0.5 * (s_out - out_px) / ds))
+    ref = prof[:, :n_ref]
+    ref_ok = ok[:, :n_ref].all(axis=1)
+    if ref_ok.sum() < 0.12 * nrays:
+        return None
+    # noise of each ray from its plate stretch: differences of samples 2 px apart (interpolated samples closer
+    # than a pixel share pixels and would understate it)
+    st = int(round(2.0 / ds))
+    dif = ref[:, st:] - ref[:, :-st]
+    sig_i = 1.4826 * np.median(np.abs(dif - np.median(dif, axis=1, keepdims=True)), axis=1) / math.sqrt(2) + 1e-6
+    sig_n = float(np.median(sig_i[ref_ok]))
+    # walking inward, each point is compared with the straight line through the 8 px of plate just outside it
+    # (1 px gap): the plate's own slope (uneven light the model left) is followed, the rim is not
+    L, g = int(round(8.0 / ds)), int(round(1.0 / ds))
+    xk = np.arange(-(g + L - 1), -g + 1, dtype=float)  # positions of the window relative to the point
+    wk = 1.0 / L + (0 - xk.mean()) * (xk - xk.mean()) / np.sum((xk - xk.mean()) ** 2)
+    pred = np.full_like(prof, np.nan)
+    for kk, w in zip(xk.astype(int), wk):
+        pred[:, -kk:] = np.nan_to_num(pred[:, -kk:]) + w * prof[:, : prof.shape[1] + kk]
+    pred[:, : g + L - 1] = np.nan
+    smooth = ndimage.uniform_filter1d(prof, size=5, axis=1)  # 1.25 px
+    dev = np.abs(smooth - pred) > np.maximum(5 * sig_i, 0.04)[:, None]
+    dev &= np.isfinite(pred)
+    # sustained departure (1.5 px) counts; a lone noise spike does not
+    run = ndimage.uniform_filter1d(dev.astype(float), size=7, axis=1, origin=-3) > 0.99
+    run[:, :n_ref] = False
+    hit = run.any(axis=1)
+    j = np.argmax(run, axis=1)
+    n_o, n_i = int(round(out_px / ds)), int(round(in_px / ds))
+    good = ref_ok & hit & (j - n_o >= 0) & (j + n_i < ss.size)
+    idx = np.nonzero(good)[0]
+    if idx.size < 0.12 * nrays:
+        return None
+    k = np.arange(-n_o, n_i + 1)
+    rows = j[idx, None] + k[None, :]
+    okw = ok[idx[:, None], rows].all(axis=1)
+    idx, rows = idx[okw], rows[okw]
+    if idx.size < 0.12 * nrays:
+        return None
+    Y = prof[idx[:, None], rows]  # (N, M)
+    t = -k * ds  # position relative to the departure point, outward positive
+    e_grid = np.arange(t.min() + 0.5, t.max() - 0.25 + 1e-9, 0.05)
+    ysq = np.sum(Y * Y, axis=1)
+    tables = {}
+    for sig in sigmas:
+        B = np.stack([np.stack(_edge_basis(t, e, sig), axis=1) for e in e_grid])  # (K, M, 5)
+        Q, _ = np.linalg.qr(B)
+        proj = np.einsum("nm,kmj->nkj", Y, Q)
+        tables[float(sig)] = np.maximum(ysq[:, None] - np.sum(proj * proj, axis=2), 0.0)
+    return {"theta": th[idx], "base": r + ss[j[idx]], "e_grid": e_grid, "tables": tables,
+            "noise_var": sig_n**2, "oversampling": 1.0 / ds, "m": Y.shape[1], "centre": (cx, cy)}
 
-    pts = np.column_stack([px, py * aspect])
-    rng = np.random.default_rng(0)  # fixed: the same image always gives the same aperture
-    _, inl = ransac(pts, CircleModel, min_samples=3, residual_threshold=1.0, max_trials=300, rng=rng)
-    if inl is None or inl.sum() < 20:
-        inl = np.ones(len(px), dtype=bool)
-    # a dark fringe along much of the edge can make a fringe contour the larger consensus; the part's edge
-    # is the outermost circle: prefer a consistent set of points outside the first circle
-    for _ in range(2):
-        f0 = _fit_circle(px[inl], py[inl], aspect, x0=(cx, cy, r))
-        d = np.hypot(px - f0[0], (py - f0[1]) * aspect) - f0[2]
-        out = d > 1.5
-        if out.sum() < max(20, 0.1 * inl.sum()):
-            break
-        _, inl2 = ransac(pts[out], CircleModel, min_samples=3, residual_threshold=1.0, max_trials=300, rng=rng)
-        if inl2 is None or inl2.sum() < max(20, 0.1 * inl.sum()):
-            break
-        idx_out = np.nonzero(out)[0][inl2]
-        f1 = _fit_circle(px[idx_out], py[idx_out], aspect, x0=f0[:3])
-        d1 = np.hypot(px[inl] - f1[0], (py[inl] - f1[1]) * aspect) - f1[2]
-        if np.median(d1) > -1.0:  # the new circle does not enclose the first set: not an outer edge
-            break
-        new = np.zeros_like(inl)
-        new[idx_out] = True
-        inl = new
-    fit = _fit_circle(px[inl], py[inl], aspect, x0=(cx, cy, r))
-    return fit, int(inl.sum())
+
+def _rim_circle(tab, circle, aspect):
+    """The circle that best explains every ray's profile at once: minimises the sum over rays of each ray's
+    excess misfit at the circle's crossing (capped, so dust or a chip on a few rays cannot pull it). Returns
+    (cx, cy, r, u_cx, u_cy, u_r, rms of the per-ray best positions about it, blur) and the rays used."""
+    th, base, eg = tab["theta"], tab["base"], tab["e_grid"]
+    cx0, cy0 = tab["centre"]
+    c, sn = np.cos(th), np.sin(th)
+    var = tab["noise_var"]
+    cap = 25.0 * var  # about 5 sigma of one sample's misfit
+
+    def crossing(p):
+        dx, dyy, r = p  # centre offset (y in x-metric units) and radius
+        pu = dx * c + dyy * sn
+        disc = r * r - dx * dx - dyy * dyy + pu * pu
+        return pu + np.sqrt(np.maximum(disc, 0.0))
+
+    best = None
+    for sig, T in tab["tables"].items():
+        mins = T.min(axis=1)
+        ex = T - mins[:, None]
+
+        def cost(p, ex=ex):
+            e = crossing(p) - base
+            pos = (e - eg[0]) / (eg[1] - eg[0])
+            inside = (pos >= 0) & (pos <= eg.size - 1)
+            i0 = np.clip(np.floor(pos).astype(int), 0, eg.size - 2)
+            f = np.clip(pos - i0, 0, 1)
+            n = np.arange(ex.shape[0])
+            v = (1 - f) * ex[n, i0] + f * ex[n, i0 + 1]
+            v = np.where(inside, v, cap)
+            return float(np.sum(v / (1 + v / cap)))
+
+        # start from the per-ray best positions
+        e_best = eg[np.argmin(ex, axis=1)] + base
+        x0 = np.array([0.0, 0.0, float(np.median(e_best))])
+        simplex = np.array([x0, x0 + [0.7, 0, 0], x0 + [0, 0.7, 0], x0 + [0, 0, 0.7]])
+        res = optimize.minimize(cost, x0, method="Nelder-Mead",
+                                options={"xatol": 1e-3, "fatol": 1e-3 * var, "maxiter": 3000,
+                                         "initial_simplex": simplex})
+        tot = res.fun + float(np.sum(np.minimum(T.min(axis=1), 1e9)))
+        if best is None or tot < best[0]:
+            best = (tot, sig, res.x, cost, e_best)
+    _, sig, p, cost, e_best = best
+    # uncertainty: curvature of the misfit (a Gaussian likelihood has -ln L = SSE / (2 var)): cov = 2 var H^-1
+    h = np.array([0.05, 0.05, 0.05])
+    Hm = np.zeros((3, 3))
+    f0 = cost(p)
+    for a in range(3):
+        for b in range(a, 3):
+            ea, eb = np.eye(3)[a] * h[a], np.eye(3)[b] * h[b]
+            Hm[a, b] = Hm[b, a] = (cost(p + ea + eb) - cost(p + ea - eb) - cost(p - ea + eb) + cost(p - ea - eb)) / (
+                4 * h[a] * h[b])
+    try:
+        # samples 1/4 px apart are not independent: about one independent sample per pixel
+        cov = 2 * var * tab["oversampling"] * np.linalg.inv(Hm)
+        u = np.sqrt(np.clip(np.diag(cov), 0, None))
+        if not np.all(np.isfinite(u)):
+            raise np.linalg.LinAlgError
+    except np.linalg.LinAlgError:
+        u = np.array([np.nan] * 3)
+    cross = crossing(p)
+    d = e_best - cross
+    used = np.abs(d) < 1.5
+    rms = float(np.sqrt(np.mean(d[used] ** 2))) if used.any() else float("nan")
+    cx, cy = cx0 + p[0], cy0 + p[1] / aspect
+    misfit = best[0] / (ex.shape[0] * tab["m"] * var)  # mean squared residual per sample over the noise's
+    return (cx, cy, float(p[2]), u[0], u[1] / aspect, u[2], rms), int(used.sum()), float(sig), float(misfit)
+
+
+def _edge_basis(t, e, sig):
+    """Columns of the blurred-edge model at positions ``t`` (outward positive) for a rim at ``e`` blurred by a
+    Gaussian of ``sig``: plate level and slope outside, level, slope and curvature of the part inside. Each is
+    the closed-form convolution of a one-sided polynomial with the Gaussian."""
+    from scipy.special import ndtr
+
+    m = t - e
+    z = m / sig
+    phi = np.exp(-0.5 * z * z) / math.sqrt(2 * math.pi)
+    p_in = ndtr(-z)
+    e1 = m * p_in - sig * phi
+    e2 = (m * m + sig * sig) * p_in - m * sig * phi
+    o1 = m * (1 - p_in) + sig * phi  # the plate's own slope outside (uneven light)
+    return [1 - p_in, p_in, e1, e2, o1]

@@ -426,7 +426,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
         coef, cov, alternatives = g.coeffs, g.covariance, g.alternatives
         fit_row = "fit (pixel noise)"
     else:
-        # form terms from the map's Zernike fit (ANSI, n <= 8) over the test diameter
+        # form terms from the map's Zernike fit (ANSI, n <= MAP_NMAX) over the test diameter
         coef, cov, map_sign = _map_coefficients(pm, k_td)
         Z = zernike_fit(np.zeros(un.size), un, vn, MAP_NMAX)[1].T
         alternatives = {}
@@ -549,7 +549,10 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     )
 
 
-MAP_NMAX = 8  # Zernike degree of the phase map's smooth description (45 ANSI terms)
+# Zernike degree of the phase map's smooth description: 28 ANSI terms, as rich as the gap model. The map stops
+# a few pixels inside the edge; the PV terms reach the edge, and degree 8 overshot there by ~0.06 fringe on a
+# 4-fringe saddle (the multiple-beam fringe shape leaves a small ripple in the phase that high terms follow).
+MAP_NMAX = 6
 MAP_GRID = 96  # cells across the height map kept in the result
 
 

@@ -7,6 +7,7 @@ warnings (an overdue or retired plate). Any of them being given (or several fram
 from __future__ import annotations
 
 import argparse
+import math
 
 from ..errors import InputError
 from .sign import GAP_CHANGES, PRESS_CHOICES
@@ -34,7 +35,26 @@ def _nonneg_float(text: str) -> float:
     return v
 
 
+def _finite_float(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+    if not math.isfinite(v):
+        raise argparse.ArgumentTypeError(f"'{text}' is not a finite number")
+    return v
+
+
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    m = parser.add_argument_group(
+        "manual settings (the same as setting them by hand in the window)",
+        "Pixel coordinates of the first image: x = column, y = row, origin at the top-left pixel's centre.",
+    )
+    m.add_argument("--aperture", nargs=3, type=_finite_float, metavar=("X", "Y", "DIAMETER"),
+                   help="the part's clear aperture as a circle: centre x, y and diameter, pixels; replaces the "
+                   "edge search (use it when the rim is hidden or the part fills the frame)")
+    m.add_argument("--centre", nargs=2, type=_finite_float, metavar=("X", "Y"),
+                   help="the ring centre, pixels: a starting point for the ring search of a radius measurement")
     g = parser.add_argument_group(
         "surface form against a test plate (ISO 10110-5)",
         "Power, astigmatism and irregularity in fringes (one fringe = λ/2) over the test diameter.",
@@ -111,7 +131,58 @@ def setup_kwargs(args) -> tuple[dict, list[str]]:
     if getattr(args, "press_test", None):
         kw["press_test"] = args.press_test
     extras = {"gap_change": getattr(args, "gap_change", None) or "increasing"}
+    manual, mw = manual_extras(args)
+    extras.update(manual)
+    warnings += mw
     if getattr(args, "mode", None) is not None:
         extras["mode"] = args.mode
     kw["extras"] = extras
     return kw, warnings
+
+
+def manual_extras(args) -> tuple[dict, list[str]]:
+    """``--aperture X Y DIAMETER`` and ``--centre X Y`` as the set-up extras the window passes for its hand-set
+    aperture and centre: ``aperture_px = (x, y, radius)``, ``centre_px = (x, y)``; checked against the first
+    image's size when it can be read. Raises InputError with a one-line message for unusable values."""
+    extras: dict = {}
+    warnings: list[str] = []
+    ap = getattr(args, "aperture", None)
+    ce = getattr(args, "centre", None)
+    if ap is None and ce is None:
+        return extras, warnings
+    size = _image_size((getattr(args, "images", None) or [None])[0])
+    if ap is not None:
+        x, y, d = (float(v) for v in ap)
+        if not d > 0:
+            raise InputError(f"--aperture: the diameter must be positive, got {d:g} px")
+        if size is not None:
+            w, h = size
+            if not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5):
+                raise InputError(f"--aperture: the centre ({x:g}, {y:g}) px lies outside the image ({w} x {h} px)")
+            if d < 8:
+                raise InputError(f"--aperture: a diameter of {d:g} px is too small to evaluate (at least 8 px)")
+        extras["aperture_px"] = (x, y, d / 2)
+    if ce is not None:
+        x, y = (float(v) for v in ce)
+        if size is not None:
+            w, h = size
+            if not (-0.5 <= x <= w - 0.5 and -0.5 <= y <= h - 0.5):
+                raise InputError(f"--centre: ({x:g}, {y:g}) px lies outside the image ({w} x {h} px)")
+        extras["centre_px"] = (x, y)
+        if wants_form(args) or getattr(args, "mode", None) == "form":
+            warnings.append("--centre is used by the radius measurement only: the form fit needs no ring centre "
+                            "(give the part's edge with --aperture X Y DIAMETER)")
+    return extras, warnings
+
+
+def _image_size(path) -> tuple[int, int] | None:
+    """(width, height) from the image header, or None when it cannot be read here (the loader then reports)."""
+    if not path:
+        return None
+    try:
+        from PIL import Image
+
+        with Image.open(path) as im:
+            return int(im.size[0]), int(im.size[1])
+    except Exception:  # noqa: BLE001 - any failure is reported by the image loader with its own message
+        return None
