@@ -151,3 +151,36 @@ def test_watch_refuses_frames_over_the_pixel_budget(sequences, capsys):
     rc = main(["watch", "--camera", seq["video"], *SETUP, "--max-megapixels", "0.05"])
     err = capsys.readouterr().err
     assert rc == 2 and "exceed the limit of 0.05 megapixels" in err and len(err.strip().splitlines()) == 1
+
+
+def test_ctrl_c_stops_watch_cleanly(sequences, tmp_path):
+    import signal
+
+    # a long file played as a camera (--realtime), interrupted once frames are coming
+    cap = cv2.VideoCapture(sequences[("centre", "pressing")]["video"])
+    frames = []
+    while True:
+        ok, img = cap.read()
+        if not ok:
+            break
+        frames.append(img)
+    long = tmp_path / "long.avi"
+    w = cv2.VideoWriter(str(long), cv2.VideoWriter_fourcc(*"MJPG"), 25.0, frames[0].shape[1::-1], True)
+    for _ in range(20):
+        for f in frames:
+            w.write(f)
+    w.release()
+    p = subprocess.Popen([sys.executable, "-m", "ringgauge", "watch", "--camera", str(long), *SETUP, "--realtime"],
+                         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                         preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    try:
+        first = p.stdout.readline()
+        assert first.startswith("frame"), first
+        p.send_signal(signal.SIGINT)
+        out, err = p.communicate(timeout=20)
+    finally:
+        if p.poll() is None:
+            p.kill()
+            p.wait()
+    assert p.returncode == 130
+    assert err.strip().splitlines()[-1] == "ringgauge: interrupted" and "Traceback" not in err
