@@ -285,6 +285,24 @@ class _Problem:
             J[N + 1, nw + self.NM] = k / max(hi, 1e-6)
         return J
 
+    def phased_start(self, c):
+        """Start vector for the gap shape ``c`` with the piston and modulation taken from the image: the
+        linear fit y = light + alpha cos(2 pi W0) + beta sin(2 pi W0) gives the fringe phase, so a start is
+        never half a fringe out (from there the modulation must pass through zero, where the gap terms get
+        no gradient)."""
+        c = np.array(c, dtype=float)
+        W0 = self.ZT[:, 1 : len(c)] @ c[1:]
+        cs, sn = np.cos(2 * np.pi * W0), np.sin(2 * np.pi * W0)
+        X = np.hstack([self.PLT, cs[:, None], sn[:, None]])
+        coef, *_ = np.linalg.lstsq(X, self.y, rcond=None)
+        alpha, beta = coef[-2], coef[-1]
+        A = math.hypot(alpha, beta)
+        psi = math.atan2(beta, alpha)
+        c[0] = ((-psi - np.pi) / (2 * np.pi)) % 1.0  # -A cos(2 pi (W0 + p)) = alpha cos + beta sin
+        mean = max(float(np.mean(self.y)), 1e-6)
+        m0 = -min(0.9, max(0.1, A / mean))
+        return self.start(c, (m0, 0.0, 0.0))
+
     def start(self, c, m=(-0.8, 0.0, 0.0)):
         m = np.asarray(m, dtype=float)
         lin, _ = self.linear(np.asarray(c, dtype=float), m)
@@ -552,7 +570,7 @@ def _fit_gap(
         tried = []
         cprob = _Problem(cu, cv, cy_, finesse=0.0)
         for c0 in starts:
-            r = _refine(cprob, cprob.start(c0, (-0.8, 0, 0)), LOW_ORDER, max_nfev=20)
+            r = _refine(cprob, cprob.phased_start(c0), LOW_ORDER, max_nfev=20)
             tried.append((_cost(r), tuple(r.x)))
         tried.sort(key=lambda t: t[0])
         if progress:

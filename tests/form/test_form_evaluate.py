@@ -91,7 +91,7 @@ def test_generated_images_of_known_form(name, results):
         # "weak fit" warning with an expanded uncertainty that covers the error
         assert abs(form.power) < 1.6
         for key, true in (("power_fringes", abs(form.power)), ("irregularity_fringes", truth["irregularity_fringes"])):
-            assert abs(t[key] - true) <= 2 * r.terms_u[key], key
+            assert abs(t[key] - true) <= max(0.05, 2 * r.terms_u[key]), key
     else:
         assert t["power_fringes"] == pytest.approx(abs(form.power), abs=tp)
         assert t["irregularity_fringes"] == pytest.approx(truth["irregularity_fringes"], abs=ti)
