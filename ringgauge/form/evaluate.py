@@ -393,17 +393,18 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
         masked_px += int(g.masked_px.sum()) if g.masked_px is not None else 0
         warnings += [f"{fr_.name}: {m}" for m in g.notes if not m.startswith("fringe shape")]
         notes += [m for m in g.notes if m.startswith("fringe shape") and i == 0]
-    # the part's edge as the fitted model sees it (where the fringes stop) refines the ring-of-rays circle
-    # Only an outward move is taken: the ray finder's known failure is reading the rim small when a fringe
-    # runs along it, while the model's own edge reads slightly inside on a blurred bright rim.
+    # The rim is fitted directly (form.aperture: a blurred step-and-slope model along rays, one circle through
+    # all of them); the gap model's own extent (where its fringes stop) is only a cross-check: where the two
+    # disagree, the difference enters the aperture radius's uncertainty as a rectangular term (Type B).
     fit_radius = ap.radius_px
-    # a hand-set aperture is evaluated as given; the phase map has no model to extrapolate
-    scale = 1.0 if (ap.manual or pm is not None) else max(1.0, fits[0].edge_scale)
-    if scale != 1.0:
-        notes.append(f"part edge refined from the fringe model: radius {ap.radius_px:.2f} -> "
-                     f"{ap.radius_px * scale:.2f} px")
-    u_edge = max(0.25, abs(scale - 1.0) * ap.radius_px / (2 * math.sqrt(3)), ap.edge_rms_px / 4)
-    ap = replace(ap, radius_px=ap.radius_px * scale, radius_u_px=math.hypot(ap.radius_u_px, u_edge))
+    u_edge = 0.0
+    if not ap.manual and pm is None and fits[0].edge_scale and math.isfinite(fits[0].edge_scale):
+        d_edge = (fits[0].edge_scale - 1.0) * ap.radius_px
+        u_edge = abs(d_edge) / (2 * math.sqrt(3))
+        if abs(d_edge) > max(1.0, 3 * ap.radius_u_px):
+            warnings.append(f"the fringe model's edge differs from the rim found by {d_edge:+.1f} px; check the "
+                            "aperture (set it by hand if the rim is hidden)")
+    ap = replace(ap, radius_u_px=math.hypot(ap.radius_u_px, u_edge))
     ap_diam_mm = 2 * ap.radius_px * px * 1e-3
     # test diameter: the option, else the tolerance's, else the clear aperture
     if setup.test_diameter_mm:

@@ -1,0 +1,108 @@
+"""Surface form on single frames and frame sets rendered by this folder's own test-plate model (plate_model.py).
+
+Targets of the form issue for images made independently of ringgauge's generator: power, astigmatism and
+irregularity within 0.05 fringe of the truth (aim 0.02, printed), and on every frame set the sign of the power
+right. The truth is computed from the rendered height by the ISO 10110-5:2015 meanings of the terms
+(plate_model.truth_terms). One frame cannot give the sign (intensity is even in the gap), so single frames are
+compared by magnitude. Frame sets: the gap grows between frames by unequal steps, with small tilt changes.
+
+Run with ``-s`` to see the figures per case.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+import plate_model as P
+from ringgauge.bench_setup import BenchSetup
+from ringgauge.form.evaluate import evaluate_form
+from ringgauge.imaging import frame_from_array
+from ringgauge.sources import get_source
+
+TOL = 0.05  # fringes, the issue's target
+AIM = 0.02
+TERMS = ("power_fringes", "astigmatism_fringes", "irregularity_fringes")
+
+B = P.Part()
+UNEVEN = dict(ramp=(0.6, 0.3), falloff_sigma=0.8, falloff_centre=(0.5, 0.3))
+TILTS4 = [(0.0, 0.0), (0.06, 0.0), (0.02, -0.05), (0.07, 0.03)]
+
+SINGLE = {
+    "centre contact 2 fr, bright rim": B.with_(power=2.0, rim_phase=0.5),
+    "edge contact -3 fr, dark rim": B.with_(power=-3.0, rim_phase=0.0),
+    "0.8 fr, uneven light": B.with_(power=0.8, **UNEVEN),
+    "astigmatism 1 fr at 30 deg": B.with_(power=2.0, astig=1.0, astig_axis_deg=30.0, rim_phase=0.3),
+    "zonal 0.2 fr on 3 fr": B.with_(power=3.0, zonal=0.2),
+    "saddle: 4 fr astigmatism, no power": B.with_(power=0.0, astig=4.0, astig_axis_deg=20.0),
+    "10 fr, dark rim": B.with_(power=10.0, rim_phase=0.0),
+}
+
+SETS = {
+    "centre contact, astigmatism, 4 frames": (B.with_(power=2.0, astig=0.5, astig_axis_deg=60.0),
+                                              (0.0, 0.21, 0.50, 0.68), TILTS4),
+    "edge contact, dark rim, 4 frames": (B.with_(power=-2.5, rim_phase=0.0), (0.0, 0.17, 0.41, 0.66), TILTS4),
+    "zonal error, 3 frames": (B.with_(power=1.5, zonal=0.15), (0.0, 0.23, 0.47), TILTS4[:3]),
+    "edge contact, astigmatism > power, 5 frames": (
+        B.with_(power=-1.0, astig=1.5, astig_axis_deg=110.0),
+        (0.0, 0.19, 0.37, 0.61, 0.83), TILTS4 + [(0.03, 0.08)]),
+    "low power under uneven light, 4 frames": (B.with_(power=0.6, rim_phase=0.0, **UNEVEN),
+                                               (0.0, 0.22, 0.45, 0.71), TILTS4),
+    "centre contact pair (2 frames)": (B.with_(power=1.2, rim_phase=0.5), (0.0, 0.24), TILTS4[:2]),
+}
+
+#: cases the engine cannot meet yet, with the reason measured; strict: they must start passing to be removed
+KNOWN = {
+    "saddle: 4 fr astigmatism, no power": "one-frame fit of hyperbolic fringes crossing at the centre finds no "
+    "form at all (astigmatism 0.006 for 4.0 fringes) yet reports u = 0.21: engine (form/fit.py) start values",
+    "0.8 fr, uneven light": "one-frame fit under a strong off-centre fall-off reads 0.063 fringe of irregularity "
+    "(truth 0) and power +0.033: the gap model absorbs part of the light's shape (form/fit.py)",
+    "10 fr, dark rim": "power 0.054 fringe low (u 0.062): the rim of a 10-fringe part on a dark fringe reads "
+    "0.3-0.4 px small, the fringes within 4 px of the edge bend the blurred-edge model (form/aperture.py)",
+    "low power under uneven light, 4 frames": "phase-map route reads 0.6 fringe of power as 0.515 (u 0.019); the "
+    "one-frame route on the same part is within 0.03: map near the edge under a steep light fall-off "
+    "(form/phase.py)",
+}
+
+
+def _setup(part):
+    return BenchSetup(source=get_source("mercury-e"), pixel_size_um=part.pixel_um,
+                      extras={"gap_change": "increasing"})
+
+
+def _check(name, part, frames, *, signed):
+    r = evaluate_form([frame_from_array(f) for f in frames], _setup(part))
+    truth = P.truth_terms(part)
+    errs = {}
+    for t in TERMS:
+        v = r.terms[t]
+        want = truth[t] if (signed or t != "power_fringes") else abs(truth[t])
+        if t == "power_fringes" and not signed:
+            v = abs(v)
+        errs[t] = v - want
+    worst = max(abs(e) for e in errs.values())
+    print(f"\n{name}: " + ", ".join(f"{t.split('_')[0]} {r.terms[t]:+.3f} (truth {truth[t]:+.3f}, "
+                                     f"u {r.terms_u.get(t, float('nan')):.3f})" for t in TERMS)
+          + f"; sign {r.sign.sign:+d}; worst error {worst:.3f} fr" + (" (aim met)" if worst <= AIM else ""))
+    return r, truth, errs
+
+
+def _mark(name):
+    return pytest.param(name, marks=pytest.mark.xfail(strict=True, reason=KNOWN[name])) if name in KNOWN else name
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", [_mark(n) for n in SINGLE])
+def test_single_frame(name):
+    part = SINGLE[name]
+    _, _, errs = _check(name, part, P.render(part, 11), signed=False)
+    assert all(abs(e) <= TOL for e in errs.values()), errs
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", [_mark(n) for n in SETS])
+def test_frame_set(name):
+    part, steps, tilts = SETS[name]
+    r, truth, errs = _check(name, part, P.render(part, 21, steps=steps, tilt_steps=tilts), signed=True)
+    want = 1 if truth["power_fringes"] > 0 else -1
+    assert r.sign.sign == want, (r.sign.sign, r.sign.detail)
+    assert all(abs(e) <= TOL for e in errs.values()), errs
