@@ -362,14 +362,6 @@ class PhaseMap:
         return (xs - self.centre_px[0]) / self.radius_px, (ys - self.centre_px[1]) * self.aspect / self.radius_px
 
 
-def _decimate_complex(z, q):
-    if q == 1:
-        return z
-    H, W = z.shape
-    Hq, Wq = H // q, W // q
-    return z[: Hq * q, : Wq * q].reshape(Hq, q, Wq, q).mean(axis=(1, 3))
-
-
 def phase_map(*args, **kwargs) -> PhaseMap:
     """See :func:`_phase_map` (run with the BLAS library held to one thread: small matrices, busy machine)."""
     from threadpoolctl import threadpool_limits
@@ -473,28 +465,13 @@ def _phase_map(images, centre_px, radius_px, *, aspect: float = 1.0, gap_change:
     good = inside & ~bad_map
     wrapped = np.zeros(inside.shape)
     wrapped[py, px_] = phi
-    # unwrap: on a block-averaged complex map when the aperture is large (fewer pixels, same fringes), then
-    # every full-resolution pixel takes the whole number of turns nearest to that guide
+    # unwrap (the map grid is at most ~250 px per aperture radius, so the whole map is unwrapped directly)
     if progress:
         progress("unwrapping")
     from skimage.restoration import unwrap_phase
 
-    q_g = max(1, int(radius_px / q // 200))
-    q, q_map = q_g, q
-    z = np.where(good, np.exp(1j * wrapped), 0)
-    zq = _decimate_complex(z, q)
-    gq = _decimate_complex(good.astype(float), q) > 0.75
-    guide_q = unwrap_phase(np.ma.masked_array(np.angle(zq), mask=~gq)).filled(np.nan) if q > 1 else None
-    if q > 1:
-        # nearest guide sample for every pixel; fill the masked guide from its neighbours
-        gi = ndimage.distance_transform_edt(np.isnan(guide_q), return_distances=False, return_indices=True)
-        guide_q = guide_q[tuple(gi)]
-        ry_ = np.minimum(np.arange(inside.shape[0]) // q, guide_q.shape[0] - 1)
-        rx_ = np.minimum(np.arange(inside.shape[1]) // q, guide_q.shape[1] - 1)
-        guide = guide_q[np.ix_(ry_, rx_)]
-        unwrapped = wrapped + 2 * np.pi * np.round((guide - wrapped) / (2 * np.pi))
-    else:
-        unwrapped = unwrap_phase(np.ma.masked_array(wrapped, mask=~good)).filled(np.nan)
+    q_map = q
+    unwrapped = unwrap_phase(np.ma.masked_array(wrapped, mask=~good)).filled(np.nan)
     gap = np.full(inside.shape, np.nan)
     gap[good] = o * unwrapped[good] / (2 * np.pi)
     # the misfit over the frames (N > 3) as phase noise: sigma_phi = sigma_I / (b sqrt(N / 2))

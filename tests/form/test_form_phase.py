@@ -157,7 +157,7 @@ def test_phase_map_unwraps_like_the_reference():
     constant; skimage.restoration.unwrap_phase of the true wrapped phase is the reference unwrapper."""
     from skimage.restoration import unwrap_phase
 
-    n = 1100  # large enough for the map's pixel stride and the block-averaged unwrapping guide
+    n = 1100  # large enough for the map's pixel stride (every third pixel here)
     yy, xx = np.mgrid[0:n, 0:n].astype(float)
     c, R = (n - 1) / 2, 520.0
     u, v = (xx - c) / R, (yy - c) / R
