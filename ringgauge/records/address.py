@@ -131,6 +131,12 @@ def _server(text: str, *, option: str) -> StoreAddress:
     except Exception as exc:  # noqa: BLE001 - psycopg.ProgrammingError and friends
         raise AddressError(f"{option}: the server address cannot be read: {_why_unparsable(text, exc)}") from None
     params = {k: v for k, v in params.items() if v is not None}
+    for key in ("host", "hostaddr", "port", "user", "dbname", "service"):
+        value = params.get(key) or ""
+        if "=" in value or any(c.isspace() for c in value):
+            # "host= password=…" gives host the value "password=…": refuse rather than show it
+            raise AddressError(f"{option}: the server address's {key} holds a space or '='; write key=value pairs "
+                               "with nothing empty (host=H port=P dbname=D user=U)")
     secret = params.get("password") or None
     conninfo = make_conninfo("", **params)
     return StoreAddress("postgresql", display_params(params), None, conninfo, secret)

@@ -254,3 +254,9 @@ def test_pgpass_and_service_file(pw_server, tmp_path):
     r = _cli("records", "list", env={**env, "RINGGAUGE_DB": "service=rgtest", "PGPASSFILE": "/nonexistent"},
              cwd=tmp_path)
     assert r.returncode == 4 and r.stderr.startswith("ringgauge: cannot reach the records server service=rgtest")
+
+
+def test_empty_value_does_not_swallow_the_password():
+    with pytest.raises(AddressError) as ei:
+        parse_address(f"host= password={SECRET} dbname=records")
+    assert "holds a space or '='" in str(ei.value) and SECRET not in str(ei.value)
