@@ -1,4 +1,6 @@
-"""``ringgauge paths``: where settings, records, keys and logs live (it only reads; like every command it adds a line to the log)."""
+"""``ringgauge paths``: where settings, records, keys and logs live.
+
+It only reads; like every command, it adds a line to the log."""
 
 from __future__ import annotations
 
@@ -13,7 +15,8 @@ def register(sub) -> None:
         description="Print where ringgauge keeps its files: the settings folder (RINGGAUGE_HOME when set), bench "
                     "profiles, the test-plate register, shop details, the records store (RINGGAUGE_DB or --db; "
                     "a server address is shown without its password), the records and signing keys, and the log "
-                    "folder with the rotating log and the crash log. It changes nothing (like every command, it adds a line to the log).",
+                    "folder with the rotating log and the crash log. It changes nothing (like every command, it "
+                    "adds a line to the log).",
     )
     p.add_argument("--db", metavar="PATH|URL", default=argparse.SUPPRESS,
                    help="show this records store instead of the default")
