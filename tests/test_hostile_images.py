@@ -228,7 +228,8 @@ def test_damaged_files_print_one_line_and_no_library_warning(tmp_path):
 
 def test_loader_script_in_child_never_warns(tmp_path):
     tifffile = pytest.importorskip("tifffile")
-    tifffile.imwrite(tmp_path / "stack.tif", np.stack([(_rings() * 255).astype(np.uint8)] * 3), photometric="minisblack")
+    tifffile.imwrite(tmp_path / "stack.tif", np.stack([(_rings() * 255).astype(np.uint8)] * 3),
+                     photometric="minisblack")
     code = textwrap.dedent(f"""
         import warnings
         warnings.simplefilter("error")
