@@ -147,8 +147,13 @@ def test_gui_camera_missing_file_stops_before_the_window(tmp_path, capsys):
 
 
 def test_watch_refuses_frames_over_the_pixel_budget(sequences, capsys):
+    from ringgauge.imaging import set_pixel_budget
+
     seq = sequences[("centre", "pressing")]  # 320 x 256 px = 0.08 MP
-    rc = main(["watch", "--camera", seq["video"], *SETUP, "--max-megapixels", "0.05"])
+    try:
+        rc = main(["watch", "--camera", seq["video"], *SETUP, "--max-megapixels", "0.05"])
+    finally:
+        set_pixel_budget(None)  # the option sets this process's budget (and its environment) for good
     err = capsys.readouterr().err
     assert rc == 2 and "exceed the limit of 0.05 megapixels" in err and len(err.strip().splitlines()) == 1
 
