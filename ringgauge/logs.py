@@ -90,8 +90,19 @@ def log_dir(create: bool = True) -> Path:
     except OSError:
         pass
     fallback = Path(tempfile.gettempdir()) / f"ringgauge-logs-{os.getuid() if hasattr(os, 'getuid') else 'user'}"
-    fallback.mkdir(mode=0o700, parents=True, exist_ok=True)
+    try:
+        fallback.mkdir(mode=0o700, parents=True, exist_ok=True)
+    except OSError:
+        pass  # the handlers below then write nothing, silently
     return fallback
+
+
+class _QuietRotatingFileHandler(logging.handlers.RotatingFileHandler):
+    """A log file that never disturbs the command: a full disk or a read-only folder loses log lines, not the
+    one-line terminal output (the standard handler prints a traceback of its own failure)."""
+
+    def handleError(self, record: logging.LogRecord) -> None:  # noqa: N802 - logging's name
+        pass
 
 
 _configured: dict = {}
@@ -113,14 +124,14 @@ def setup(verbosity: int = 0, *, file: bool = True) -> logging.Logger:
     handlers.append(console)
     if file:
         try:
-            fh = logging.handlers.RotatingFileHandler(log_dir() / LOG_FILE, maxBytes=MAX_BYTES, backupCount=BACKUPS,
-                                                      encoding="utf-8", delay=True)
+            fh = _QuietRotatingFileHandler(log_dir() / LOG_FILE, maxBytes=MAX_BYTES, backupCount=BACKUPS,
+                                           encoding="utf-8", delay=True)
             fh.setLevel(logging.DEBUG if verbosity >= 2 else logging.INFO)
             fh.setFormatter(logging.Formatter("%(asctime)s %(process)d %(levelname)s %(name)s: %(message)s"))
             fh.addFilter(Redact())
             handlers.append(fh)
-        except OSError:
-            pass  # no log file is no reason to refuse the work
+        except Exception:  # noqa: BLE001 - no log file is no reason to refuse the work
+            pass
     for h in handlers:
         log.addHandler(h)
     log.setLevel(logging.DEBUG)

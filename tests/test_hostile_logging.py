@@ -138,3 +138,9 @@ def test_paths_with_home_pointing_at_a_file(capsys, tmp_path, monkeypatch):
     monkeypatch.setenv("RINGGAUGE_HOME", str(bad))
     code, out, err = run(capsys, "paths")
     assert code == 0 and "(unavailable: RINGGAUGE_HOME" in out and err == ""
+
+
+def test_unwritable_log_file_never_disturbs_the_command(capsys):
+    (_home() / "logs" / logs.LOG_FILE).mkdir(parents=True)  # the log file's name taken by a folder
+    code, out, err = run(capsys, "plates", "list")
+    assert code == 0 and err == "" and "Logging error" not in out + err
