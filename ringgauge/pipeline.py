@@ -133,7 +133,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     px_um, py_um = setup.pixel_size_xy_um
     aspect = py_um / px_um
     px_mm = px_um * 1e-3
-    lam_mm = setup.wavelength_nm * 1e-6
+    lam_nm = fringe_wavelength_nm(setup.source)
+    lam_mm = lam_nm * 1e-6
     n = setup.medium_index
     lam_px_over_n = lam_mm / px_mm / n
 
@@ -243,7 +244,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     s_min = max(rnear**2, 0.0)
     extrema = locate_extrema(prof, period_s, ff.phase0, s_min=s_min, s_max=r_lim**2)
     # the model's phase rate q (rad/px^2) is a slope of 2 pi / q px^2 per fringe
-    R_ff = physics.radius_from_slope(2 * math.pi / ff.q * px_mm**2, setup.wavelength_nm, n)
+    R_ff = physics.radius_from_slope(2 * math.pi / ff.q * px_mm**2, lam_nm, n)
     fit = fit_orders(
         extrema, kind=setup.fringe_kind, px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
     )
@@ -254,7 +255,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         )
     if len(used) < 6:
         warnings.append(f"only {len(used)} rings used: the radius rests on few fringes")
-    R_raw = physics.radius_from_slope(fit.slope_mm2, setup.wavelength_nm, n)
+    R_raw = physics.radius_from_slope(fit.slope_mm2, lam_nm, n)
     # a band source (LED) fades the fringes with order just as blur does: the contrast cannot tell them apart there,
     # so no blur correction is made for it (its wavelength uncertainty is far larger anyway)
     blur = 0.0 if setup.source.fwhm_nm > 0 else estimate_blur(extrema, period_s, setup.fringe_kind)
@@ -352,6 +353,41 @@ def _profile_for_display(prof, px_mm: float, max_points: int = 1500) -> dict:
     }
 
 
+def fringe_wavelength_nm(source) -> float:
+    """The wavelength the fringes of ``source`` follow: the reciprocal of its intensity-weighted mean wavenumber.
+
+    Light of wavenumbers k (weights w) makes fringes sum_k w cos(2 pi k D) at optical path difference D = 2 n t.
+    About the mean wavenumber k_bar = sum w k / sum w this is Re[exp(2 pi i k_bar D) sum w exp(2 pi i (k - k_bar) D)],
+    and the sum has no phase to first order in D (its first cumulant is zero; the first phase term is the third
+    cumulant, order D^3), so the fringe order advances by k_bar per unit D: r^2 = m R / (n k_bar). This is the
+    mean wavenumber, not the mean wavelength: for the sodium doublet with D2 twice as bright as D1 it is
+    589.194 nm against the plain line mean 589.294 nm (170 ppm of R); for a Gaussian band of standard deviation
+    s_lam it is about lam_c (1 - (s_lam / lam_c)^2), e.g. 580 ppm short for 30 nm FWHM at 530 nm. (Two-beam
+    interference with broadband light: Born & Wolf, Principles of Optics, ch. 7, quasi-monochromatic light —
+    from memory.)
+    """
+    if source.lines and len(source.lines) > 1:
+        w = np.array([line.weight for line in source.lines], dtype=np.float64)
+        lam = np.array([line.wavelength_nm for line in source.lines], dtype=np.float64)
+        return float(w.sum() / np.sum(w / lam))
+    if not source.lines and source.fwhm_nm > 0:
+        # Gaussian band in wavelength (FWHM as given), integrated well into its tails
+        sig = source.fwhm_nm / (2.0 * math.sqrt(2.0 * math.log(2.0)))
+        lam = source.wavelength_nm + np.linspace(-6.0 * sig, 6.0 * sig, 481)
+        lam = lam[lam > 0]
+        w = np.exp(-0.5 * ((lam - source.wavelength_nm) / sig) ** 2)
+        return float(w.sum() / np.sum(w / lam))
+    return float(source.wavelength_nm)
+
+
+def _wavelength_note(source, lam_eff: float) -> str:
+    ref = source.reference or source.name
+    if abs(lam_eff - source.wavelength_nm) < 5e-5:
+        return ref
+    return (f"fringe-effective (mean wavenumber of the spectrum) {lam_eff:.4f} nm, source value "
+            f"{source.wavelength_nm:.4f} nm; {ref}")
+
+
 def estimate_blur(extrema, period_s: float, kind: str) -> float:
     """Gaussian blur sigma (px) from the fall of ring contrast with local fringe frequency f = 2 r / P_s.
 
@@ -376,7 +412,7 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
     rings). The full-field estimate of R is a cross-check: when it disagrees with the ring fit by more than three
     Type A uncertainties the difference enters the budget as a rectangular term.
     """
-    lam = setup.wavelength_nm
+    lam = fringe_wavelength_nm(setup.source)
     n = setup.medium_index
     (px, py), (ux, uy) = setup.pixel_size_xy_um, setup.pixel_size_xy_u_um
     c_slope = physics.radius_from_slope(1.0, lam, n) * (R / physics.radius_from_slope(fit.slope_mm2, lam, n))
@@ -414,7 +450,7 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
     rows.append(
         BudgetRow(
             "wavelength", lam, "nm", setup.source.wavelength_u_nm, "normal (source table)", 1.0, -R / lam,
-            "mm/nm", R / lam * setup.source.wavelength_u_nm, note=setup.source.reference or setup.source.name,
+            "mm/nm", R / lam * setup.source.wavelength_u_nm, note=_wavelength_note(setup.source, lam),
         )
     )
     rows.append(
@@ -423,6 +459,20 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
             R / n * setup.medium_index_u,
         )
     )
+    band = abs(lam - setup.source.wavelength_nm) / lam if (setup.source.fwhm_nm > 0 and not setup.source.lines) else 0.0
+    if band > 0:
+        # A band's fringe phase is linear in the path difference only to first order (the mean wavenumber); beyond
+        # it the spectrum's shape (its skewness, which a centre and FWHM do not give) and the fading of contrast with
+        # order move the rings again, by amounts of the same order as the first-order correction over the orders
+        # a band source shows. The correction's own size is carried as the half-width of a rectangular term.
+        rows.append(
+            BudgetRow(
+                "band source: fringe-effective wavelength", lam, "nm", band * lam / math.sqrt(3.0), "rectangular",
+                math.sqrt(3.0), -R / lam, "mm/nm", R * band / math.sqrt(3.0),
+                note=f"mean-wavenumber correction {1e6 * band:.0f} ppm of R (FWHM {setup.source.fwhm_nm:g} nm); "
+                "higher orders depend on the spectrum's shape",
+            )
+        )
     if blur_rel > 0:
         rows.append(
             BudgetRow(
