@@ -148,3 +148,13 @@ def test_user_named_files_never_block(tmp_path, kind):
 def test_one_off_outputs_leave_no_lock_file(tmp_path):
     settings.write_text_atomic(tmp_path / "records.csv", "a,b\n", lock=False)
     assert [p.name for p in tmp_path.iterdir()] == ["records.csv"]
+
+
+def test_records_key_that_is_a_pipe_is_refused(tmp_path, monkeypatch):
+    from ringgauge.records import keys
+
+    fifo = tmp_path / "records.key"
+    os.mkfifo(fifo, 0o600)
+    monkeypatch.setenv("RINGGAUGE_RECORDS_KEY", str(fifo))
+    with pytest.raises(RinggaugeError, match="is not a regular file"):
+        keys.load_key()

@@ -69,6 +69,10 @@ def check_private(p: Path) -> None:
         st = p.stat()
     except OSError as exc:
         raise StoreError(f"cannot read the records key {p}: {exc.strerror or exc}") from None
+    import stat as _stat
+
+    if not _stat.S_ISREG(st.st_mode):  # a pipe or device would block the read below
+        raise StoreError(f"the records key {p} is not a regular file; restore it from the shop's backup")
     if st.st_mode & 0o077:
         raise StoreError(f"the records key {p} can be read by others (mode {st.st_mode & 0o777:o}); "
                          f"run: chmod 600 {p}")
