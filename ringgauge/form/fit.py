@@ -620,10 +620,11 @@ def _fit_gap(
     if prior is None and profile is not None:
         lo_p, hi_p, ends = profile
         if hi_p - lo_p > 0.1:
-            # keep the end farther from the estimate as a model-choice alternative: its distance enters the
-            # budget, so the expanded uncertainty reaches over the whole interval
-            pe = max(ends, key=lambda q: abs(abs(2 * q[3]) - abs(2 * p_mid[3])))
-            alternatives["low-power ambiguity (power profile)"] = (pe[:nw].copy(), pe[nw : nw + 3].copy())
+            # both ends of the interval are model-choice alternatives: their distances enter the budget, so the
+            # expanded uncertainty reaches over the whole interval
+            for label, pe in zip(("low", "high"), ends):
+                alternatives[f"low-power ambiguity ({label} end of the power profile)"] = (pe[:nw].copy(),
+                                                                                         pe[nw : nw + 3].copy())
             weak_note = (f"weak fit: powers from {lo_p:.2f} to {hi_p:.2f} fringe fit this image almost equally well "
                          "(little power under uneven light); the uncertainty is widened to cover them")
     shape_note = ""
@@ -745,6 +746,7 @@ def _fit_gap(
 
 
 LOW_POWER = 1.6  # fringes: below this the power is profiled against the illumination (common practice, no source)
+PROFILE_BAND = 0.015  # relative cost band of the power profile (see _power_profile)
 
 
 def _power_profile(prob: _Problem, p, nw):
@@ -781,9 +783,10 @@ def _power_profile(prob: _Problem, p, nw):
     cmin = min(_cost(rb), best[1])
     pbest = rb.x if _cost(rb) <= best[1] else best[2]
     sigma2 = cmin / max(1, n - p.size)
-    # band: Delta chi^2 = 4 for pixel noise, and at least 0.5 % of the cost for the model's own misfit (fringe
-    # shape, illumination polynomial), which dominates on real images (chosen here, checked on generated parts)
-    tol = max(4.0 * sigma2, 0.005 * cmin)
+    # band: Delta chi^2 = 4 for pixel noise, and at least 1.5 % of the cost for the model's own misfit (fringe
+    # shape, illumination polynomial), which dominates on real images (chosen here on generated parts: at 0.5 %
+    # half a fringe with tilt under strongly uneven light came out 0.13 fringe low with U = 0.02 and no warning)
+    tol = max(4.0 * sigma2, PROFILE_BAND * cmin)
     ok = [t for t in rows if t[1] - cmin < tol]
     ok.append((abs(2 * pbest[3]), cmin, pbest))
     lo = min(t[0] for t in ok)

@@ -52,3 +52,22 @@ def test_one_frame_shapes(name):
             assert err <= max(0.05, 2 * r.terms_u[key]), (key, r.terms[key], true, r.terms_u[key])
         else:
             assert err <= 0.05, (key, r.terms[key], true)
+
+
+@pytest.mark.slow
+def test_half_fringe_with_tilt_under_strong_uneven_light_is_reported_weak():
+    """Half a fringe of power plus a little tilt under strongly uneven light: one frame cannot pin the power
+    (the fitted minimum sits ~0.13 fringe low). The tool must warn that the fit is weak and widen U over the
+    power error. (Its astigmatism is 0.06 fringe off here, just beyond U; left visible, not asserted away:
+    a frame set measures such parts.)"""
+    light = synth.Lighting(falloff=0.6, gradient=0.4, gradient_angle_deg=120.0, stray=0.08)
+    form = synth.SurfaceForm(power=0.5, astig=0.1, tilt_x=0.3, piston=0.15)
+    img = synth.test_plate_fringes(form, camera=CAM, aperture_diameter_mm=AP_MM, lighting=light, rng=51)
+    setup = default_setup(60.0, "mercury-e", pixel_size_u_um=0.06,
+                          extras={"aperture_px": ((320 - 1) / 2, (320 - 1) / 2, R_PX)})
+    r = evaluate_form([frame_from_array(img.image)], setup)
+    assert any("weak fit" in w for w in r.warnings)
+    _, _, u, v = _disc_grid(1.0, 201)
+    truth = form_terms(form.gap_fringes(u, v), u, v)
+    for key in ("power_fringes", "irregularity_fringes"):
+        assert abs(r.terms[key] - abs(truth[key])) <= 2 * r.terms_u[key], key
