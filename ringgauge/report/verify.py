@@ -95,16 +95,17 @@ def expected_rows(content: dict) -> list[tuple[str, list[str]]]:
             rows.append((name, cells if ordered else [UNORDERED, *cells]))
 
     if c.get("kind") == "certificate":
-        one("customer", c["customer"]["customer"])
-        one("order", c["customer"]["order"])
-        one("part / drawing", f"{c['item']['part']} / {c['item']['drawing']}")
+        # label and value on one line: a short value ("1", "2") also appears elsewhere on the page
+        many("customer", ["Customer", c["customer"]["customer"]])
+        many("order", ["Order", c["customer"]["order"]])
+        many("part / drawing", ["Part / drawing", f"{c['item']['part']} / {c['item']['drawing']}"])
         for k in ("surface", "serial", "lot"):
-            one(k, c["item"][k])
-        one("measured date", c["dates"]["measured (UTC)"])
-        one("record", c["dates"]["record"])
+            many(k, [k.capitalize(), c["item"][k]])
+        many("measured date", ["Measured (UTC)", c["dates"]["measured (UTC)"]])
+        many("record", ["Inspection record", c["dates"]["record"]])
         spec = c["specification"]
         for k, v in (spec.items() if isinstance(spec, dict) else spec):
-            one(str(k).lower(), v)
+            many(str(k).lower(), [str(k)[:1].upper() + str(k)[1:], v])
         for r in c["results"]:
             many(f"results row '{r['quantity']}'", [r["quantity"], r["value"], r["U"], r["k"]])
         terms = c["decision"].get("terms")
@@ -128,11 +129,11 @@ def expected_rows(content: dict) -> list[tuple[str, list[str]]]:
             from .pdf import _plate_text
 
             plate = _plate_text(plate)
-        for k, v in (("test plate", plate), ("wavelength source", tr["wavelength source"]),
-                     ("pixel scale", tr["pixel scale"]), ("pixel-scale calibration", tr["pixel-scale calibration"]),
-                     ("temperature", c["environment"]["temperature"]),
-                     ("image file", f"{c['image']['name']}, {c['image']['size']}")):
-            one(k, v)
+        for k, v in (("Test plate", plate), ("Wavelength source", tr["wavelength source"]),
+                     ("Pixel scale", tr["pixel scale"]), ("Pixel-scale calibration", tr["pixel-scale calibration"]),
+                     ("Temperature", c["environment"]["temperature"]),
+                     ("Image file", f"{c['image']['name']}, {c['image']['size']}")):
+            many(k.lower(), [k, v])
     else:
         for k in ("lot", "part", "customer", "tolerance", "period", "operators", "n_records"):
             one(k, c.get(k))

@@ -434,3 +434,23 @@ def test_file_checksum_added_to_the_store_by_hand_is_not_trusted(issued, tmp_pat
         v = verify_pdf(bad, s)
     assert set(v.failed()) == {"whole file", "printed cells", "issued", "records chain"}
     assert "issued file entry 2" in dict((w.split(":")[0], w) for _, w in v.checks)["records chain"]
+
+
+def test_short_value_changed_to_one_printed_elsewhere(legacy, tmp_path):
+    """Gap medium index 1 made 2 (a '2' is printed elsewhere, in the k column): label and value are read as a pair."""
+    store, rec, doc, path = legacy
+    w = PdfWriter(clone_from=PdfReader(str(path)))
+    page = w.pages[0]
+    cs = page.get_contents()
+    data = cs.get_data()
+    strings = re.findall(rb"\(((?:[^()\\]|\\.)*)\) Tj", data)
+    two = strings[strings.index(b"Radius of curvature R") + 3]  # the k cell of the radius row: "2"
+    at = data.index(b"(Gap medium index) Tj")
+    m = re.compile(rb"\(((?:[^()\\]|\\.)*)\) Tj").search(data, at + 10)
+    assert m.group(1) != two
+    cs.set_data(data[: m.start(1)] + two + data[m.end(1):])
+    page.replace_contents(cs)
+    w.write(str(tmp_path / "bad.pdf"))
+    v = verify_pdf(tmp_path / "bad.pdf", store)
+    assert set(v.failed()) == {"printed cells"}
+    assert "gap medium index" in dict((x.split(":")[0], x) for _, x in v.checks)["printed cells"]
