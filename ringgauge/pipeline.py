@@ -248,6 +248,10 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     fit = fit_orders(
         extrema, kind=setup.fringe_kind, px_mm=px_mm, radius_guess_mm=R_ff, lam_mm_over_n=lam_mm / n,
     )
+    # the same rings without the sphere's sagitta correction (the paraxial r^2 = 2 R t): how much the surface model
+    # matters over the measured zone, carried in the budget
+    fit_par = fit_orders(extrema, kind=setup.fringe_kind, px_mm=px_mm)
+    sag_rel = abs(fit.slope_mm2 / fit_par.slope_mm2 - 1) if fit.success and fit_par.success else 0.0
     used = [r for r in fit.rings if r.used]
     if not fit.success or len(used) < MIN_RINGS - 1:
         raise AnalysisError(
@@ -288,7 +292,8 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         )
 
     progress(0.9, "uncertainty budget")
-    budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), sectors, blur_rel=a2 / 2, blur_px=blur)
+    budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), sectors, blur_rel=a2 / 2, blur_px=blur,
+                           sag_rel=sag_rel)
     if any(r.quantity.startswith("method agreement") for r in budget.rows):
         # enough decimals that the two values printed differ (at least the difference's first two digits)
         diff = abs(R - R_ff * (1 - a2 / 2))
@@ -404,7 +409,8 @@ def estimate_blur(extrema, period_s: float, kind: str) -> float:
     return float(math.sqrt(-slope / (2 * math.pi**2))) if slope < 0 else 0.0
 
 
-def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *, blur_rel=0.0, blur_px=0.0):
+def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *, blur_rel=0.0, blur_px=0.0,
+                  sag_rel=0.0):
     """GUM budget for R = n * slope / lambda, slope of r^2 (mm^2) against fringe order.
 
     The Type A row takes the larger of the least-squares standard error of the slope and the standard error of
@@ -471,6 +477,19 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
                 math.sqrt(3.0), -R / lam, "mm/nm", R * band / math.sqrt(3.0),
                 note=f"mean-wavenumber correction {1e6 * band:.0f} ppm of R (FWHM {setup.source.fwhm_nm:g} nm); "
                 "higher orders depend on the spectrum's shape",
+            )
+        )
+    if sag_rel > 0:
+        # The ring fit takes the surface for a sphere (r^2 = 2 R t - t^2). A real surface's conic constant K over the
+        # measured zone is not known: the sag is r^2 / 2R + (1 + K) r^4 / 8 R^3 + ..., so between a paraboloid
+        # (K = -1, r^2 = 2 R t exactly) and a sphere (K = 0) R moves by the whole sphere correction. Carried as a
+        # rectangular term of that half-width (sagitta of conic surfaces: ISO 10110-12, aspheric surface form —
+        # from memory). It matters for strongly curved parts seen over many rings; for most it is a few ppm.
+        rows.append(
+            BudgetRow(
+                "surface model (sphere vs paraboloid sag)", 0.0, "relative", sag_rel / math.sqrt(3.0), "rectangular",
+                math.sqrt(3.0), R, "mm", R * sag_rel / math.sqrt(3.0),
+                note=f"the sphere's sagitta correction changes R by {1e6 * sag_rel:.1f} ppm over the rings used",
             )
         )
     if blur_rel > 0:
