@@ -242,8 +242,10 @@ class _Problem:
         return self._kappa
 
     def _stray_limits(self):
-        ybar = float(np.mean(self.y))
-        return -0.1 * abs(ybar), 0.6 * abs(ybar)
+        if not hasattr(self, "_limits"):
+            ybar = abs(float(np.mean(self.y)))
+            self._limits = (-0.1 * ybar, 0.6 * ybar)
+        return self._limits
 
     def full_residual(self, p, nw):
         """Residuals, plus two rows that keep the model physical: |M| <= 1 over the disc, i.e.
