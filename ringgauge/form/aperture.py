@@ -159,11 +159,9 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     if n_rays < 0.12 * RIM_RAYS:  # under about 45 degrees of clear edge
         raise AnalysisError(_NO_EDGE + " (the fringe field has no clear circular boundary)" + _TRY)
     cx, cy, r, ucx, ucy, ur, rms = circle
-    # the fit's own u sees only pixel noise; the edge model's mismatch shows as the scatter of the rays' own
-    # best rim positions about the circle (largest where the rim's brightness nearly matches the plate's and
-    # only its slope changes): a shared bias of the rim can be as large as that scatter, so it is added whole,
-    # with 0.05 px for the blurred-step model itself (Type B)
-    ur = math.hypot(ur if math.isfinite(ur) else 0.0, rms if math.isfinite(rms) else 1.0, 0.05)
+    # ur: the fit's own (pixel noise) with the rim's model error (see _rim_circle); 0.05 px more for the
+    # blurred-step model itself (Type B)
+    ur = math.hypot(ur if math.isfinite(ur) else 1.0, 0.05)
     ucx = math.hypot(ucx if math.isfinite(ucx) else 0.0, 0.05)
     ucy = math.hypot(ucy if math.isfinite(ucy) else 0.0, 0.05)
     notes = []
@@ -222,17 +220,21 @@ def _coarse_region(img: np.ndarray):
         dev = ndimage.binary_opening(dev, iterations=1)
         lab, n = ndimage.label(dev)
         if n == 0:
+            if region is not None:  # a later round lost the part (its light model took some of it): keep the last
+                break
             raise AnalysisError(_NO_EDGE + " (nothing departs from the plate's smooth light)" + _TRY)
-        # the part is the component that, holes filled, covers most: fringes crossing the plate's own level
-        # split the part into a central patch and rings around it, and a ring filled holds the patch
+        # fringes crossing the plate's own level split the part into a central patch and rings around it (a
+        # ring filled holds the patch).
+        # Lobes of a saddle or a near-flat lie side by side: every large component (a tenth of the largest at
+        # least; dust specks are far smaller) belongs to the part
         sizes = ndimage.sum(dev, lab, index=np.arange(1, n + 1))
-        reg = None
-        for c in np.argsort(sizes)[::-1][:8]:
-            filled = ndimage.binary_fill_holes(lab == (1 + int(c)))
-            if reg is None or filled.sum() > reg.sum():
-                reg = filled
+        big = np.nonzero(sizes >= 0.1 * sizes.max())[0] + 1
+        reg = ndimage.binary_fill_holes(np.isin(lab, big))
         if reg.sum() > 0.9 * reg.size or reg.sum() < 0.005 * reg.size:
+            if region is not None:
+                break
             raise AnalysisError(_NO_EDGE + " (the fringe field fills the frame or is tiny)" + _TRY)
+        kept = coef
         grown = ndimage.binary_dilation(reg, iterations=max(2, int(0.04 * min(h2, w2))))
         new_plate = ~grown
         if region is not None and (reg ^ region).sum() < 0.002 * reg.size:
@@ -245,7 +247,7 @@ def _coarse_region(img: np.ndarray):
     yyf, xxf = np.mgrid[0:H, 0:W]
     Xf = ((xxf + 0.5) / step - 0.5 - w2 / 2) / max(w2, h2)
     Yf = ((yyf + 0.5) / step - 0.5 - h2 / 2) / max(w2, h2)
-    light = np.exp(_poly_terms(Xf, Yf) @ coef)
+    light = np.exp(_poly_terms(Xf, Yf) @ kept)
     ys, xs = np.nonzero(region)
     mask = np.zeros((H, W), dtype=bool)
     full = np.kron(region, np.ones((step, step), dtype=bool))
@@ -426,9 +428,19 @@ def _rim_circle(tab, circle, aspect):
     d = e_best - cross
     used = np.abs(d) < 1.5
     rms = float(np.sqrt(np.mean(d[used] ** 2))) if used.any() else float("nan")
+    # rim errors that several neighbouring rays share (a stretch of rim where the part's brightness matches the
+    # plate's, a bevel, a chip) do not average out like pixel noise: the scatter of 12 sector means says how
+    # large they are; the radius shares about 1/sqrt(12) of it
+    sec = np.floor(th[used] / (2 * np.pi) * 12).astype(int)
+    means = [float(np.mean(d[used][sec == k])) for k in range(12) if np.sum(sec == k) >= 3]
+    sector_sd = float(np.std(means, ddof=1)) if len(means) >= 4 else rms
     cx, cy = cx0 + p[0], cy0 + p[1] / aspect
     misfit = best[0] / (ex.shape[0] * tab["m"] * var)  # mean squared residual per sample over the noise's
-    return (cx, cy, float(p[2]), u[0], u[1] / aspect, u[2], rms), int(used.sum()), float(sig), float(misfit)
+    # the rim's model error: the larger of the sector scatter and half the per-ray scatter (a rim whose
+    # brightness matches the plate's all round shares one bias that sectors cannot show), Type B
+    u_model = max(sector_sd, 0.5 * rms) if math.isfinite(rms) else 1.0
+    return ((cx, cy, float(p[2]), u[0], u[1] / aspect, math.hypot(u[2], u_model), rms), int(used.sum()),
+            float(sig), float(misfit))
 
 
 def _edge_basis(t, e, sig):
