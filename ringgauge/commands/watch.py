@@ -25,18 +25,23 @@ def _pos_int(text: str) -> int:
 def register(sub) -> None:
     p = sub.add_parser(
         "watch",
-        help="follow the rings live from a camera or video: radius, settle indicator, sign from the motion",
+        help="follow the fringes live from a camera or video: radius (or power and astigmatism against a test "
+        "plate), settle indicator, sign from the motion",
         description=(
             "Follow a lens on an optical flat frame by frame, as the camera delivers it: the radius of curvature "
             "with its uncertainty, whether the part has settled (fringes still within a stated fraction of a "
             "fringe over the last frames), and the sign read from the rings' motion while the gap closes (rings "
             "moving out: centre contact, +; in: edge contact, −). Frames the analysis cannot keep up with are "
-            "dropped, never queued. A video file or folder ends the run at its last frame; a camera runs until "
+            "dropped, never queued. With a form option (--mode form, --test-diameter, --tolerance, --test-plate) "
+            "the part is followed on a test plate instead: power and astigmatism (fringes and nm, with their "
+            "uncertainty), settled, and the sign from the fringes' motion while the gap closes. A video file or folder ends the run at its last frame; a camera runs until "
             "Ctrl+C. Safety: the lamp and laser cautions of 'ringgauge sources' apply at the bench."
         ),
         epilog=(
             "Examples: ringgauge watch --camera 0 --source sodium-d --pixel-size 8 --pixel-size-u 0.01\n"
-            "          ringgauge watch --camera part.avi --source mercury-e --pixel-size 16 --json"
+            "          ringgauge watch --camera part.avi --source mercury-e --pixel-size 16 --json\n"
+            "          ringgauge watch --camera plate.avi --source mercury-e --pixel-size 80 --mode form "
+            "--test-diameter 16 --json"
         ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -62,7 +67,8 @@ def register(sub) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from ..live.motion import SETTLE_FRAMES, SETTLE_FRINGES
-    from ..live.session import LiveOptions, LiveSession
+    from ..live.form_tracker import FormLiveSession, open_session
+    from ..live.session import LiveOptions
     from ..live.source import OPEN_TIMEOUT_S, open_source
 
     setup, warnings = setup_from_args(args)
@@ -89,8 +95,12 @@ def run(args: argparse.Namespace) -> int:
         raise
     opts = LiveOptions(settle_frames=settle_frames, settle_fringes=settle_fringes)
     try:
-        session = LiveSession(source, setup, opts)
-        if not args.json:
+        session = open_session(source, setup, opts)
+        if not args.json and isinstance(session, FormLiveSession):
+            print(f"watching {args.camera} ({source.kind}) against a test plate; the first frame gets the full form "
+                  f"evaluation (a few seconds), later frames a warm-started fit; settled = gap still within "
+                  f"{settle_fringes:g} fringe over {settle_frames} frames; Ctrl+C stops", file=sys.stderr)
+        elif not args.json:
             print(f"watching {args.camera} ({source.kind}); settled = fringes within {settle_fringes:g} fringe over "
                   f"{settle_frames} frames; Ctrl+C stops", file=sys.stderr)
         n = 0
@@ -113,6 +123,15 @@ def run(args: argparse.Namespace) -> int:
 def _line(st) -> str:
     if not st.ok:
         return f"frame {st.frame:6d}  no rings tracked: {st.message}"
+    if getattr(st, "power_fringes", None) is not None:
+        settled = "SETTLED" if st.settled else "moving "
+        motion = "" if st.motion_fringes is None else f"{st.motion_fringes:5.2f} fr"
+        sg = "+" if st.power_sign != "unknown" else ""  # a magnitude until the motion gave the sign
+        pw = f"{st.power_fringes:{sg}.3f}" + ("" if sg else " (sign unknown)")
+        return (f"frame {st.frame:6d}  power {pw} ± {2 * st.power_u_fringes:.3f} fringe ({st.power_nm:{sg}.0f} ± "
+                f"{2 * st.power_u_nm:.0f} nm)  astigmatism {st.astigmatism_fringes:.3f} ± "
+                f"{2 * st.astigmatism_u_fringes:.3f} fringe ({st.astigmatism_nm:.0f} ± {2 * st.astigmatism_u_nm:.0f}"
+                f" nm)  k = 2  {settled} {motion:>8}  fringes {st.rings:<5}  sign {st.power_sign}")
     settled = "SETTLED" if st.settled else "moving "
     motion = "" if st.motion_fringes is None else f"{st.motion_fringes:5.2f} fr"
     return (f"frame {st.frame:6d}  R = {st.radius_mm:.4f} mm ± {st.radius_U_mm:.2g} mm (k = {st.k:.2g})  {settled} "

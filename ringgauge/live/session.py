@@ -81,8 +81,11 @@ class LiveSession:
     ``start()`` runs the same loop in a background thread, keeping the newest state in ``latest``.
     """
 
+    #: a subclass that follows a part on a test plate sets this (ringgauge.live.form_tracker.FormLiveSession)
+    handles_form = False
+
     def __init__(self, source: FrameSource, setup: BenchSetup, options: LiveOptions | None = None):
-        if wants_form(setup, 1):
+        if wants_form(setup, 1) and not self.handles_form:
             raise InputError(
                 "the live view follows a lens on an optical flat (radius); analyse the form against a test plate "
                 "from frames on the Bench page or with 'ringgauge analyze' (drop the form options here)"

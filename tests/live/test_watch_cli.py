@@ -131,7 +131,6 @@ def test_silent_stream_times_out(tmp_path):
     (["--settle-fringes", "0.7"], "between 0 and 0.5"),
     (["--max-frames", "0"], "at least 1"),
     (["--open-timeout", "0"], "between 0 and 120"),
-    (["--test-diameter", "20"], "optical flat"),
 ])
 def test_watch_bad_options_one_line(sequences, capsys, extra, words):
     seq = sequences[("centre", "pressing")]
