@@ -60,7 +60,9 @@ def register(sub) -> None:
         "a bench sequence (--sequence): the part settling, resting, pressed gently and released",
         "Writes a video (--out NAME.avi, MJPG) or numbered frames (--out FOLDER) with NAME.truth.json / "
         "FOLDER/truth.json: the gap of every frame, the events and the sign a correct reading gives. Uses "
-        "--radius, --source, --pixel-size, --width/--height, --blur, --falloff, --stray, --seed.",
+        "--radius, --source, --pixel-size, --width/--height, --blur, --falloff, --stray, --seed. With --kind "
+        "test-plate the part has --power (its size; --contact gives its sign), --astigmatism, --astigmatism-axis "
+        "and --aperture, and the gaps move its piston.",
     )
     g.add_argument("--sequence", action="store_true", help="write a sequence instead of one image")
     g.add_argument("--contact", choices=("centre", "edge"), default="centre",
@@ -99,6 +101,20 @@ def _run_sequence(args: argparse.Namespace, src, cam, light) -> int:
     if sys.stderr.isatty():
         def progress(frac: float, msg: str) -> None:
             print(f"\r  {100 * frac:3.0f}%  {msg:<30s}", end="", file=sys.stderr, flush=True)
+    if args.kind == "test-plate":
+        from ..live.form_sequence import FormPlan, write_form_sequence
+
+        fplan = FormPlan(power_fringes=abs(args.power), astigmatism_fringes=abs(args.astigmatism),
+                         axis_deg=args.astigmatism_axis, contact=args.contact, aperture_diameter_mm=args.aperture,
+                         base=plan)
+        out, truth = write_form_sequence(args.out, fplan, source=src, camera=cam, lighting=light,
+                                         medium_index=args.medium_index, noise=not args.no_noise, rng=args.seed,
+                                         progress=progress)
+        if progress:
+            print("\r" + " " * 40 + "\r", end="", file=sys.stderr)
+        print(f"wrote {out} (a part on a test plate, {plan.n_frames} frames at {plan.fps:g} frames/s; truth in "
+              f"{truth})")
+        return 0
     out, truth = write_sequence(args.out, plan, source=src, camera=cam, lighting=light,
                                 medium_index=args.medium_index, noise=not args.no_noise, rng=args.seed,
                                 progress=progress)
