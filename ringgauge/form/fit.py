@@ -582,7 +582,11 @@ def _fit_gap(
         mst = max(stride, int(math.ceil(math.sqrt(n_in / 6000))))
         mid[::mst, ::mst] = True
         mid &= inside
-        mprob = _Problem(*crop.points(mid), illum_degree, finesse=finesse)
+        # with an unknown fringe shape, each candidate start is refined under the plain cosine and under the
+        # given multiple-beam shape: started from the other shape's solution, a low-power fit stays in a basin
+        # biased by the shape mismatch (0.2 fringe at one fringe of power with a zonal term)
+        mu, mv, my = crop.points(mid)
+        shapes = (finesse,) if not finesse_candidates else tuple(dict.fromkeys((finesse, 0.0)))
         best = None
         seen = []
         for _, pt in tried:
@@ -592,12 +596,14 @@ def _fit_gap(
             if any(np.allclose(np.abs(c[1:]), np.abs(o[1:]), atol=0.05) for o in seen):
                 continue
             seen.append(c)
-            p0 = mprob.start(np.concatenate([c, np.zeros(max(0, nterms - LOW_ORDER))]), pt[LOW_ORDER : LOW_ORDER + 3])
-            r = _refine(mprob, p0, nterms, max_nfev=150)
-            if best is None or _cost(r) < best[0]:
-                best = (_cost(r), r.x)
+            for Fs in shapes:
+                mp_ = _Problem(mu, mv, my, illum_degree, finesse=Fs)
+                p0 = mp_.start(np.concatenate([c, np.zeros(max(0, nterms - LOW_ORDER))]), pt[LOW_ORDER : LOW_ORDER + 3])
+                r = _refine(mp_, p0, nterms, max_nfev=150)
+                if best is None or _cost(r) < best[0]:
+                    best = (_cost(r), r.x, Fs, mp_)
         nw = nterms
-        p_mid = best[1]
+        p_mid, finesse, mprob = best[1], best[2], best[3]
         profile = None
         if abs(2 * p_mid[3]) < LOW_POWER:
             if progress:
