@@ -860,6 +860,43 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
     return _finish(buf, content, out)
 
 
+
+def lot_spread_rows(c: dict) -> list[list[str]]:
+    """The lot report's spread table (quantity, n, mean, s, range): only quantities the lot measured.
+
+    Shared by the layout and by verification, so a check reads exactly the cells that were printed.
+    """
+    return [[name, c[key]["n"], c[key]["mean"], c[key]["sd"], c[key]["range"]]
+            for name, key in (("Radius of curvature", "radius"), ("Power", "power")) if c[key]["n"] != "0"]
+
+
+def lot_parts_table(c: dict) -> tuple[list[str], list[list[str]], tuple[float, ...]]:
+    """The lot report's parts table: header, one row of cells per part, relative column widths.
+
+    Lenses measured on a flat get no power column of dashes; a lot judged on radius gets a radius-verdict
+    column. Shared by the layout and by verification.
+    """
+    has_radius = any(r.get("radius_verdict", "—") != "—" for r in c["rows"])
+    has_power = any(r.get("power", "—") != "—" for r in c["rows"])
+
+    def radius_verdict(r: dict) -> str:
+        return r["radius_verdict"] + ("" if r.get("accepted") is None else
+                                      (" (accepted)" if r["accepted"] else " (not accepted)"))
+
+    if has_radius and not has_power:
+        header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Note"]
+        rows = [[r["serial"], r["record"], r["verdict"], radius_verdict(r), r["radius"], r["note"]] for r in c["rows"]]
+        return header, rows, (0.13, 0.09, 0.13, 0.17, 0.19, 0.29)
+    if has_radius:
+        header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
+        rows = [[r["serial"], r["record"], r["verdict"], radius_verdict(r), r["radius"], r["power"], r["note"]]
+                for r in c["rows"]]
+        return header, rows, (0.12, 0.085, 0.12, 0.15, 0.165, 0.13, 0.23)
+    header = ["Serial", "Record", "Verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
+    rows = [[r["serial"], r["record"], r["verdict"], r["radius"], r["power"], r["note"]] for r in c["rows"]]
+    return header, rows, (0.12, 0.08, 0.13, 0.22, 0.17, 0.28)
+
+
 def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4") -> Path:
     """Lay out a lot report from its issued ``content`` (the control chart is drawn from the content)."""
     from reportlab.lib.units import mm
@@ -893,8 +930,7 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
             story.append(Paragraph(_esc(f"Accepted on radius under {c.get('decision_rule')}: {c['accepted']} "
                                         "parts."), st["small"]))
     story.append(Spacer(1, 4))
-    spreads = [[name, c[key]["n"], c[key]["mean"], c[key]["sd"], c[key]["range"]]
-               for name, key in (("Radius of curvature", "radius"), ("Power", "power")) if c[key]["n"] != "0"]
+    spreads = lot_spread_rows(c)
     story.append(_grid_table(["Quantity", "n", "Mean", "Standard deviation s", "Range"],
                              spreads or [["—", "0", "—", "—", "—"]],
                              st, [W * 0.22, W * 0.08, W * 0.22, W * 0.2, W * 0.28]))
@@ -923,26 +959,7 @@ def render_lot_report(content: dict, out: str | os.PathLike, *, paper: str = "A4
         story.append(Paragraph(f"R: radius of curvature; U: expanded uncertainty ({_esc(c['k'])}, about 95 %).",
                                st["small"]))
         story.append(Spacer(1, 3))
-        has_radius = any(r.get("radius_verdict", "—") != "—" for r in c["rows"])
-        has_power = any(r.get("power", "—") != "—" for r in c["rows"])
-        if has_radius and not has_power:  # lenses on a flat: no power column of dashes
-            header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Note"]
-            rows = [[r["serial"], r["record"], r["verdict"],
-                     r["radius_verdict"] + ("" if r.get("accepted") is None else
-                                            (" (accepted)" if r["accepted"] else " (not accepted)")),
-                     r["radius"], r["note"]] for r in c["rows"]]
-            widths = (0.13, 0.09, 0.13, 0.17, 0.19, 0.29)
-        elif has_radius:
-            header = ["Serial", "Record", "Verdict", "Radius verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
-            rows = [[r["serial"], r["record"], r["verdict"],
-                     r["radius_verdict"] + ("" if r.get("accepted") is None else
-                                            (" (accepted)" if r["accepted"] else " (not accepted)")),
-                     r["radius"], r["power"], r["note"]] for r in c["rows"]]
-            widths = (0.12, 0.085, 0.12, 0.15, 0.165, 0.13, 0.23)
-        else:
-            header = ["Serial", "Record", "Verdict", "R ± U / mm", "Power ± U / fringes", "Note"]
-            rows = [[r["serial"], r["record"], r["verdict"], r["radius"], r["power"], r["note"]] for r in c["rows"]]
-            widths = (0.12, 0.08, 0.13, 0.22, 0.17, 0.28)
+        header, rows, widths = lot_parts_table(c)
         story.append(_grid_table(header, rows, st, [W * x for x in widths]))
         story.append(KeepTogether([
             Paragraph("Lot sign-off", st["h2"]),

@@ -23,6 +23,7 @@ could have made a consistent-looking copy.
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import os
 import re
@@ -139,15 +140,15 @@ def expected_rows(content: dict) -> list[tuple[str, list[str]]]:
             one(k, c.get(k))
         for k, v in c.get("counts") or []:
             many(f"count of '{k}'", [k, v], ordered=False)
-        for q, key in (("radius", "radius"), ("power", "power")):
-            s = c.get(key) or {}
-            many(f"{q} statistics", [s.get("n"), s.get("mean"), s.get("sd"), s.get("range")], ordered=False)
+        from .pdf import lot_parts_table, lot_spread_rows
+
+        for row in lot_spread_rows(c):
+            many(f"{row[0].lower()} statistics", row[1:], ordered=False)
         for x in c.get("capability") or []:
             many(f"capability row '{x['quantity']}'", [x["limits"], x["mean"], x["s"], x["Cp"], x["Cpk"]],
                  ordered=False)
-        for r in c.get("rows") or []:
-            many(f"parts row for record {r['record']}",
-                 [r["record"], r["serial"], r["verdict"], r["radius"], r["power"], r["note"]], ordered=False)
+        for r, cells in zip(c.get("rows") or [], lot_parts_table(c)[1] if c.get("rows") else []):
+            many(f"parts row for record {r['record']}", cells, ordered=False)
     return rows
 
 
@@ -430,19 +431,15 @@ def verify_pdf(path: str | os.PathLike, store=None) -> Verification:
 
     from .pdf import CONTENT_FILE, content_checksum
 
+    from ..settings import read_regular_bytes
+
     p = Path(path)
     v = Verification(str(p))
-    if not p.exists():
-        raise InputError(f"{p}: no such file")
-    if p.is_dir():
-        raise InputError(f"{p} is a folder; give a PDF file")
-    try:
-        data = p.read_bytes()
-    except OSError as exc:
-        raise InputError(f"cannot read {p}: {exc.strerror or exc}") from None
+    # a named pipe or device given as the document would block a plain read: refused without opening it for good
+    data = read_regular_bytes(p, what="document")
     v.file_sha256 = hashlib.sha256(data).hexdigest()
     try:
-        reader = PdfReader(str(p))
+        reader = PdfReader(io.BytesIO(data))
         runs = page_runs(reader)
         pages = [_norm(" ".join(t for _, _, t in sorted(rs, key=lambda r: (-r[1], r[0])))) for rs in runs]
         meta = reader.metadata or {}

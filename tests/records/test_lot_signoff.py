@@ -252,3 +252,25 @@ def test_lot_sheet_given_but_missing_or_too_large(tmp_path, capsys):
     rc = cli(["batch", str(folder), "--lot-sheet", str(big), "--db", str(tmp_path / "r.sqlite")])
     err = capsys.readouterr().err
     assert rc == 2 and "too large" in err
+
+
+def test_radius_only_lot_report_verifies_against_its_store(lot_store, tmp_path):
+    """A lot of lenses on a flat prints no power column; verification must read the cells that were printed
+    (it once expected a power cell in every parts row and failed every such lot report)."""
+    from ringgauge.records.documents import issue_lot_report
+    from ringgauge.report.verify import verify_pdf
+
+    _doc, path = issue_lot_report(lot_store, "FH-T", tmp_path / "lot.pdf", {"name": "Test Shop (invented)"})
+    v = verify_pdf(path, lot_store)
+    assert v.ok, [w for ok, w in v.checks if not ok]
+    assert "printed cells" not in v.failed()
+
+
+def test_certificate_verify_refuses_a_named_pipe_without_hanging(tmp_path, capsys):
+    import os
+
+    fifo = tmp_path / "doc.pdf"
+    os.mkfifo(fifo)
+    assert cli(["certificate", "verify", str(fifo)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "not a regular file" in err[0]
