@@ -365,7 +365,8 @@ def judge(tol: Tolerance | None, terms: dict, terms_u: dict, *, measured_fringe_
     if not tol.wavelength_stated:
         out["wavelength_note"] = (f"the tolerance states no wavelength: fringes of {DEFAULT_WAVELENGTH_NM} nm "
                                   "(mercury e-line) assumed")
-    elif abs(tol.wavelength_nm - measured_wavelength_nm) > 0.005:
+    elif (any(lim.unit == "fringes" for lim in tol.written)
+          and abs(tol.wavelength_nm - measured_wavelength_nm) > 0.005):
         out["wavelength_note"] = (f"tolerance at λ = {tol.wavelength_nm:g} nm, measured at "
                                   f"{measured_wavelength_nm:g} nm: values converted by surface height")
     return out
