@@ -30,6 +30,7 @@ from . import display, integrations
 from .lot import COLUMNS, DONE, FAILED, QUEUED, RUNNING, Lot
 from .model import BenchSession, _Cancelled
 from .results_panel import ResultsPanel
+from .widgets import ElidedLabel
 from .worker import Runner
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
@@ -169,7 +170,7 @@ class LotPage(QWidget):
         self.b_certs.setToolTip("Certificates of the kept records and a lot report, as PDF files"
                                 if integrations.certificates_available() else
                                 "This build cannot issue certificates")
-        self.folder_label = QLabel("No lot open")
+        self.folder_label = ElidedLabel("No lot open")
         self.folder_label.setObjectName("imageTitle")
         self.folder_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.lot_name = QLineEdit()

@@ -39,6 +39,7 @@ from .image_view import LAYERS, ImageView
 from .lot_view import LotPage
 from .model import BenchSession, FolderWatch, Job
 from .plots import PlotPanel
+from .widgets import ElidedLabel
 from .prefs import Prefs
 from .results_panel import ResultsPanel
 from .setup_panel import SetupPanel
@@ -69,24 +70,6 @@ SHORTCUTS = (
 )
 
 
-class _TitleLabel(QLabel):
-    """The image's name over the photograph: shortened in the middle with "…" when the column is narrow (the
-    file's ending stays readable), the whole name as its tooltip; ``text()`` keeps the whole name."""
-
-    def setText(self, text: str) -> None:  # noqa: N802
-        super().setText(text)
-        self.setToolTip(text)
-
-    def paintEvent(self, _event):  # noqa: N802
-        from PySide6.QtGui import QPainter
-
-        p = QPainter(self)
-        r = self.contentsRect()
-        p.drawText(r, int(self.alignment()), self.fontMetrics().elidedText(self.text(), Qt.TextElideMode.ElideMiddle,
-                                                                          r.width()))
-        p.end()
-
-
 class BenchPage(QWidget):
     """Set-up on the left, the photograph in the middle, verdict, values and plots on the right."""
 
@@ -112,7 +95,7 @@ class BenchPage(QWidget):
         self.view = ImageView()
         self.plots = PlotPanel()
         self.results = ResultsPanel()
-        self.title = _TitleLabel("No image open")
+        self.title = ElidedLabel("No image open")
         self.title.setObjectName("imageTitle")
         self.title.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.hint = QLabel("")

@@ -97,9 +97,13 @@ def cut_texts(root) -> list[str]:
     from PySide6.QtWidgets import (QAbstractSpinBox, QComboBox, QLabel, QLineEdit, QStyle, QStyleOptionComboBox,
                                    QTableWidget, QTabWidget)
 
+    from ringgauge.gui.widgets import ElidedLabel
+
     out = []
     for w in [root, *root.findChildren(object)]:
         if not hasattr(w, "isVisibleTo") or not w.isVisibleTo(root.window()) or w.width() <= 1:
+            continue
+        if isinstance(w, ElidedLabel):  # shortens itself in the middle and keeps the whole text as its tooltip
             continue
         if isinstance(w, QLabel) and w.text() and not w.wordWrap() and "<" not in w.text() and w.pixmap().isNull():
             need = max(w.fontMetrics().horizontalAdvance(line) for line in w.text().splitlines())

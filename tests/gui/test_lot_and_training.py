@@ -43,6 +43,20 @@ def test_lot_fills_from_a_folder(lot_page, qtbot, sample_dir):
     assert page.message.text() == "Lot finished"
 
 
+def test_lot_folder_name_is_shortened_not_cut(lot_page, qtbot, sample_dir):
+    """A long folder path stays readable at its end (the lot's own folder name) and whole in the tooltip; the
+    plain label it replaces was cut at the right edge at 1280x800."""
+    page = lot_page
+    page.resize(1280, 760)
+    assert page.open_folder(str(sample_dir))
+    label = page.folder_label
+    whole = label.text()
+    assert str(sample_dir) in whole and label.toolTip() == whole
+    shown = label.fontMetrics().elidedText(whole, Qt.TextElideMode.ElideMiddle, label.contentsRect().width())
+    assert shown.endswith("images") and label.fontMetrics().horizontalAdvance(shown) <= label.contentsRect().width()
+    qtbot.waitUntil(lambda: page.lot.counts()[DONE] + page.lot.counts()[FAILED] == 4, timeout=20000)
+
+
 def test_lot_sorts_filters_selects_and_exports(lot_page, qtbot, sample_dir, tmp_path):
     page = lot_page
     page.open_folder(str(sample_dir))
