@@ -42,11 +42,11 @@ class SectorScatter:
 
 
 def sector_scatter(
-    profiles, *, period_s, phase0, s_min, s_max, kind, px_mm, radius_guess_mm, lam_mm_over_n,
+    profiles, *, period_s, phase0, s_min, s_max, kind, px_mm, radius_guess_mm, lam_mm_over_n, angles=None,
 ) -> SectorScatter | None:
     """Fit r^2 against order in each sector profile (from :func:`s_profiles_by_label`) and summarise the scatter."""
     n_sectors = len(profiles)
-    slopes, angles, counts = [], [], []
+    slopes, mids, counts = [], [], []
     for k, prof in enumerate(profiles):
         if prof.count.sum() < 500:
             continue
@@ -55,12 +55,12 @@ def sector_scatter(
         if not fit.success or fit.ndata < 4:
             continue
         slopes.append(fit.slope_mm2)
-        angles.append((k + 0.5) / n_sectors * 2 * np.pi - np.pi)
+        mids.append((k + 0.5) / n_sectors * 2 * np.pi - np.pi if angles is None else float(angles[k]))
         counts.append(fit.ndata)
     if len(slopes) < 4:
         return None
     sl = np.array(slopes)
-    an = np.array(angles)
+    an = np.array(mids)
     n = len(sl)
     u_mean = float(np.std(sl, ddof=1) / np.sqrt(n))
     # roundness: slope(θ) = a + b cos 2θ + c sin 2θ
