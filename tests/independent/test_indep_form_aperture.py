@@ -18,6 +18,7 @@ from ringgauge.form.aperture import find_aperture
 from ringgauge.imaging import frame_from_array
 
 BASE = P.Part()
+pytestmark = pytest.mark.slow  # about 2-5 s per image on a busy machine
 
 
 def _find(part, seed=1):
