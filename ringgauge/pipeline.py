@@ -446,8 +446,9 @@ def radius_budget(R: float, fit, setup: BenchSetup, R_ff: float, sectors=None, *
 
     The Type A row takes the larger of the least-squares standard error of the slope and the standard error of
     the mean of the sector slopes (which also sees illumination, dust and centre effects that vary around the
-    rings). The full-field estimate of R is a cross-check: when it disagrees with the ring fit by more than three
-    Type A uncertainties the difference enters the budget as a rectangular term.
+    rings). The full-field estimate of R is a cross-check: the part of its difference from the ring fit beyond the
+    Type A enters the budget as a rectangular term. Band sources and the sphere's sagitta correction carry
+    rectangular terms of the size of their first-order corrections.
     """
     lam = fringe_wavelength_nm(setup.source)
     n = setup.medium_index
