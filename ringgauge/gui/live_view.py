@@ -112,9 +112,31 @@ class FrameView(QLabel):
             x, y = (cx + 0.5) * k, (cy + 0.5) * k
             p.drawLine(QPointF(x - 8, y), QPointF(x + 8, y))
             p.drawLine(QPointF(x, y - 8), QPointF(x, y + 8))
+        elif st is not None and st.ok and getattr(st, "aperture_radius_px", None):
+            # against a test plate: the part's clear aperture the form is fitted over
+            p.setRenderHint(QPainter.RenderHint.Antialiasing)
+            p.setPen(QPen(QColor("#3ddc84") if st.settled else QColor("#ffb000"), 1.5))
+            cx, cy = st.centre_px
+            r = st.aperture_radius_px
+            p.drawEllipse(QPointF((cx + 0.5) * k, (cy + 0.5) * k), r * k, r * k)
         p.end()
         self.rings_drawn = n
         self.setPixmap(pix)
+
+
+def _form_text(st, *, hide_sign: bool = False) -> str:
+    """Power and astigmatism against a test plate, ± U (k = 2), in fringes and nm (rich text for the page)."""
+    known = st.power_sign != "unknown" and not hide_sign
+    sg = "+" if known else ""
+    pw = abs(st.power_fringes) if not known else st.power_fringes
+    pnm = abs(st.power_nm) if not known else st.power_nm
+    note = "" if known else "power: size only, sign not yet read · "
+    big, small, end = "<span style='font-size:12pt'>", "<span style='font-size:10pt;font-weight:normal'>", "</span>"
+    return (f"{big}power {pw:{sg}.3f} ± {2 * st.power_u_fringes:.3f} fringe{end} {small}({pnm:{sg}.0f} ± "
+            f"{2 * st.power_u_nm:.0f} nm){end}<br>{big}astigmatism {st.astigmatism_fringes:.3f} ± "
+            f"{2 * st.astigmatism_u_fringes:.3f} fringe{end} {small}({st.astigmatism_nm:.0f} ± "
+            f"{2 * st.astigmatism_u_nm:.0f} nm){end}<br>{small}{note}axis {st.astigmatism_axis_deg:.0f}° · U with "
+            f"k = 2 · 1 fringe = {st.fringe_nm:.1f} nm{end}")
 
 
 class LivePage(QWidget):
@@ -275,7 +297,7 @@ class LivePage(QWidget):
 
     def start(self, spec: str) -> bool:
         """Open ``spec`` and start the live analysis; a bad source shows one line and nothing else changes."""
-        from ..live.session import LiveSession
+        from ..live.form_tracker import FormLiveSession, open_session
         from ..live.source import open_source
 
         self.stop()
@@ -293,13 +315,14 @@ class LivePage(QWidget):
             self.show_problem(str(exc))
             return False
         try:
-            self.session = LiveSession(source, setup)
+            self.session = open_session(source, setup)
         except RinggaugeError as exc:
             source.close()
             self.show_problem(str(exc))
             return False
         o = self.session.options
-        self.settle_rule.setText(f"Settled = fringes still within {o.settle_fringes:g} fringe over the last "
+        what = "the gap at fixed points of the part" if isinstance(self.session, FormLiveSession) else "fringes"
+        self.settle_rule.setText(f"Settled = {what} still within {o.settle_fringes:g} fringe over the last "
                                  f"{o.settle_frames} frames.")
         self.show_problem("")
         self._shown_frame = -1
@@ -347,7 +370,7 @@ class LivePage(QWidget):
         if not st.ok:
             self.settle_label.setText("NO RINGS TRACKED")
             self.settle_label.setStyleSheet(_IDLE_STYLE)
-            self.radius_label.setText("R = —")
+            self.radius_label.setText("power —" if hasattr(st, "power_fringes") else "R = —")
             self.rings_label.setText("—")
             self.capture_btn.setEnabled(False)
             self.capture_note.setText(st.message)
@@ -359,7 +382,12 @@ class LivePage(QWidget):
             mv = "" if st.motion_fringes is None else f" ({st.motion_fringes:.2f} fringe)"
             self.settle_label.setText(f"MOVING{mv}")
             self.settle_label.setStyleSheet(_MOVING_STYLE)
-        self.radius_label.setText(f"R = {st.radius_mm:.4f} mm ± {st.radius_U_mm:.2g} mm  (k = {st.k:.2g})")
+        if getattr(st, "power_fringes", None) is not None:
+            self.radius_label.setText(_form_text(st, hide_sign=self.hidden))
+            # four lines instead of one: the panel must make room rather than clip them
+            self.radius_label.setMinimumHeight(self.radius_label.sizeHint().height())
+        else:
+            self.radius_label.setText(f"R = {st.radius_mm:.4f} mm ± {st.radius_U_mm:.2g} mm  (k = {st.k:.2g})")
         if self.hidden:
             for lab in (self.rings_label, self.gap_label, self.sign_label):
                 lab.setText("hidden — your call")
