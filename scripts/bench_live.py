@@ -13,7 +13,11 @@ The first frame of a run goes through the full engine (it finds the rings from n
 separately; the figures for tracking leave it out. Generation is not timed. Target: ≥ 10 analysed frames/s,
 aim 25, on the 2-core machine. Other processes share the machine: the load average is printed beside the figures.
 
-Usage: ``python scripts/bench_live.py [--quick] [--out PATH] [--seed N]``
+A second part plays a part on a test plate (ringgauge.live.form_sequence, 1024 × 1024 px, centre and edge
+contact) flat out: analysed frames/s of the warm-started form fit, power and astigmatism against the truth on
+settled frames, whether every settled frame lies where the generated gap had stopped, and the sign read.
+
+Usage: ``python scripts/bench_live.py [--quick] [--plate-only] [--out PATH] [--seed N]``
 """
 
 from __future__ import annotations
@@ -105,17 +109,110 @@ def play(video: str, *, pace: bool) -> dict:
     }
 
 
+PLATE_PIXEL_UM = 25.0
+PLATE_TD_MM = 16.0
+
+
+def play_plate(video: str, truth: dict) -> dict:
+    """A test-plate video flat out: rate, form against the truth on settled frames, settle and sign checks."""
+    from ringgauge.live.form_tracker import open_session
+    from ringgauge.live.motion import SETTLE_FRAMES, SETTLE_FRINGES
+
+    setup = default_setup(PLATE_PIXEL_UM, SOURCE, test_diameter_mm=PLATE_TD_MM)
+    src = open_source(video)
+    s = open_session(src, setup)
+    from ringgauge.form.evaluate import evaluate_form
+    from ringgauge.imaging import frame_from_array
+
+    with open_source(video) as pre:
+        f0 = pre.read()
+    tf = time.perf_counter()
+    evaluate_form([frame_from_array(f0.codes, full_scale=f0.full_scale)], setup)  # as at capture: full resolution
+    full_s = time.perf_counter() - tf
+    states, stamps = [], []
+    t0 = time.perf_counter()
+    for st in s:
+        stamps.append(time.perf_counter())
+        states.append(st)
+    src.close()
+    scale = (PLATE_TD_MM / truth["aperture_diameter_mm"]) ** 2
+    want_p, want_a = truth["power_fringes"] * scale, truth["astigmatism_fringes"] * scale
+    settled = [st for st in states if st.ok and st.settled]
+    piston = truth["piston_fringes"]
+    early = [st.frame for st in settled
+             if max(w := piston[max(0, st.frame - SETTLE_FRAMES + 1): st.frame + 1]) - min(w) > SETTLE_FRINGES + 0.01]
+    span = stamps[-1] - stamps[1] if len(stamps) > 2 else float("nan")
+    return {
+        "first_frame_s": stamps[0] - t0 if stamps else float("nan"), "full_s": full_s,
+        "fps": (len(stamps) - 2) / span if span and span > 0 else float("nan"),
+        "analysed": len(states), "ok": sum(st.ok for st in states), "settled": len(settled),
+        "dp_mean": statistics.fmean(st.power_fringes - want_p for st in settled) if settled else float("nan"),
+        "da_mean": statistics.fmean(st.astigmatism_fringes - want_a for st in settled) if settled else float("nan"),
+        "U_p": statistics.fmean(2 * st.power_u_fringes for st in settled) if settled else float("nan"),
+        "within_U": (sum(abs(st.power_fringes - want_p) <= 2 * st.power_u_fringes for st in settled)
+                     / len(settled)) if settled else float("nan"),
+        "early": early,
+        "sign": s.sign.sign, "sign_truth": truth["power_sign"],
+    }
+
+
+def plate_part(args, log) -> tuple[list, list]:
+    from ringgauge.live.form_sequence import FormPlan, write_form_sequence
+
+    base = (SequencePlan(settle_frames=24, rest_frames=12, press_frames=12, after_frames=12) if args.quick
+            else SequencePlan())
+    res = {}
+    with tempfile.TemporaryDirectory(prefix="rg-bench-plate-") as tmp:
+        for contact, seed in (("centre", args.seed + 1), ("edge", args.seed + 2)):
+            video = str(Path(tmp) / f"plate-{contact}.avi")
+            log(f"bench_live: writing a {contact}-contact test-plate sequence, {base.n_frames} frames (not timed) ...")
+            _v, tpath = write_form_sequence(video, FormPlan(contact=contact, base=base), source=SOURCE,
+                                            camera=synth.Camera(width=SIZE, height=SIZE, pixel_um=PLATE_PIXEL_UM),
+                                            rng=seed)
+            import json
+
+            log(f"bench_live: playing the {contact}-contact test-plate sequence flat out ...")
+            res[contact] = play_plate(video, json.loads(Path(tpath).read_text()))
+    c, e = res["centre"], res["edge"]
+    rows = [
+        ("one-frame form evaluation at full resolution (as at capture), s", f"{c['full_s']:.2f}",
+         f"{e['full_s']:.2f}"),
+        ("first live frame (that evaluation on a 2×2 block-averaged copy), s", f"{c['first_frame_s']:.2f}",
+         f"{e['first_frame_s']:.2f}"),
+        ("warm-started form fit: analysed frames/s", f"{c['fps']:.1f}", f"{e['fps']:.1f}"),
+        ("frames analysed / fitted / settled", f"{c['analysed']} / {c['ok']} / {c['settled']}",
+         f"{e['analysed']} / {e['ok']} / {e['settled']}"),
+        ("settled power − truth, mean, fringe", f"{c['dp_mean']:+.4f}", f"{e['dp_mean']:+.4f}"),
+        ("expanded U (k = 2) of the power, mean, fringe", f"{c['U_p']:.3f}", f"{e['U_p']:.3f}"),
+        ("settled frames with |power − truth| ≤ U", f"{100 * c['within_U']:.0f} %", f"{100 * e['within_U']:.0f} %"),
+        ("settled astigmatism − truth, mean, fringe", f"{c['da_mean']:+.4f}", f"{e['da_mean']:+.4f}"),
+        ("settled frames while the generated gap still moved", f"{len(c['early'])}", f"{len(e['early'])}"),
+        ("sign read / truth", f"{c['sign']} / {c['sign_truth']}", f"{e['sign']} / {e['sign_truth']}"),
+    ]
+    header = (f"test plate: {SIZE}×{SIZE} px MJPG, {base.n_frames} frames, {SOURCE}, {PLATE_PIXEL_UM:g} µm/px, "
+              f"20 mm part with 2.5 fringes of power and 0.6 of astigmatism, read over a {PLATE_TD_MM:g} mm test "
+              "diameter (truth scaled by the diameter squared), played flat out")
+    return rows, [header]
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description="Live benchmark: tracking mode on 1-megapixel frames.")
     ap.add_argument("--quick", action="store_true", help="a shorter sequence for a smoke run")
     ap.add_argument("--out", default=str(ROOT / "resources" / "bench_live_latest.md"),
                     help="Markdown file for the figures (default: resources/bench_live_latest.md)")
     ap.add_argument("--seed", type=int, default=20261202, help="sequence seed")
+    ap.add_argument("--plate-only", action="store_true", help="only the test-plate part (printed, not written)")
     args = ap.parse_args(argv)
 
     def log(msg):
         print(msg, file=sys.stderr, flush=True)
 
+    if args.plate_only:
+        rows, header = plate_part(args, log)
+        width = max(len(r[0]) for r in rows)
+        print(header[0] + f"\nload average {os.getloadavg()[0]:.2f}\n\n{'':{width}}  {'centre contact':>16}  "
+              f"{'edge contact':>16}\n" + "\n".join(f"{a:{width}}  {b:>16}  {c:>16}" for a, b, c in rows))
+        return 0
     plan = (SequencePlan(radius_mm=RADIUS_MM, settle_frames=24, rest_frames=12, press_frames=12, after_frames=12)
             if args.quick else SequencePlan(radius_mm=RADIUS_MM))
     started = _dt.datetime.now(_dt.timezone.utc)
@@ -129,6 +226,7 @@ def main(argv=None) -> int:
         flat = play(video, pace=False)
         log("bench_live: playing as a camera at 25 frames/s ...")
         cam = play(video, pace=True)
+    plate_rows, plate_header = plate_part(args, log)
     load1 = os.getloadavg()
 
     rows = [
@@ -168,12 +266,18 @@ def main(argv=None) -> int:
     text += "\n".join(f"{a:{width}}  {b:>22}  {c:>22}" for a, b, c in rows)
     text += f"\n\nratio tracking rate / target: {flat['tracking_fps'] / TARGET_FPS:.2f} (flat out), " \
             f"{cam['tracking_fps'] / TARGET_FPS:.2f} (as a camera, capped by the 25 frames/s the file delivers)"
+    pw = max(len(r[0]) for r in plate_rows)
+    text += "\n\n" + plate_header[0] + f"\n{'':{pw}}  {'centre contact':>16}  {'edge contact':>16}\n"
+    text += "\n".join(f"{a:{pw}}  {b:>16}  {c:>16}" for a, b, c in plate_rows)
     print(text, flush=True)
     md = ["# Live benchmark: latest figures", "", *[f"- {h}" for h in header], "",
           "| | flat out | as a camera (25 frames/s) |", "|---|---|---|",
           *[f"| {a} | {b} | {c} |" for a, b, c in rows], "",
           f"Ratio tracking rate / target: {flat['tracking_fps'] / TARGET_FPS:.2f} (flat out), "
-          f"{cam['tracking_fps'] / TARGET_FPS:.2f} (as a camera).", ""]
+          f"{cam['tracking_fps'] / TARGET_FPS:.2f} (as a camera).", "",
+          "## Against a test plate", "", *[f"- {h}" for h in plate_header], "",
+          "| | centre contact | edge contact |", "|---|---|---|",
+          *[f"| {a} | {b} | {c} |" for a, b, c in plate_rows], ""]
     out = Path(args.out)
     out.parent.mkdir(parents=True, exist_ok=True)
     out.write_text("\n".join(md), encoding="utf-8")
