@@ -599,7 +599,7 @@ def _fit_gap(
             for Fs in shapes:
                 mp_ = _Problem(mu, mv, my, illum_degree, finesse=Fs)
                 p0 = mp_.start(np.concatenate([c, np.zeros(max(0, nterms - LOW_ORDER))]), pt[LOW_ORDER : LOW_ORDER + 3])
-                r = _refine(mp_, p0, nterms, max_nfev=150)
+                r = _refine(mp_, p0, nterms, max_nfev=60)
                 if best is None or _cost(r) < best[0]:
                     best = (_cost(r), r.x, Fs, mp_)
         nw = nterms
