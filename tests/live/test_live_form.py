@@ -149,3 +149,48 @@ def test_watch_json_lines_carry_the_form_readouts(plates, capsys):
     assert last["settled"] is True and last["power_sign"] == "-" and last["power_fringes"] < 0
     want = p["truth"]["power_fringes"] * _scale(p["truth"])
     assert abs(last["power_fringes"] - want) <= 2 * last["power_u_fringes"]
+
+
+def test_live_page_shows_the_form_and_capture_gives_a_form_result(plates, qtbot, tmp_path):
+    pytest.importorskip("PySide6")
+    from ringgauge.gui.model import BenchSession, SetupState
+    from ringgauge.gui.prefs import Prefs
+    from ringgauge.gui.window import MainWindow
+
+    p = plates["centre"]
+    s = BenchSession(None, SetupState(source=SOURCE, pixel_size_um=PIXEL_UM, pixel_size_u_um=0.0,
+                                      test_diameter_mm=TEST_DIAMETER_MM))
+    w = MainWindow(s, prefs=Prefs(str(tmp_path / "live-form.ini")))
+    w._debounce.setInterval(0)
+    qtbot.addWidget(w)
+    w.show()
+    page = w.live
+    try:
+        assert page.start(p["video"]), page.problem.text()
+        qtbot.waitUntil(lambda: page.session.ended, timeout=120000)
+        page.refresh()
+        assert "SETTLED" in page.settle_label.text()
+        text = page.radius_label.text()
+        st = page.session.latest
+        # power with its sign, ± U (k = 2), in fringes and nm; astigmatism likewise
+        assert f"power {st.power_fringes:+.3f} ± {2 * st.power_u_fringes:.3f} fringe" in text
+        assert f"({st.power_nm:+.0f} ± {2 * st.power_u_nm:.0f} nm)" in text
+        assert f"astigmatism {st.astigmatism_fringes:.3f} ± {2 * st.astigmatism_u_fringes:.3f} fringe" in text
+        assert "gap at fixed points" in page.settle_rule.text()
+        assert page.sign_label.text().startswith("+")
+        paths = page.capture()
+        assert len(paths) == 1
+        ev = json.loads(open(paths[0].rsplit(".", 1)[0] + ".motion.json", encoding="utf-8").read())
+        assert ev["power_sign"] == "+" and ev["tracked_power_fringes"] > 0
+
+        def done():
+            assert w.session.result is not None, w.session.error
+
+        qtbot.waitUntil(done, timeout=120000)
+        d = w.session.result.to_dict()
+        form = d.get("form") or d
+        want = p["truth"]["power_fringes"] * _scale(p["truth"])
+        # the capture is a normal one-frame form analysis: its power magnitude within its U of the truth
+        assert abs(abs(form["power_fringes"]) - want) <= form["k"] * form["power_u_fringes"], form["power_fringes"]
+    finally:
+        page.stop()
