@@ -586,45 +586,21 @@ def form_profile(m: dict | None, *, bins: int = 40) -> dict | None:
 
 
 def _form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
-    if form_obj is not None and getattr(form_obj, "fits", None):
-        m = _form_fit_map(form_obj, shape)
-        if m is not None:
-            return m
-    if form_obj is not None:
-        for attr in ("gap_map_nm", "height_map_nm", "map_nm"):
-            m = getattr(form_obj, attr, None)
-            if m is not None:
-                arr = np.asarray(m, dtype=float)
-                if arr.ndim == 2:
-                    ext = getattr(form_obj, "map_extent_px", None)
-                    extent = tuple(ext) if ext is not None else (0.0, float(arr.shape[1]), float(arr.shape[0]), 0.0)
-                    return {"gap_nm": arr, "extent_px": extent, "title": "Surface form: fitted gap"}
+    """The form result's own height map (the engine makes it, from the phase map or the gap fit, with the sign
+    applied when known); without a form result, the ring fit's gap."""
+    m = getattr(form_obj, "height_map_nm", None) if form_obj is not None else None
+    if m is not None and np.ndim(m) == 2:
+        arr = np.asarray(m, dtype=float)
+        ext = getattr(form_obj, "map_extent_px", None)
+        extent = tuple(ext) if ext is not None else (0.0, float(arr.shape[1]), float(arr.shape[0]), 0.0)
+        ap = getattr(form_obj, "aperture", None)
+        out = {"gap_nm": arr, "extent_px": extent, "title": "Surface form less piston and tilt"}
+        if ap is not None:
+            out["centre_px"] = (float(ap.centre_px[0]), float(ap.centre_px[1]))
+        return out
     if shape is None:
         return None
     return ring_gap_map(d, shape)
-
-
-def _form_fit_map(form_obj, shape, n: int = 161) -> dict | None:
-    """The form fit's gap less piston and tilt, in nm, over the fitted aperture (NaN outside)."""
-    try:
-        from ..form.fit import gap_basis
-    except ImportError:
-        return None
-    f = form_obj.fits[0]
-    coeffs = np.asarray(f.coeffs, dtype=float)
-    cx, cy = f.centre_px
-    r, aspect = float(f.radius_px), float(f.aspect or 1.0)
-    xs = np.linspace(cx - r, cx + r, n)
-    ys = np.linspace(cy - r / aspect, cy + r / aspect, n)
-    X, Y = np.meshgrid(xs, ys)
-    u, v = (X - cx) / r, (Y - cy) * aspect / r
-    inside = u * u + v * v <= 1.0
-    B = gap_basis(u[inside], v[inside], len(coeffs))
-    keep = np.array([name not in ("piston", "tilt_x", "tilt_y") for name in f.names[: len(coeffs)]])
-    gap = np.full(u.shape, np.nan)
-    gap[inside] = (coeffs[keep] @ B[keep]) * float(form_obj.fringe_nm)
-    return {"gap_nm": gap, "extent_px": (xs[0], xs[-1], ys[-1], ys[0]), "centre_px": (float(cx), float(cy)),
-            "title": "Surface form: fitted gap less piston and tilt"}
 
 
 def _cell_residual(img, m, rn, theta, *, annuli: int, sectors: int) -> np.ndarray:
