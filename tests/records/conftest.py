@@ -8,7 +8,6 @@ system user. The tests are skipped, with the reason, only when the PostgreSQL bi
 from __future__ import annotations
 
 import copy
-import glob
 import hashlib
 import os
 import random
@@ -19,27 +18,10 @@ import uuid
 
 import pytest
 
+from pg_cluster import _as_server_user, _pg_bin
 from records_sample import _BASE
 
 from ringgauge.records import open_store
-
-
-def _pg_bin() -> str | None:
-    found = sorted(glob.glob("/usr/lib/postgresql/*/bin/initdb"))
-    if found:
-        return os.path.dirname(found[-1])
-    w = shutil.which("initdb")
-    return os.path.dirname(w) if w else None
-
-
-def _as_server_user(cmd: list[str]) -> list[str]:
-    if os.geteuid() != 0:
-        return cmd
-    if shutil.which("runuser"):
-        return ["runuser", "-u", "postgres", "--", *cmd]
-    import shlex
-
-    return ["su", "postgres", "-s", "/bin/sh", "-c", shlex.join(cmd)]
 
 
 @pytest.fixture(scope="session")

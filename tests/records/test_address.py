@@ -4,7 +4,6 @@ PostgreSQL server on loopback."""
 
 from __future__ import annotations
 
-import glob
 import os
 import random
 import shutil
@@ -15,6 +14,7 @@ import uuid
 from pathlib import Path
 
 import pytest
+from pg_cluster import _as_server_user, _pg_bin
 
 from ringgauge.records.address import AddressError, display, parse_address
 
@@ -128,20 +128,6 @@ def test_gui_db_option_checked_up_front(capsys, monkeypatch):
 
 
 # -------------------------------------------------------------------------- a password-protected server
-
-
-def _pg_bin() -> str | None:
-    found = sorted(glob.glob("/usr/lib/postgresql/*/bin/initdb"))
-    if found:
-        return os.path.dirname(found[-1])
-    w = shutil.which("initdb")
-    return os.path.dirname(w) if w else None
-
-
-def _as_server_user(cmd: list[str]) -> list[str]:
-    if os.geteuid() != 0:
-        return cmd
-    return ["runuser", "-u", "postgres", "--", *cmd]
 
 
 @pytest.fixture(scope="module")
