@@ -584,4 +584,11 @@ def attach(window) -> LivePage:
     window.installEventFilter(page._close_filter)
     window.live = page
     window.tabs.addTab(page, "Live")
+    training = getattr(window, "training", None)
+    if training is not None and hasattr(training, "playSequence"):
+        def play_from_training():
+            window.tabs.setCurrentWidget(page)
+            page.new_practice()
+
+        training.playSequence.connect(play_from_training)
     return page

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import html
 
-from PySide6.QtCore import Qt, QTimer
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QButtonGroup,
@@ -35,6 +35,9 @@ from .training import LEVELS, SIGNS, Exercise, Reading, Score, TraineeLog, make_
 
 
 class TrainingPage(QWidget):
+    #: asks the window to play a generated bench sequence (a part settling and pressed) on the Live page
+    playSequence = Signal()
+
     def __init__(self, prefs=None, parent=None, *, log: TraineeLog | None = None):
         super().__init__(parent)
         self.prefs = prefs
@@ -71,6 +74,11 @@ class TrainingPage(QWidget):
         row.addWidget(QLabel("Level"))
         row.addWidget(self.level, 0)
         row.addStretch(1)
+        self.b_sequence = QPushButton("Bench sequence…")
+        self.b_sequence.setToolTip("Play a generated sequence — a part settling and pressed, the contact hidden — "
+                                   "on the Live page, and read the sign from the moving rings yourself")
+        self.b_sequence.clicked.connect(self.playSequence.emit)
+        row.addWidget(self.b_sequence)
         left.addLayout(row)
         self.brief = QLabel("Press “New exercise” to get a practice interferogram.")
         self.brief.setWordWrap(True)

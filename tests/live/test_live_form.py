@@ -194,3 +194,29 @@ def test_live_page_shows_the_form_and_capture_gives_a_form_result(plates, qtbot,
         assert abs(abs(form["power_fringes"]) - want) <= form["k"] * form["power_u_fringes"], form["power_fringes"]
     finally:
         page.stop()
+
+
+def test_training_page_plays_a_generated_sequence_on_the_live_page(qtbot, tmp_path):
+    pytest.importorskip("PySide6")
+    from ringgauge.gui.model import BenchSession, SetupState
+    from ringgauge.gui.prefs import Prefs
+    from ringgauge.gui.window import MainWindow
+
+    # the practice sequences are drawn with 12 µm pixels under the mercury e-line
+    s = BenchSession(None, SetupState(source="mercury-e", pixel_size_um=12.0, pixel_size_u_um=0.0))
+    w = MainWindow(s, prefs=Prefs(str(tmp_path / "training-seq.ini")))
+    qtbot.addWidget(w)
+    w.show()
+    w.tabs.setCurrentWidget(w.training)
+    try:
+        w.training.b_sequence.click()
+        assert w.tabs.currentWidget() is w.live
+        qtbot.waitUntil(lambda: w.live.session is not None and w.live.session.ended, timeout=180000)
+        w.live.refresh()
+        assert w.live.practice is not None and w.live.session.analysed > 20
+        # the contact stays hidden until the trainee answers; then the machine's reading is the truth's
+        assert w.live.sign_label.text().startswith("hidden")
+        text = w.live.answer_practice(w.live.practice["truth"])
+        assert text.startswith("Right.") and w.live.session.sign.sign == w.live.practice["truth"]
+    finally:
+        w.live.stop()
