@@ -130,14 +130,23 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     light, region = _coarse_region(img)
     from skimage.morphology import convex_hull_image
 
-    hull = convex_hull_image(region)
-    edge = hull & ~ndimage.binary_erosion(hull)
+    # the hull is found on the part's bounding box (with a margin) only: the same pixels, a fraction of the work
+    rows, cols = np.nonzero(region.any(axis=1))[0], np.nonzero(region.any(axis=0))[0]
+    if rows.size == 0:
+        raise AnalysisError(_NO_EDGE + " (no part outline against the plate)" + _TRY)
+    y0, y1 = max(0, rows[0] - 2), min(H, rows[-1] + 3)
+    x0, x1 = max(0, cols[0] - 2), min(W, cols[-1] + 3)
+    hull = convex_hull_image(region[y0:y1, x0:x1])
+    edge = np.zeros((H, W), dtype=bool)
+    edge[y0:y1, x0:x1] = hull & ~ndimage.binary_erosion(hull)
     ys, xs = np.nonzero(edge)
     if xs.size < 12:
         raise AnalysisError(_NO_EDGE + " (no part outline against the plate)" + _TRY)
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
     n_rays = 0
-    norm = img / np.maximum(light, 1e-6 * max(float(light.max()), 1e-12))
+    light_floor = 1e-6 * max(float(light.max()), 1e-12)
+    norm = np.divide(img, np.maximum(light, light_floor, out=light), out=light)  # in place: no extra frame
+    del light
     tab = _rim_tables(norm, circle, aspect, window=0.25)
     if tab is not None:
         circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect)
@@ -243,12 +252,22 @@ def _coarse_region(img: np.ndarray):
         region = reg
         if new_plate.sum() >= 3 * A.shape[-1] * 4:
             plate = new_plate
-    # full-size light model and part mask
-    yyf, xxf = np.mgrid[0:H, 0:W]
-    Xf = ((xxf + 0.5) / step - 0.5 - w2 / 2) / max(w2, h2)
-    Yf = ((yyf + 0.5) / step - 0.5 - h2 / 2) / max(w2, h2)
-    light = np.exp(_poly_terms(Xf, Yf) @ kept)
-    ys, xs = np.nonzero(region)
+    # full-size light model and part mask. The cubic is evaluated separably (for each power of y, a polynomial in
+    # x along one row, then one outer product per power of y): four full-size passes instead of a stack of ten
+    # full-size terms
+    xf = ((np.arange(W) + 0.5) / step - 0.5 - w2 / 2) / max(w2, h2)
+    yf = ((np.arange(H) + 0.5) / step - 0.5 - h2 / 2) / max(w2, h2)
+    by_y = {}
+    col = 0
+    for d in range(0, 4):
+        for k in range(d + 1):  # term X**(d-k) * Y**k, in the order of _poly_terms
+            by_y.setdefault(k, np.zeros(W))
+            by_y[k] = by_y[k] + kept[col] * xf ** (d - k)
+            col += 1
+    light = np.multiply.outer(yf ** 0, by_y[0])
+    for k in range(1, 4):
+        light += np.multiply.outer(yf**k, by_y[k])
+    np.exp(light, out=light)
     mask = np.zeros((H, W), dtype=bool)
     full = np.kron(region, np.ones((step, step), dtype=bool))
     mask[: full.shape[0], : full.shape[1]] = full
@@ -327,10 +346,10 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
     L, g = int(round(8.0 / ds)), int(round(1.0 / ds))
     xk = np.arange(-(g + L - 1), -g + 1, dtype=float)  # positions of the window relative to the point
     wk = 1.0 / L + (0 - xk.mean()) * (xk - xk.mean()) / np.sum((xk - xk.mean()) ** 2)
-    pred = np.full_like(prof, np.nan)
+    pred = np.zeros_like(prof)
     for kk, w in zip(xk.astype(int), wk):
-        pred[:, -kk:] = np.nan_to_num(pred[:, -kk:]) + w * prof[:, : prof.shape[1] + kk]
-    pred[:, : g + L - 1] = np.nan
+        pred[:, -kk:] += w * prof[:, : prof.shape[1] + kk]
+    pred[:, : g + L - 1] = np.nan  # no full window of plate outside these
     smooth = ndimage.uniform_filter1d(prof, size=5, axis=1)  # 1.25 px
     dev = np.abs(smooth - pred) > np.maximum(5 * sig_i, 0.04)[:, None]
     dev &= np.isfinite(pred)
@@ -355,10 +374,13 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
     e_grid = np.arange(t.min() + 0.5, t.max() - 0.25 + 1e-9, 0.05)
     ysq = np.sum(Y * Y, axis=1)
     tables = {}
+    K, M = e_grid.size, t.size
     for sig in sigmas:
-        B = np.stack([np.stack(_edge_basis(t, e, sig), axis=1) for e in e_grid])  # (K, M, 5)
+        # the model's columns for every trial position at once, (K, M, 5), and their orthonormal bases
+        B = np.stack(_edge_basis(t[None, :], e_grid[:, None], sig), axis=-1)
         Q, _ = np.linalg.qr(B)
-        proj = np.einsum("nm,kmj->nkj", Y, Q)
+        # all rays against all trial positions in one matrix product: (N, M) @ (M, K * 5)
+        proj = (Y @ Q.transpose(1, 0, 2).reshape(M, K * 5)).reshape(-1, K, 5)
         tables[float(sig)] = np.maximum(ysq[:, None] - np.sum(proj * proj, axis=2), 0.0)
     return {"theta": th[idx], "base": r + ss[j[idx]], "e_grid": e_grid, "tables": tables,
             "noise_var": sig_n**2, "oversampling": 1.0 / ds, "m": Y.shape[1], "centre": (cx, cy)}
@@ -385,14 +407,14 @@ def _rim_circle(tab, circle, aspect):
         mins = T.min(axis=1)
         ex = T - mins[:, None]
 
-        def cost(p, ex=ex):
+        def cost(p, ex=ex.ravel(), row=np.arange(ex.shape[0]) * eg.size):
             e = crossing(p) - base
             pos = (e - eg[0]) / (eg[1] - eg[0])
             inside = (pos >= 0) & (pos <= eg.size - 1)
-            i0 = np.clip(np.floor(pos).astype(int), 0, eg.size - 2)
-            f = np.clip(pos - i0, 0, 1)
-            n = np.arange(ex.shape[0])
-            v = (1 - f) * ex[n, i0] + f * ex[n, i0 + 1]
+            i0 = np.minimum(np.maximum(np.floor(pos), 0), eg.size - 2).astype(np.intp)
+            f = np.minimum(np.maximum(pos - i0, 0), 1)
+            at = row + i0  # flat index of each ray's lower neighbour in the table
+            v = (1 - f) * ex[at] + f * ex[at + 1]
             v = np.where(inside, v, cap)
             return float(np.sum(v / (1 + v / cap)))
 
