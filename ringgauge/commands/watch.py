@@ -122,7 +122,8 @@ def run(args: argparse.Namespace) -> int:
 
 def _line(st) -> str:
     if not st.ok:
-        return f"frame {st.frame:6d}  no rings tracked: {st.message}"
+        what = "no test-plate fringes followed" if hasattr(st, "power_fringes") else "no rings tracked"
+        return f"frame {st.frame:6d}  {what}: {st.message}"
     if getattr(st, "power_fringes", None) is not None:
         settled = "SETTLED" if st.settled else "moving "
         motion = "" if st.motion_fringes is None else f"{st.motion_fringes:5.2f} fr"

@@ -368,7 +368,7 @@ class LivePage(QWidget):
         lat = f"{st.latency_ms:.0f} ms" if st.latency_ms is not None else "—"
         self.rate.setText(f"frame {st.frame} · {fps} analysed frames/s · latency {lat} · {st.dropped} dropped")
         if not st.ok:
-            self.settle_label.setText("NO RINGS TRACKED")
+            self.settle_label.setText("NO FRINGES FOLLOWED" if hasattr(st, "power_fringes") else "NO RINGS TRACKED")
             self.settle_label.setStyleSheet(_IDLE_STYLE)
             self.radius_label.setText("power —" if hasattr(st, "power_fringes") else "R = —")
             self.rings_label.setText("—")

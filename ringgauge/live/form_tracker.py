@@ -185,7 +185,10 @@ class FormTracker:
                 self._initialise(codes, full_scale)
             except (RinggaugeError, np.linalg.LinAlgError, ValueError) as exc:
                 self.reset()
-                return FormPoint(False, message=str(exc).splitlines()[0] if str(exc) else "no test-plate fringes")
+                msg = (str(exc).splitlines() or ["no test-plate fringes"])[0]
+                if msg.startswith("(in memory): "):  # the frame has no file name to give
+                    msg = msg[len("(in memory): "):]
+                return FormPoint(False, message=msg)
             reinit = True
         try:
             g = fit_gap(self._small(codes, full_scale), self.centre, self.radius, aspect=self.aspect,
