@@ -482,6 +482,11 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     sign = UNKNOWN
     if setup.press_test:
         sign = sign_from_press(setup.press_test)
+    motion = (setup.extras or {}).get("motion_sign")
+    if sign.sign == 0 and isinstance(motion, dict) and motion.get("sign") in (1, -1):
+        # the live view read the rings' motion while the gap changed before this frame was captured
+        sign = SignResult(int(motion["sign"]), None, "live motion",
+                          f"rings' motion in the live view before the capture: {motion.get('detail') or ''}".strip())
     if pm is not None:
         steps = tuple(pm.steps_fringes[1:])
         if pm.orientation and map_sign:

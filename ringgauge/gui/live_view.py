@@ -575,7 +575,9 @@ def attach(window) -> LivePage:
             return
         frames[0] = replace(frames[0], notes=tuple(frames[0].notes) + (evidence_note(ev),))
         window.tabs.setCurrentWidget(window.bench)
-        window.session.set_frames(frames)
+        sign = {"+": 1, "-": -1}.get(str(ev.get("power_sign")))
+        evidence = {"sign": sign, "detail": ev.get("detail", ""), "source": ev.get("source")} if sign else None
+        window.session.set_frames(frames, sign_evidence=evidence)
         window.set_status(f"live capture {os.path.basename(paths[-1])} analysed; sign from the motion: "
                           f"{ev.get('power_sign')}")
 

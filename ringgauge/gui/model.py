@@ -309,6 +309,8 @@ class BenchSession:
         self._analyse = analyse
         self.setup = setup or SetupState()
         self.frames: tuple[Frame, ...] = ()
+        #: what the live view saw before a capture (the sign from the rings' motion); belongs to these frames
+        self.sign_evidence: dict | None = None
         self.overrides = Overrides()
         self.result = None
         self.error: str | None = None
@@ -385,8 +387,11 @@ class BenchSession:
                              + ", ".join(f"{f.name} {f.shape[1]}x{f.shape[0]}" for f in frames))
         self.set_frames(frames)
 
-    def set_frames(self, frames: Sequence[Frame]) -> None:
+    def set_frames(self, frames: Sequence[Frame], *, sign_evidence: dict | None = None) -> None:
+        """Show new frames. ``sign_evidence`` ({"sign": +1 or -1, "detail": ...}) is the live view's reading of
+        the rings' motion before a capture; it travels with these frames only."""
         self.frames = tuple(frames)
+        self.sign_evidence = dict(sign_evidence) if sign_evidence else None
         if self.setup.serial:  # a serial belongs to one part: the next image gets its own (default: its name)
             self.setup = replace(self.setup, serial="")
         self.result = None
@@ -462,6 +467,8 @@ class BenchSession:
         if not self.frames:
             raise InputError("no image open; open an interferogram first (File > Open, or drop a file)")
         setup = self.setup.to_bench_setup(overrides=self.overrides)
+        if self.sign_evidence:
+            setup = replace(setup, extras={**setup.extras, "motion_sign": self.sign_evidence})
         job = Job(self.generation, self.frames, setup, self.overrides, self.analyse_fn)
         if self._job is not None and self._job.generation != job.generation:
             self._job.cancelled = True
@@ -513,6 +520,7 @@ class BenchSession:
         result and hand settings — and ``error`` says why (a watched camera folder must never leave the last
         part's verdict beside a file that failed)."""
         self.frames = ()
+        self.sign_evidence = None
         self.result = None
         self.stale = False
         self.overrides = Overrides()

@@ -190,8 +190,10 @@ def test_live_page_shows_the_form_and_capture_gives_a_form_result(plates, qtbot,
         d = w.session.result.to_dict()
         form = d.get("form") or d
         want = p["truth"]["power_fringes"] * _scale(p["truth"])
-        # the capture is a normal one-frame form analysis: its power magnitude within its U of the truth
-        assert abs(abs(form["power_fringes"]) - want) <= form["k"] * form["power_u_fringes"], form["power_fringes"]
+        # the capture is a normal one-frame form analysis: its power within its U of the truth, and with the sign
+        # the live view read from the rings' motion (one frame alone cannot give it)
+        assert form["power_sign"] == "+" and form["sign"]["method"] == "live motion", form.get("sign")
+        assert abs(form["power_fringes"] - want) <= form["k"] * form["power_u_fringes"], form["power_fringes"]
     finally:
         page.stop()
 
