@@ -128,18 +128,7 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     if min(H, W) < 24:
         raise AnalysisError(_NO_EDGE + f" (the image, {W} x {H} px, is too small)" + _TRY)
     light, region = _coarse_region(img)
-    from skimage.morphology import convex_hull_image
-
-    # the hull is found on the part's bounding box (with a margin) only: the same pixels, a fraction of the work
-    rows, cols = np.nonzero(region.any(axis=1))[0], np.nonzero(region.any(axis=0))[0]
-    if rows.size == 0:
-        raise AnalysisError(_NO_EDGE + " (no part outline against the plate)" + _TRY)
-    y0, y1 = max(0, rows[0] - 2), min(H, rows[-1] + 3)
-    x0, x1 = max(0, cols[0] - 2), min(W, cols[-1] + 3)
-    hull = convex_hull_image(region[y0:y1, x0:x1])
-    edge = np.zeros((H, W), dtype=bool)
-    edge[y0:y1, x0:x1] = hull & ~ndimage.binary_erosion(hull)
-    ys, xs = np.nonzero(edge)
+    ys, xs = _hull_outline(region)
     if xs.size < 12:
         raise AnalysisError(_NO_EDGE + " (no part outline against the plate)" + _TRY)
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
@@ -149,7 +138,9 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     del light
     tab = _rim_tables(norm, circle, aspect, window=0.25)
     if tab is not None:
-        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect)
+        # this pass only centres the rays and picks the blur for the close look below: a fiftieth of a pixel
+        # is close enough (the close look fits the rim afresh about that centre)
+        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect, xtol=0.02)
         # close look: the part's side of the model is a local quadratic, so it may reach only a fraction of the
         # fringe spacing into the part; the longest stretch the quadratic still explains to the noise is kept
         got = []
@@ -179,6 +170,56 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     if rms > max(2.0, 0.02 * r):
         notes.append(f"the part's edge is not round (outline scatter {rms:.1f} px); chips or a bevel may be present")
     return Aperture((float(cx), float(cy)), float(r), (float(ucx), float(ucy)), float(ur), float(rms), tuple(notes))
+
+
+def _hull_outline(region: np.ndarray):
+    """Row and column indices of the outline of the part's convex hull: the hull's pixels (centres inside or on
+    the hull of the pixels' edge midpoints) that have a 4-neighbour outside it.
+
+    The hull is convex, so each row holds one run of hull pixels; its ends come from the hull's half-planes
+    directly, row by row, instead of testing every pixel of the frame against the polygon."""
+    from scipy.spatial import ConvexHull, QhullError
+
+    H, W = region.shape
+    rows = np.nonzero(region.any(axis=1))[0]
+    if rows.size == 0:
+        return np.zeros(0, dtype=np.intp), np.zeros(0, dtype=np.intp)
+    # candidates: the first and last pixel of every row and column (the hull's corners are among them)
+    cols = np.nonzero(region.any(axis=0))[0]
+    first_c = np.argmax(region[rows], axis=1)
+    last_c = W - 1 - np.argmax(region[rows, ::-1], axis=1)
+    first_r = np.argmax(region[:, cols], axis=0)
+    last_r = H - 1 - np.argmax(region[::-1, cols], axis=0)
+    pts = np.concatenate([np.stack([rows, first_c], 1), np.stack([rows, last_c], 1),
+                          np.stack([first_r, cols], 1), np.stack([last_r, cols], 1)]).astype(float)
+    offs = np.array([[-0.5, 0], [0.5, 0], [0, -0.5], [0, 0.5]])  # midpoints of each pixel's edges
+    pts = np.unique((pts[:, None, :] + offs).reshape(-1, 2), axis=0)
+    try:
+        eq = ConvexHull(pts).equations  # n_r * r + n_c * c + d <= 0 inside
+    except (QhullError, ValueError):
+        return np.zeros(0, dtype=np.intp), np.zeros(0, dtype=np.intp)
+    y0, y1 = max(0, rows[0] - 1), min(H, rows[-1] + 2)
+    r = np.arange(y0, y1, dtype=float)
+    tol = 1e-9
+    lim = -(eq[None, :, 0] * r[:, None] + eq[None, :, 2]) + tol  # n_c * c <= lim
+    nc = eq[:, 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        b = lim / nc[None, :]
+    hi = np.min(np.where(nc > tol, b, np.inf), axis=1)
+    lo = np.max(np.where(nc < -tol, b, -np.inf), axis=1)
+    flat = np.abs(nc) <= tol  # edges along a row: the row is in only if it is on their inner side
+    row_ok = np.all(~flat[None, :] | (lim >= 0), axis=1)
+    lo = np.maximum(np.ceil(lo), 0)
+    hi = np.minimum(np.floor(hi), W - 1)
+    row_ok &= lo <= hi
+    hull = np.zeros((y1 - y0 + 2, W + 2), dtype=bool)  # one pixel of margin all round
+    cc = np.arange(W)
+    inside = row_ok[:, None] & (cc[None, :] >= lo[:, None]) & (cc[None, :] <= hi[:, None])
+    hull[1:-1, 1:-1] = inside
+    # a hull pixel is on the outline when a 4-neighbour is outside it (or outside the frame)
+    core = hull[1:-1, 1:-1] & hull[:-2, 1:-1] & hull[2:, 1:-1] & hull[1:-1, :-2] & hull[1:-1, 2:]
+    ey, ex = np.nonzero(inside & ~core)
+    return ey + y0, ex
 
 
 def _poly_terms(X, Y, order=3):
@@ -217,7 +258,8 @@ def _coarse_region(img: np.ndarray):
         for _ in range(3):  # robust: drop the plate pixels the model does not explain (dust, a part's corner)
             if m.sum() < 3 * A.shape[-1]:
                 break
-            coef, *_ = np.linalg.lstsq(A[m], sm[m], rcond=None)
+            Am = A[m]  # normal equations: ten columns of low-order terms on centred, scaled coordinates are
+            coef = np.linalg.solve(Am.T @ Am, Am.T @ sm[m])  # well conditioned, and far quicker than an SVD
             res = sm - A @ coef
             s = 1.4826 * np.median(np.abs(res[m] - np.median(res[m]))) + 1e-9
             m = plate & (np.abs(res) < 4 * s)
@@ -379,14 +421,15 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
         # the model's columns for every trial position at once, (K, M, 5), and their orthonormal bases
         B = np.stack(_edge_basis(t[None, :], e_grid[:, None], sig), axis=-1)
         Q, _ = np.linalg.qr(B)
-        # all rays against all trial positions in one matrix product: (N, M) @ (M, K * 5)
-        proj = (Y @ Q.transpose(1, 0, 2).reshape(M, K * 5)).reshape(-1, K, 5)
-        tables[float(sig)] = np.maximum(ysq[:, None] - np.sum(proj * proj, axis=2), 0.0)
+        # all rays against all trial positions in one matrix product: (N, M) @ (M, 5 * K)
+        proj = Y @ Q.transpose(1, 2, 0).reshape(M, 5 * K)
+        np.square(proj, out=proj)
+        tables[float(sig)] = np.maximum(ysq[:, None] - proj.reshape(-1, 5, K).sum(axis=1), 0.0)
     return {"theta": th[idx], "base": r + ss[j[idx]], "e_grid": e_grid, "tables": tables,
             "noise_var": sig_n**2, "oversampling": 1.0 / ds, "m": Y.shape[1], "centre": (cx, cy)}
 
 
-def _rim_circle(tab, circle, aspect):
+def _rim_circle(tab, circle, aspect, xtol=1e-3):
     """The circle that best explains every ray's profile at once: minimises the sum over rays of each ray's
     excess misfit at the circle's crossing (capped, so dust or a chip on a few rays cannot pull it). Returns
     (cx, cy, r, u_cx, u_cy, u_r, rms of the per-ray best positions about it, blur) and the rays used."""
@@ -423,7 +466,7 @@ def _rim_circle(tab, circle, aspect):
         x0 = np.array([0.0, 0.0, float(np.median(e_best))])
         simplex = np.array([x0, x0 + [0.7, 0, 0], x0 + [0, 0.7, 0], x0 + [0, 0, 0.7]])
         res = optimize.minimize(cost, x0, method="Nelder-Mead",
-                                options={"xatol": 1e-3, "fatol": 1e-3 * var, "maxiter": 3000,
+                                options={"xatol": xtol, "fatol": xtol * var, "maxiter": 3000,
                                          "initial_simplex": simplex})
         tot = res.fun + float(np.sum(np.minimum(T.min(axis=1), 1e9)))
         if best is None or tot < best[0]:
