@@ -8,6 +8,7 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable, Sequence
+from dataclasses import replace
 
 import cv2
 import numpy as np
@@ -333,6 +334,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         "sectors": None if sectors is None else sectors.to_dict(),
     }
     progress(1.0, "done")
+    fit = replace(fit, fringe_wavelength_nm=lam_nm)
     return AnalysisResult(
         image=image_info(frame), setup=setup, centre_px=(float(centre[0]), float(centre[1])),
         centre_u_px=(float(cu[0]), float(cu[1])), radius_mm=float(R), radius_u_mm=float(budget.u_c),

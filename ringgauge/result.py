@@ -80,9 +80,12 @@ class RingFit:
     method: str
     success: bool = True
     message: str = ""
+    #: the wavelength the fringes follow (a source of several lines or a band: its mean wavenumber's reciprocal)
+    fringe_wavelength_nm: float | None = None
 
     def to_dict(self) -> dict:
         return {
+            "fringe_wavelength_nm": _f(self.fringe_wavelength_nm),
             "slope_mm2_per_fringe": _f(self.slope_mm2),
             "slope_u_mm2_per_fringe": _f(self.slope_u_mm2),
             "intercept_mm2": _f(self.intercept_mm2),

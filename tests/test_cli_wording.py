@@ -229,3 +229,23 @@ def test_help_examples_keep_each_option_whole_on_a_narrow_terminal(capsys, monke
     # each continued line starts with an option (kept with its value) and the one before ends in a continuation
     for before, line in zip(example, example[1:]):
         assert before.endswith(" \\") and line.lstrip().startswith("--"), (before, line)
+
+
+def test_sodium_report_names_the_wavelength_the_fringes_follow(capsys):
+    """A doublet lamp's fringes follow the reciprocal of its intensity-weighted mean wavenumber, not the plain line
+    mean the source table names; the report says which λ entered R, and it is the one in the JSON and the budget.
+    (D2 588.9950 nm, D1 589.5924 nm, NIST Atomic Spectra Database; D2 about twice as bright as D1 — common
+    practice, no source.)"""
+    import json
+
+    img = str(SAMPLES / "lot-FH2604" / "FH2604-02.png")
+    opts = ("--source", "sodium-d", "--pixel-size", "8", "--pixel-size-u", "0.004")
+    code, out, _ = run(capsys, "analyze", img, *opts, "--json")
+    assert code == 0
+    d = json.loads(out)
+    lam_f = d["fringes"]["fringe_wavelength_nm"]
+    assert lam_f == pytest.approx(3.0 / (2.0 / 588.9950 + 1.0 / 589.5924), abs=1e-6)
+    assert [r["estimate"] for r in d["budget"]["rows"] if r["quantity"] == "wavelength"] == [pytest.approx(lam_f)]
+    code, out, _ = run(capsys, "analyze", img, *opts)
+    assert code == 0
+    assert f"the fringes follow λ = {lam_f:.4f} nm" in out and "λ = 589.2937 nm" in out

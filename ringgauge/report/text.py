@@ -76,6 +76,10 @@ def format_result(d: dict) -> str:
         f"  source {st['source']['name']}: λ = {st['wavelength_nm']:.4f} nm (U {k_hdr * st['wavelength_u_nm']:.2g} nm); "
         f"pixel scale {scale}{bench}; gap medium n = {st['medium_index']:g}"
     )
+    lam_f = (d.get("fringes") or {}).get("fringe_wavelength_nm")
+    if lam_f is not None and abs(lam_f - st["wavelength_nm"]) > 5e-4:
+        out.append(f"  the fringes follow λ = {lam_f:.4f} nm, the reciprocal of the lamp's intensity-weighted mean "
+                   "wavenumber (used for R)")
     out.append(f"  (± and U here are expanded uncertainties, k = {k_hdr:g}; u is a standard uncertainty, k = 1)")
     if d.get("radius_mm") is not None:
         fr = d["fringes"]
