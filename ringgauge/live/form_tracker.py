@@ -282,14 +282,8 @@ class FormLiveSession(LiveSession):
         self.form_settle = FormSettle(self.options.settle_frames, self.options.settle_fringes)
 
     def analyse(self, f) -> FormLiveState:
-        import time
-
         pt = self.tracker.update(f.codes, f.full_scale)
-        dropped = self.source.dropped
-        now = time.monotonic()
-        self._times.append(now)
-        fps = (len(self._times) - 1) / (self._times[-1] - self._times[0]) if len(self._times) > 2 else None
-        latency = 1e3 * (now - f.t_arrived)
+        dropped, latency, fps = self._pace(f)
         if not pt.ok:
             self.form_settle.reset()
             self._phases.clear()

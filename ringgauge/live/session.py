@@ -113,13 +113,16 @@ class LiveSession:
         self._stop = threading.Event()
 
     # -- one frame -------------------------------------------------------------------------------------------
-    def analyse(self, f: SourceFrame) -> LiveState:
-        pt = self.tracker.update(f.codes, f.full_scale)
-        dropped = self.source.dropped
+    def _pace(self, f: SourceFrame) -> tuple[int, float, float | None]:
+        """Frames dropped so far, this frame's latency (ms) and the analysed frames per second, as of now."""
         now = time.monotonic()
         self._times.append(now)
         fps = (len(self._times) - 1) / (self._times[-1] - self._times[0]) if len(self._times) > 2 else None
-        latency = 1e3 * (now - f.t_arrived)
+        return self.source.dropped, 1e3 * (now - f.t_arrived), fps
+
+    def analyse(self, f: SourceFrame) -> LiveState:
+        pt = self.tracker.update(f.codes, f.full_scale)
+        dropped, latency, fps = self._pace(f)
         if not pt.ok:
             self.settle.reset()
             self._phases.clear()
