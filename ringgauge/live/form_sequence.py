@@ -12,7 +12,6 @@ gap stays open over the whole aperture (the part bears outside the field).
 
 from __future__ import annotations
 
-import json
 import os
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
@@ -22,7 +21,7 @@ import numpy as np
 from .. import synth
 from ..errors import InputError
 from ..sources import get_source
-from .sequence import CONTACTS, SequencePlan
+from .sequence import CONTACTS, SequencePlan, write_frames
 
 
 @dataclass(frozen=True)
@@ -111,41 +110,13 @@ def write_form_sequence(out: str | os.PathLike, plan: FormPlan, *, source="mercu
                         noise: bool = True, rng: int = 0, progress=None) -> tuple[Path, Path]:
     """Write the sequence as an MJPG ``.avi`` (``out`` ends in .avi) or numbered PNG frames in the folder ``out``;
     the truth goes to ``<out>.truth.json`` or ``truth.json`` in the folder. Returns (frames, truth) paths."""
-    import cv2
-
     _check(plan)
     out = Path(out)
     if camera.bits != 8:
         raise InputError("sequences are written with 8-bit frames")
     truth = form_sequence_truth(plan, source=source, camera=camera, medium_index=medium_index)
-    if out.suffix.lower() == ".avi":
-        if not out.parent.is_dir():
-            raise InputError(f"folder {out.parent} does not exist")
-        writer = cv2.VideoWriter(str(out), cv2.VideoWriter_fourcc(*"MJPG"), float(plan.base.fps),
-                                 (camera.width, camera.height), True)
-        if not writer.isOpened():
-            raise InputError(f"cannot write the video {out} (this OpenCV has no MJPG writer?)")
-        truth_path = out.with_suffix(".truth.json")
-    else:
-        if out.suffix:
-            raise InputError(f"{out}: give a video file ending in .avi, or a folder name for numbered frames")
-        if out.exists() and any(out.iterdir()):
-            raise InputError(f"{out} exists and is not empty; choose a new folder for the frames")
-        out.mkdir(parents=True, exist_ok=True)
-        writer = None
-        truth_path = out / "truth.json"
-    try:
-        for i, codes, _p in render_form_sequence(plan, source=source, camera=camera, lighting=lighting,
-                                                 medium_index=medium_index, noise=noise, rng=rng):
-            if writer is not None:
-                writer.write(cv2.cvtColor(codes, cv2.COLOR_GRAY2BGR))
-            else:
-                cv2.imwrite(str(out / f"frame_{i:05d}.png"), codes)
-            if progress:
-                progress((i + 1) / plan.n_frames, f"frame {i + 1} of {plan.n_frames}")
-    finally:
-        if writer is not None:
-            writer.release()
-    truth["file"] = out.name
-    truth_path.write_text(json.dumps(truth, indent=2))
-    return out, truth_path
+    frames = ((i, codes) for i, codes, _p in render_form_sequence(plan, source=source, camera=camera,
+                                                                  lighting=lighting, medium_index=medium_index,
+                                                                  noise=noise, rng=rng))
+    return write_frames(out, frames, truth, n_frames=plan.n_frames, fps=plan.base.fps,
+                        size=(camera.width, camera.height), progress=progress)

@@ -35,7 +35,7 @@ from ..form.evaluate import evaluate_form, form_terms_batch
 from ..form.fit import fit_gap, gap_basis
 from ..imaging import frame_from_array
 from ..pipeline import wants_form
-from .motion import SETTLE_FRAMES, SETTLE_FRINGES, MotionSign, rings_direction
+from .motion import SETTLE_FRAMES, SETTLE_FRINGES, rings_direction
 from .session import LiveOptions, LiveSession, LiveState
 
 TWO_PI = 2 * math.pi

@@ -162,18 +162,29 @@ def write_sequence(
 
     Returns (where the frames went, where the truth went).
     """
+    out = Path(out)
+    if camera.bits != 8:
+        raise InputError("sequences are written with 8-bit frames")
+    truth = sequence_truth(plan, source=source, camera=camera, medium_index=medium_index)
+    frames = ((i, codes) for i, codes, _t0 in render_sequence(plan, source=source, camera=camera, lighting=lighting,
+                                                              medium_index=medium_index, noise=noise, rng=rng))
+    return write_frames(out, frames, truth, n_frames=plan.n_frames, fps=plan.fps, size=(camera.width, camera.height),
+                        progress=progress)
+
+
+def write_frames(out: Path, frames, truth: dict, *, n_frames: int, fps: float, size: tuple[int, int],
+                 progress=None) -> tuple[Path, Path]:
+    """Write 8-bit grey ``frames`` ((index, codes) pairs) as an MJPG ``.avi`` (``out`` ends in .avi) or as numbered
+    PNG frames in the new folder ``out``, and ``truth`` beside them (``<out>.truth.json``, or ``truth.json`` in the
+    folder). Returns (where the frames went, where the truth went)."""
     import json
 
     import cv2
 
-    out = Path(out)
-    truth = sequence_truth(plan, source=source, camera=camera, medium_index=medium_index)
-    as_video = out.suffix.lower() == ".avi"
-    if as_video:
+    if out.suffix.lower() == ".avi":
         if not out.parent.is_dir():
             raise InputError(f"folder {out.parent} does not exist")
-        writer = cv2.VideoWriter(str(out), cv2.VideoWriter_fourcc(*"MJPG"), float(plan.fps),
-                                 (camera.width, camera.height), True)
+        writer = cv2.VideoWriter(str(out), cv2.VideoWriter_fourcc(*"MJPG"), float(fps), size, True)
         if not writer.isOpened():
             raise InputError(f"cannot write the video {out} (this OpenCV has no MJPG writer?)")
         truth_path = out.with_suffix(".truth.json")
@@ -186,16 +197,13 @@ def write_sequence(
         writer = None
         truth_path = out / "truth.json"
     try:
-        for i, codes, _t0 in render_sequence(plan, source=source, camera=camera, lighting=lighting,
-                                             medium_index=medium_index, noise=noise, rng=rng):
-            if camera.bits != 8:
-                raise InputError("sequences are written with 8-bit frames")
+        for i, codes in frames:
             if writer is not None:
                 writer.write(cv2.cvtColor(codes, cv2.COLOR_GRAY2BGR))
             else:
                 cv2.imwrite(str(out / f"frame_{i:05d}.png"), codes)
             if progress:
-                progress((i + 1) / plan.n_frames, f"frame {i + 1} of {plan.n_frames}")
+                progress((i + 1) / n_frames, f"frame {i + 1} of {n_frames}")
     finally:
         if writer is not None:
             writer.release()
