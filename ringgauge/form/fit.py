@@ -900,10 +900,13 @@ def _start_values(img, uc, vr, inside, radius_px):
     ``img`` is a (block-averaged) frame with column / row coordinates ``uc`` / ``vr`` and ``radius_px`` its
     aperture radius in its own pixels."""
     cands = []
-    q, theta = _frequency_quadratic(img, uc, vr, inside, radius_px)
+    q, theta, g2 = _frequency_quadratic(img, uc, vr, inside, radius_px)
     if q is not None:
         quad = _from_quadratic(q)
         cands += quad
+        # |grad W|^2 alone cannot place a saddle's axis (with M's eigenvalues +a and -a, M^2 = a^2 I looks like
+        # a sphere): the squared complex gradient, which carries the fringes' orientation, does
+        cands += _from_complex_quadratic(g2)
         # straight or gently curved fringes (a near-flat, a tilted part): |grad W|^2 is nearly constant and the
         # quadratic gives no tilt direction; the fringes' orientation (structure tensor) does, up to sign
         t = math.sqrt(max(q[0], 0.0))
@@ -938,7 +941,7 @@ def _frequency_quadratic(img, uc, vr, inside, radius_px):
     w_in = _smooth(fin, s_avg)
     core = inside & (u * u + v * v < 0.8**2) & (w_in > 0.9)
     if core.sum() < 100:
-        return None, None
+        return None, None, None
     # dominant direction of the fringes' gradient over the core, in (u, v): the structure tensor
     du = abs(uc[1] - uc[0]) if uc.size > 1 else 1.0
     dv = abs(vr[1] - vr[0]) if vr.size > 1 else 1.0
@@ -949,13 +952,56 @@ def _frequency_quadratic(img, uc, vr, inside, radius_px):
     sel[::step, ::step] = True
     sel &= core & (e_sig > 1e-12)
     if sel.sum() < 50:
-        return None, None
+        return None, None, None
     f2 = e_grad[sel] / e_sig[sel] * (radius_px / (2 * np.pi)) ** 2  # fringes per radius, squared
     uu, vv = u[sel], v[sel]
     X = np.stack([np.ones_like(uu), uu, vv, uu * uu, uu * vv, vv * vv]).T
     w = np.sqrt(e_sig[sel])
     coef, *_ = np.linalg.lstsq(X * w[:, None], f2 * w, rcond=None)
-    return coef, theta
+    # the squared complex gradient (g_u + i g_v)^2 = |g|^2 exp(2 i phi) is blind to the sign of the gradient
+    # (the fringes' sin flips it every half fringe) yet keeps its direction: its local average over the signal
+    # energy is (grad W)^2 in complex form, per radius (same scaling as f2)
+    gxu, gyv = gx / (du * radius_px), gy / (dv * radius_px)
+    g2r = _smooth(gxu * gxu - gyv * gyv, s_avg)[sel] / e_sig[sel] * (radius_px / (2 * np.pi)) ** 2
+    g2i = _smooth(2 * gxu * gyv, s_avg)[sel] / e_sig[sel] * (radius_px / (2 * np.pi)) ** 2
+    cr, *_ = np.linalg.lstsq(X * w[:, None], g2r * w, rcond=None)
+    ci, *_ = np.linalg.lstsq(X * w[:, None], g2i * w, rcond=None)
+    return coef, theta, cr + 1j * ci
+
+
+def _from_complex_quadratic(g):
+    """Start vectors from the squared complex gradient G^2 = g0 + g1 u + g2 v + g3 u^2 + g4 uv + g5 v^2 (complex).
+
+    With W = P (u^2 + v^2) + A1 (u^2 - v^2) + A2 (2uv) + t.x and z = u + i v, the complex gradient is
+    G = W_u + i W_v = 2 P z + 2 A conj(z) + T (A = A1 + i A2, T = t_u + i t_v), so
+    G^2 = 4 P^2 z^2 + 4 A^2 conj(z)^2 + 8 P A |z|^2 + 4 P T z + 4 A T conj(z) + T^2. The coefficients of z^2,
+    conj(z)^2 and |z|^2 follow from those of u^2, uv, v^2; P and A from the first two (each up to sign, the
+    relative sign from the third), T from the linear terms. Both relative signs are returned.
+    """
+    if g is None or not np.all(np.isfinite(g)):
+        return []
+    a_z2 = 0.5 * ((g[3] - g[5]) / 2 + g[4] / 2j)  # coefficient of z^2
+    a_zb2 = 0.5 * ((g[3] - g[5]) / 2 - g[4] / 2j)  # coefficient of conj(z)^2
+    a_r2 = (g[3] + g[5]) / 2  # coefficient of |z|^2
+    P = 0.5 * math.sqrt(max(a_z2.real, 0.0))
+    A = 0.5 * np.sqrt(a_zb2)
+    if abs(A) < 0.05 and P < 0.05:
+        return []
+    cz = 0.5 * (g[1] - 1j * g[2])  # coefficient of z
+    czb = 0.5 * (g[1] + 1j * g[2])  # coefficient of conj(z)
+    out = []
+    signs = (1, -1)
+    if P > 0.05 and abs(A) > 0.05:
+        # the |z|^2 term fixes the relative sign of P and A (8 P A); keep the other as a spare
+        signs = (1, -1) if (a_r2 * np.conj(8 * P * A)).real >= 0 else (-1, 1)
+    for sgn in signs:
+        Aa = sgn * A
+        den = 4 * (P * P + abs(Aa) ** 2)
+        T = (P * cz + np.conj(Aa) * czb) / den if den > 0 else 0j
+        if not np.isfinite(T) or abs(T) > 4 * (P + abs(Aa) + 1):
+            T = 0j
+        out.append(np.array([0.25, T.real, T.imag, P / 2, Aa.real, Aa.imag]))
+    return out
 
 
 def _from_quadratic(q):

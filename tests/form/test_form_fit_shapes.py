@@ -55,19 +55,20 @@ def test_one_frame_shapes(name):
 
 
 @pytest.mark.slow
-def test_half_fringe_with_tilt_under_strong_uneven_light_is_reported_weak():
-    """Half a fringe of power plus a little tilt under strongly uneven light: one frame cannot pin the power
-    (the fitted minimum sits ~0.13 fringe low). The tool must warn that the fit is weak and widen U over the
-    power error. (Its astigmatism is 0.06 fringe off here, just beyond U; left visible, not asserted away:
-    a frame set measures such parts.)"""
+def test_half_fringe_with_tilt_under_strong_uneven_light_is_measured_or_reported_weak():
+    """Half a fringe of power plus a little tilt under strongly uneven light: one frame barely pins the power
+    (started from rings alone the fit stopped in a minimum ~0.13 fringe low; the orientation-based start values
+    now reach the true one). The issue's rule: measure within 0.05 fringe, or warn that the fit is weak -- and
+    in both cases U covers the power and irregularity errors (never a confident wrong answer)."""
     light = synth.Lighting(falloff=0.6, gradient=0.4, gradient_angle_deg=120.0, stray=0.08)
     form = synth.SurfaceForm(power=0.5, astig=0.1, tilt_x=0.3, piston=0.15)
     img = synth.test_plate_fringes(form, camera=CAM, aperture_diameter_mm=AP_MM, lighting=light, rng=51)
     setup = default_setup(60.0, "mercury-e", pixel_size_u_um=0.06,
                           extras={"aperture_px": ((320 - 1) / 2, (320 - 1) / 2, R_PX)})
     r = evaluate_form([frame_from_array(img.image)], setup)
-    assert any("weak fit" in w for w in r.warnings)
     _, _, u, v = _disc_grid(1.0, 201)
     truth = form_terms(form.gap_fringes(u, v), u, v)
+    errs = [abs(r.terms[k] - abs(truth[k])) for k in ("power_fringes", "irregularity_fringes")]
+    assert max(errs) <= 0.05 or any("weak fit" in w for w in r.warnings), (errs, r.warnings)
     for key in ("power_fringes", "irregularity_fringes"):
         assert abs(r.terms[key] - abs(truth[key])) <= 2 * r.terms_u[key], key

@@ -52,8 +52,6 @@ SETS = {
 
 #: cases the engine cannot meet yet, with the reason measured; strict: they must start passing to be removed
 KNOWN = {
-    "saddle: 4 fr astigmatism, no power": "one-frame fit of hyperbolic fringes crossing at the centre finds no "
-    "form at all (astigmatism 0.006 for 4.0 fringes, u 0.79): engine (form/fit.py) start values",
     "0.8 fr, uneven light": "one-frame fit under a strong off-centre fall-off reads 0.063 fringe of irregularity "
     "(truth 0) and power +0.033: the gap model absorbs part of the light's shape (form/fit.py)",
     "10 fr, dark rim": "power 0.054 fringe low (u 0.062): the rim of a 10-fringe part on a dark fringe reads "
