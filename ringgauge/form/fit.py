@@ -256,8 +256,11 @@ class _Problem:
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
         ph, M = self._parts(c, m)
         L = self.PLT @ lin[1:]
+        cs = self.shape(ph)
+        # kept for full_jac: the Jacobian is always asked for at the last accepted residual's parameters
+        self._last = (np.array(p, dtype=float), nw, ph, M, cs, L)
         r = np.empty(self.y.size + 2)
-        r[:-2] = lin[0] + L * (1.0 + M * self.shape(ph)) - self.y
+        r[:-2] = lin[0] + L * (1.0 + M * cs) - self.y
         k = self._penalty_weight()
         lo, hi = self._stray_limits()
         r[-2] = k * max(0.0, abs(m[0]) + math.hypot(m[1], m[2]) - 1.0)
@@ -266,12 +269,17 @@ class _Problem:
 
     def full_jac(self, p, nw):
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
-        ph, M = self._parts(c, m)
-        cs = self.shape(ph)
-        L = self.PLT @ lin[1:]
+        last = getattr(self, "_last", None)
+        if last is not None and last[1] == nw and np.array_equal(last[0], p):
+            ph, M, cs, L = last[2:]
+        else:
+            ph, M = self._parts(c, m)
+            cs = self.shape(ph)
+            L = self.PLT @ lin[1:]
         N = self.y.size
         nL = self.PLT.shape[1]
-        J = np.zeros((N + 2, nw + self.NM + 1 + nL))
+        J = np.empty((N + 2, nw + self.NM + 1 + nL))
+        J[N:] = 0.0
         np.multiply(self.ZT[:, :nw], (2 * np.pi * L * M * self.dshape(ph))[:, None], out=J[:N, :nw])
         np.multiply(self.PMT, (L * cs)[:, None], out=J[:N, nw : nw + 3])
         J[:N, nw + 3] = 1.0
@@ -824,7 +832,12 @@ def _refine(prob: _Problem, p0, nw, max_nfev: int = 100, free=None) -> _LMResult
     r = prob.full_residual(p, nw)
     cost = float(r @ r)
     lam = 1e-3
-    J = prob.full_jac(p, nw)[:, idx]
+
+    def jac(q):
+        J = prob.full_jac(q, nw)
+        return J if free is None else J[:, idx]
+
+    J = jac(p)
     nfev = 1
     success, message = False, "iteration limit reached"
     while nfev < max_nfev:
@@ -856,9 +869,9 @@ def _refine(prob: _Problem, p0, nw, max_nfev: int = 100, free=None) -> _LMResult
         if not improved:
             success, message = True, "no further decrease of the sum of squares"
             break
-        J = prob.full_jac(p, nw)[:, idx]
-        if rel < 1e-10 or np.max(np.abs(step[idx < nw])) < 1e-7:
-            success, message = True, "converged (relative decrease below 1e-10 or step below 1e-7 fringe)"
+        J = jac(p)
+        if rel < 1e-9 or np.max(np.abs(step[idx < nw])) < 1e-6:
+            success, message = True, "converged (relative decrease below 1e-9 or step below 1e-6 fringe)"
             break
     return _LMResult(p, r, J, success, message)
 
