@@ -13,9 +13,9 @@ hr() { printf '\n== %s ==\n' "$1"; }
 hr "Safety at the bench (follow your shop's procedures and local regulations)"
 $RG sources | sed -n '/Safety/,$p' | tail -n +2
 
-hr "1. Calibrate bench 2 from a stage micrometer (100 µm divisions)"
-$RG calibrate "$S/calibration/stage-micrometer-100um.png" --grating-pitch 100 --pitch-u 0.05 \
-    --target-id SM-07 --bench demo-bench-2 --operator "M. Ashdown" --source sodium-d || exit 1
+hr "1. Calibrate bench 2 from a crossed-grid reticle (100 µm pitch: x, y and squareness)"
+$RG calibrate "$S/calibration/grid-reticle-100um.png" --grating-pitch 100 --pitch-u 0.05 \
+    --target-id RG-3 --bench demo-bench-2 --operator "M. Ashdown" --source sodium-d || exit 1
 
 hr "2. Radius of curvature of lens FH2604-01 on the optical flat (full report)"
 $RG analyze "$S/lot-FH2604/FH2604-01.png" --bench demo-bench-2 || exit 1

@@ -121,12 +121,17 @@ def calibration() -> None:
     cam = synth.Camera(width=1024, height=768, pixel_um=PIX_UM, blur_px=0.9)
     g = targets.line_grating(100.0, angle_deg=3.5, camera=cam, damaged_lines=1, rng=300)
     save_png(d / "stage-micrometer-100um.png", g.image01, bits=8)
+    # a crossed-grid reticle measures x, y and the squareness of the pixel axes in one photograph
+    grid = targets.crossed_grid(100.0, angle_deg=2.0, camera=cam, missing_lines=1, rng=302)
+    save_png(d / "grid-reticle-100um.png", grid.image01, bits=8)
     dsc = targets.disc(4.0, camera=cam, rng=301)
     save_png(d / "reference-disc-4mm.png", dsc.image01, bits=8)
     (d / "bench.txt").write_text(
         "Fernhill Optical Workshop (fictional) - bench 2 calibration, camera CAM-B2 with 0.5x telecentric lens.\n"
         "stage-micrometer-100um.png: stage micrometer SM-07, 100 um divisions (certified pitch u 0.05 um),\n"
         "  photographed at the same focus as the parts, turned about 3.5 degrees.\n"
+        "grid-reticle-100um.png: crossed-grid reticle RG-3, 100 um pitch (certified pitch u 0.05 um), turned about\n"
+        "  2 degrees, one line missing; gives x, y and squareness.\n"
         "reference-disc-4mm.png: chrome reference disc RD-4, certified diameter 4.0000 mm (u 0.0010 mm).\n"
     )
 
