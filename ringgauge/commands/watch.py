@@ -9,17 +9,8 @@ import os
 import sys
 
 from ..errors import InputError
+from ..options import integer
 from .analyze import _float, add_setup_arguments, setup_from_args
-
-
-def _pos_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number") from None
-    if v < 2:
-        raise argparse.ArgumentTypeError(f"'{text}' must be at least 2")
-    return v
 
 
 def register(sub) -> None:
@@ -50,7 +41,7 @@ def register(sub) -> None:
                    "numbered frames")
     add_setup_arguments(p)
     g = p.add_argument_group("live analysis")
-    g.add_argument("--settle-frames", type=_pos_int, default=None, metavar="N",
+    g.add_argument("--settle-frames", type=integer("--settle-frames", lo=2), default=None, metavar="N",
                    help="frames the fringes must stand still for the part to count as settled (default 10)")
     g.add_argument("--settle-fringes", type=_float, default=None, metavar="F",
                    help="largest fringe motion over those frames, fractions of a fringe (default 0.05)")

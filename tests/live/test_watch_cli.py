@@ -131,6 +131,7 @@ def test_silent_stream_times_out(tmp_path):
     (["--settle-fringes", "0.7"], "between 0 and 0.5"),
     (["--max-frames", "0"], "at least 1"),
     (["--open-timeout", "0"], "between 0 and 120"),
+    (["--settle-frames", "1"], "must be at least 2"),
 ])
 def test_watch_bad_options_one_line(sequences, capsys, extra, words):
     seq = sequences[("centre", "pressing")]
