@@ -204,6 +204,17 @@ def _fr(x: float) -> str:
     return f"{x:.2f} fringe" + ("" if abs(x) == 1 else "s")
 
 
+def _fringe_item(item: str, given, truth: float, tol: float, truth_text: str, hint: str) -> ItemScore:
+    """One reading in fringes scored against its truth within the level's tolerance; ``hint`` when not given."""
+    if given is None:
+        return ItemScore(item, "not given", truth_text, False, hint)
+    d = float(given) - truth
+    ok = abs(d) <= tol + 1e-9
+    return ItemScore(item, _fr(float(given)), truth_text, ok,
+                     f"{'within' if ok else 'outside'} ±{tol:g} fringe: you read "
+                     f"{_fr(abs(d))} {'high' if d > 0 else 'low'}" if d else "exact")
+
+
 def score(ex: Exercise, reading: Reading) -> Score:
     """Compare a reading with the hidden truth; every comment states the difference in fringes."""
     lv = LEVELS[ex.level]
@@ -220,43 +231,20 @@ def score(ex: Exercise, reading: Reading) -> Score:
                                "exact" if d == 0 else f"{abs(d)} fringe{'s' if abs(d) > 1 else ''} "
                                f"{'too many' if d > 0 else 'too few'}: look again at the edge, where the "
                                "fringes crowd"))
-    # power magnitude
+    # power magnitude, astigmatism, irregularity (older logged exercises have no irregularity truth: not scored)
     p = t["power_fringes"]
-    if reading.power_fringes is None:
-        items.append(ItemScore("Power", "not given", _fr(p), False, "power is the sagitta difference over the "
-                               "test diameter, in fringes"))
-    else:
-        d = float(reading.power_fringes) - p
-        ok = abs(d) <= lv.power_tol + 1e-9
-        items.append(ItemScore("Power", _fr(float(reading.power_fringes)), _fr(p), ok,
-                               f"{'within' if ok else 'outside'} ±{lv.power_tol:g} fringe: you read "
-                               f"{_fr(abs(d))} {'high' if d > 0 else 'low'}" if d else "exact"))
-    # astigmatism
+    items.append(_fringe_item("Power", reading.power_fringes, p, lv.power_tol, _fr(p),
+                              "power is the sagitta difference over the test diameter, in fringes"))
     a = t["astigmatism_fringes"]
-    if reading.astigmatism_fringes is None:
-        items.append(ItemScore("Astigmatism", "not given", _fr(a), False,
-                               "astigmatism is the difference of the fringe counts along the two principal "
-                               "meridians"))
-    else:
-        d = float(reading.astigmatism_fringes) - a
-        ok = abs(d) <= lv.astig_tol + 1e-9
-        axis = f" (principal meridian at {t['astigmatism_axis_deg']:.0f}°)" if a else ""
-        items.append(ItemScore("Astigmatism", _fr(float(reading.astigmatism_fringes)), _fr(a) + axis, ok,
-                               f"{'within' if ok else 'outside'} ±{lv.astig_tol:g} fringe: you read "
-                               f"{_fr(abs(d))} {'high' if d > 0 else 'low'}" if d else "exact"))
-    # irregularity (older logged exercises have no truth for it: not scored there)
+    axis = f" (principal meridian at {t['astigmatism_axis_deg']:.0f}°)" if a else ""
+    items.append(_fringe_item("Astigmatism", reading.astigmatism_fringes, a, lv.astig_tol, _fr(a) + axis,
+                              "astigmatism is the difference of the fringe counts along the two principal "
+                              "meridians"))
     if "irregularity_fringes" in t:
         b = float(t["irregularity_fringes"])
-        if reading.irregularity_fringes is None:
-            items.append(ItemScore("Irregularity", "not given", _fr(b), False,
-                                   "irregularity is what is left when the best-fit sphere is taken away: "
-                                   "how far the fringes depart from evenly spaced circles"))
-        else:
-            d = float(reading.irregularity_fringes) - b
-            ok = abs(d) <= lv.astig_tol + 1e-9
-            items.append(ItemScore("Irregularity", _fr(float(reading.irregularity_fringes)), _fr(b), ok,
-                                   f"{'within' if ok else 'outside'} ±{lv.astig_tol:g} fringe: you read "
-                                   f"{_fr(abs(d))} {'high' if d > 0 else 'low'}" if d else "exact"))
+        items.append(_fringe_item("Irregularity", reading.irregularity_fringes, b, lv.astig_tol, _fr(b),
+                                  "irregularity is what is left when the best-fit sphere is taken away: how far "
+                                  "the fringes depart from evenly spaced circles"))
     # sign
     s = t["sign"]
     if reading.sign not in SIGNS:
