@@ -124,45 +124,39 @@ def _frame_steps(I, phi, u, v, delta0, tilt: bool, iterations: int = 3):
     delta_n by Gauss-Newton. Smooth A, B (rather than the per-pixel a, b of the pixel step) keep the problem
     determined with three frames, where the per-pixel model fits any steps exactly; the original algorithm
     takes them uniform over the frame [Wang & Han 2004]."""
-    out = np.array(delta0, dtype=float)
-    k = 3 if tilt else 1
-    G = np.stack([np.ones_like(u), u, v], axis=1)[:, :k]
     P = np.stack([np.ones_like(u), u, v, u * u, u * v, v * v], axis=1)
-    for n in range(I.shape[0]):
-        q = out[n, :k].copy()
-        for _ in range(iterations):
-            arg = phi + G @ q
-            cs = np.cos(arg)
-            X = np.hstack([P, P * cs[:, None]])
-            XtX = X.T @ X
-            lin = np.linalg.solve(XtX + 1e-12 * np.trace(XtX) * np.eye(12), X.T @ I[n])
-            Bv = P @ lin[6:]
-            r = X @ lin - I[n]
-            Jm = G * (-Bv * np.sin(arg))[:, None]
-            A = Jm.T @ Jm
-            try:
-                dq = np.linalg.solve(A + 1e-9 * np.trace(A) * np.eye(k), -Jm.T @ r)
-            except np.linalg.LinAlgError:
-                break
-            q += dq
-            if np.max(np.abs(dq)) < 1e-7:
-                break
-        out[n, :k] = q
-    return out
+
+    def residual(n, arg):
+        # the frame's smooth light and amplitude, solved linearly for this trial phase
+        X = np.hstack([P, P * np.cos(arg)[:, None]])
+        XtX = X.T @ X
+        lin = np.linalg.solve(XtX + 1e-12 * np.trace(XtX) * np.eye(12), X.T @ I[n])
+        return X @ lin - I[n], P @ lin[6:]
+
+    return _gauss_newton_steps(I.shape[0], phi, u, v, delta0, tilt, iterations, residual)
 
 
 def _frame_steps_pixel(I, a, b, phi, u, v, delta0, tilt: bool, iterations: int = 4):
     """Per frame Gauss-Newton fit of delta_n = d_n + t_x u + t_y v to I_n = a + b cos(phi + delta_n), with the
     per-pixel a, b of the pixel step (four or more frames: they are then over-determined)."""
+    def residual(n, arg):
+        return a + b * np.cos(arg) - I[n], b
+
+    return _gauss_newton_steps(I.shape[0], phi, u, v, delta0, tilt, iterations, residual)
+
+
+def _gauss_newton_steps(n_frames, phi, u, v, delta0, tilt: bool, iterations: int, residual):
+    """Damped Gauss-Newton for each frame's step delta_n = d_n (+ t_x u + t_y v with ``tilt``) in a model
+    I_n = A + B cos(phi + delta_n); ``residual(n, arg)`` gives (model - I_n, B) at the trial phase ``arg``."""
     out = np.array(delta0, dtype=float)
     k = 3 if tilt else 1
     G = np.stack([np.ones_like(u), u, v], axis=1)[:, :k]
-    for n in range(I.shape[0]):
+    for n in range(n_frames):
         q = out[n, :k].copy()
         for _ in range(iterations):
             arg = phi + G @ q
-            r = a + b * np.cos(arg) - I[n]
-            Jm = G * (-b * np.sin(arg))[:, None]
+            r, amp = residual(n, arg)
+            Jm = G * (-amp * np.sin(arg))[:, None]
             A = Jm.T @ Jm
             try:
                 dq = np.linalg.solve(A + 1e-9 * np.trace(A) * np.eye(k), -Jm.T @ r)
