@@ -16,12 +16,14 @@ import subprocess
 import tempfile
 import uuid
 
+import numpy as np
 import pytest
 
 from pg_cluster import _as_server_user, _pg_bin
 from records_sample import _BASE
 
-from ringgauge.records import open_store
+from ringgauge.imaging import save_png, sha256_file
+from ringgauge.records import RecordMeta, open_store
 
 
 @pytest.fixture(scope="session")
@@ -128,3 +130,21 @@ def pg_split(pg_url, tmp_path, monkeypatch):
     assert main(["records", "init-server", "--db", pg_url, "--owner", owner, "--bench", bench]) == 0
     bench_url = pg_url.replace("postgresql://postgres@", f"postgresql://{bench}@")
     return pg_url, bench_url, owner, bench
+
+
+@pytest.fixture
+def stocked(tmp_path, make_result, monkeypatch):
+    """A store holding one record whose image is on disk: (store, record)."""
+    monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
+    img = tmp_path / "S0007.png"
+    yy, xx = np.mgrid[0:240, 0:320]
+    save_png(img, 0.5 + 0.4 * np.cos(((xx - 160.0) ** 2 + (yy - 120.0) ** 2) / 400.0))
+    res = make_result("S0007")
+    res["image"].update(path=str(img), sha256=sha256_file(img), width=320, height=240)
+    res["centre_px"] = [160.0, 120.0]
+    store = open_store(tmp_path / "r.sqlite")
+    rec = store.add(RecordMeta(part="PCX-25-50", drawing="D-1204 rev C", surface="S1", lot="L-0042", serial="0007",
+                               operator="A. Kestrel", customer="Harbour Optics Guild", order_ref="PO-5531",
+                               temperature_c=20.4), res)
+    yield store, rec
+    store.close()

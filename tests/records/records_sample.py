@@ -43,3 +43,8 @@ _BASE = {
     "warnings": [],
     "elapsed_s": 0.5,
 }
+
+#: the invented shop the certificate tests issue documents for
+SHOP = {"name": "Fernhill Optical Workshop", "address": ["Unit 4, Quarry Lane", "Millbrook"],
+        "contact": "bench-office@fernhill.invalid", "accreditation": "", "certificate_prefix": "FOW",
+        "approver": "M. Oriel", "paper": "A4"}

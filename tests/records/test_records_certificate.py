@@ -17,10 +17,8 @@ from ringgauge.records import RecordMeta, open_store
 from ringgauge.records.documents import issue_certificate, issue_lot_report, power_limits_from_tolerance, reprint
 from ringgauge.report.pdf import CONTENT_FILE, verify_pdf
 from ringgauge.shop import load_shop, save_shop
+from records_sample import SHOP
 
-SHOP = {"name": "Fernhill Optical Workshop", "address": ["Unit 4, Quarry Lane", "Millbrook"],
-        "contact": "bench-office@fernhill.invalid", "accreditation": "", "certificate_prefix": "FOW",
-        "approver": "M. Oriel", "paper": "A4"}
 
 
 def unsigned_part(path) -> bytes:
@@ -32,23 +30,6 @@ def unsigned_part(path) -> bytes:
 
 def text_of(path) -> list[str]:
     return [" ".join(unicodedata.normalize("NFKC", p.extract_text() or "").split()) for p in PdfReader(path).pages]
-
-
-@pytest.fixture
-def stocked(tmp_path, make_result, monkeypatch):
-    monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
-    img = tmp_path / "S0007.png"
-    yy, xx = np.mgrid[0:240, 0:320]
-    save_png(img, 0.5 + 0.4 * np.cos(((xx - 160.0) ** 2 + (yy - 120.0) ** 2) / 400.0))
-    res = make_result("S0007")
-    res["image"].update(path=str(img), sha256=sha256_file(img), width=320, height=240)
-    res["centre_px"] = [160.0, 120.0]
-    store = open_store(tmp_path / "r.sqlite")
-    rec = store.add(RecordMeta(part="PCX-25-50", drawing="D-1204 rev C", surface="S1", lot="L-0042", serial="0007",
-                               operator="A. Kestrel", customer="Harbour Optics Guild", order_ref="PO-5531",
-                               temperature_c=20.4), res)
-    yield store, rec
-    store.close()
 
 
 def test_certificate_carries_every_required_field(stocked, tmp_path):

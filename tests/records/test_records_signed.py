@@ -13,40 +13,26 @@ import re
 import sqlite3
 import subprocess
 
-import numpy as np
 import pytest
 from pypdf import PdfReader, PdfWriter
 from pypdf.generic import NameObject
 
+from records_sample import SHOP
+
 from ringgauge.cli import main
-from ringgauge.imaging import save_png, sha256_file
 from ringgauge.records import RecordMeta, open_store
 from ringgauge.records.documents import issue_certificate, issue_lot_report, load_record_image
 from ringgauge.report.pdf import CONTENT_FILE, content_checksum, render_certificate
 from ringgauge.report.verify import verify_pdf
 
-SHOP = {"name": "Fernhill Optical Workshop", "address": ["Unit 4, Quarry Lane", "Millbrook"],
-        "contact": "bench-office@fernhill.invalid", "accreditation": "", "certificate_prefix": "FOW",
-        "approver": "M. Oriel", "paper": "A4"}
 
 
 @pytest.fixture
-def issued(tmp_path, make_result, monkeypatch):
+def issued(stocked, tmp_path):
     """A store with one record and its signed certificate: (store, record, document, path)."""
-    monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
-    img = tmp_path / "S0007.png"
-    yy, xx = np.mgrid[0:240, 0:320]
-    save_png(img, 0.5 + 0.4 * np.cos(((xx - 160.0) ** 2 + (yy - 120.0) ** 2) / 400.0))
-    res = make_result("S0007")
-    res["image"].update(path=str(img), sha256=sha256_file(img), width=320, height=240)
-    res["centre_px"] = [160.0, 120.0]
-    store = open_store(tmp_path / "r.sqlite")
-    rec = store.add(RecordMeta(part="PCX-25-50", drawing="D-1204 rev C", surface="S1", lot="L-0042", serial="0007",
-                               operator="A. Kestrel", customer="Harbour Optics Guild", order_ref="PO-5531",
-                               temperature_c=20.4), res)
+    store, rec = stocked
     doc, path, _ = issue_certificate(store, rec.id, tmp_path / "c.pdf", SHOP)
-    yield store, rec, doc, path
-    store.close()
+    return store, rec, doc, path
 
 
 def failed(path, store=None) -> set[str]:
