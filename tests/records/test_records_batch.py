@@ -111,7 +111,7 @@ def test_kill_in_the_middle_then_resume(tmp_path):
     n = 16
     make_folder(tmp_path / "lot", n, bad=1)
     db = tmp_path / "r.sqlite"
-    env = {**os.environ, "RG_TEST_DELAY_S": "0.4", "RINGGAUGE_HOME": str(tmp_path / "home")}
+    env = {**os.environ, "RG_TEST_DELAY_S": "1.0", "RINGGAUGE_HOME": str(tmp_path / "home")}
     cmd = [sys.executable, str(HERE / "batch_driver.py"), str(db), str(tmp_path / "lot"), "2"]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True)
     try:
@@ -181,7 +181,7 @@ def test_ctrl_c_or_term_stops_cleanly_and_resumes(tmp_path, sig):
     n = 12
     make_folder(tmp_path / "lot", n)
     db = tmp_path / "r.sqlite"
-    env = {**os.environ, "RG_TEST_DELAY_S": "0.4", "RINGGAUGE_HOME": str(tmp_path / "home")}
+    env = {**os.environ, "RG_TEST_DELAY_S": "1.0", "RINGGAUGE_HOME": str(tmp_path / "home")}
     cmd = [sys.executable, str(HERE / "batch_driver.py"), str(db), str(tmp_path / "lot"), "2"]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True)
     try:
