@@ -71,8 +71,8 @@ def wants_form(setup: BenchSetup, n_frames: int) -> bool:
         or setup.tolerance
         or setup.test_plate
         or setup.press_test  # a press-test observation only makes sense against a test plate
-        or setup.extras.get("mode") == "form"
-    ) and setup.extras.get("mode") != "radius"
+        or setup.mode == "form"
+    ) and setup.mode != "radius"
 
 
 def analyse(frames: Frame | Sequence[Frame], setup: BenchSetup, *, progress: Progress | None = None) -> AnalysisResult:
@@ -157,7 +157,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     small = c0.small
     vs = cv2.resize(valid.astype(np.uint8), (small.shape[1], small.shape[0]), interpolation=cv2.INTER_NEAREST) > 0
     region = None
-    aperture = setup.extras.get("aperture_px")  # set by hand (x, y, radius) for a part smaller than the field
+    aperture = setup.aperture_px  # set by hand (x, y, radius) for a part smaller than the field
     if aperture:
         ax, ay, ar = (float(v) for v in aperture)
         if ar <= 0:
@@ -168,7 +168,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         if not region.any():
             raise InputError("the aperture set by hand lies outside the image")
         vs &= region
-    manual = setup.extras.get("centre_px")
+    manual = setup.centre_px
     starts = [(c0.x, c0.y)] + ([c0.vote] if c0.vote else []) + ([tuple(manual)] if manual else [])
     cx, cy = c0.x, c0.y
     # On clean rings nearly every strong gradient line passes the estimate; where few do (faint, blurred or

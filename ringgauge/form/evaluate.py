@@ -298,7 +298,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     setup : ringgauge.bench_setup.BenchSetup
         Source, pixel scale, gap medium; form options ``test_diameter_mm``, ``tolerance``, ``test_plate``
         (dict: id, radius_mm, radius_u_mm, kind, calibrated...), ``press_test``, ``decision_rule``;
-        ``extras["gap_change"]`` ("increasing" default) for frame sets.
+        ``setup.gap_change`` ("increasing" default) for frame sets.
     progress : callable(fraction, message), optional
         Called with the fraction done (0-1) and a short message during the long steps.
     """
@@ -327,16 +327,16 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
             raise InputError(f"{f.name}: frame size {f.data.shape[::-1]} differs from the first frame's "
                              f"{shape0[::-1]}; frames of one part must come from the same camera set-up")
     say(0.0, "finding the part's edge")
-    ap = aperture_for(frames[0].data, aspect=aspect, extras=setup.extras)
+    ap = aperture_for(frames[0].data, aspect=aspect, extras={"aperture_px": setup.aperture_px})
     warnings += list(ap.notes)
     F = finesse_coefficient(GLASS_INDEX, n)
     fits: list[GapFit] = []
     masks: list[dict] = []
     masked_px = 0
-    gap_change = (setup.extras or {}).get("gap_change", "increasing")
+    gap_change = setup.gap_change
     route = "one-frame fit" if len(frames) == 1 else f"model fit with piston steps ({len(frames)} frames)"
     pm = None
-    if len(frames) >= 3 and (setup.extras or {}).get("form_route", "auto") != "model":
+    if len(frames) >= 3 and setup.form_route != "model":
         # three or more frames: the phase of every pixel from the frames' unknown steps (Wang-Han), no model
         say(0.05, f"phase map from {len(frames)} frames")
         sat0 = None
@@ -482,7 +482,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     sign = UNKNOWN
     if setup.press_test:
         sign = sign_from_press(setup.press_test)
-    motion = (setup.extras or {}).get("motion_sign")
+    motion = setup.motion_sign
     if sign.sign == 0 and isinstance(motion, dict) and motion.get("sign") in (1, -1):
         # the live view read the rings' motion while the gap changed before this frame was captured
         sign = SignResult(int(motion["sign"]), None, "live motion",
@@ -505,7 +505,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
         orient = [1.0] * len(fits)
         pist = [o * f.coeffs[0] for o, f in zip(orient, fits)]
         upist = [math.sqrt(f.covariance[0, 0]) if f.covariance is not None else 0.05 for f in fits]
-        sf = sign_from_pistons(pist, upist, gap_change=(setup.extras or {}).get("gap_change", "increasing"))
+        sf = sign_from_pistons(pist, upist, gap_change=setup.gap_change)
         poor = [i + 1 for i, f in enumerate(fits[1:], start=1) if f.contrast < 0.5 * fits[0].contrast]
         if poor:
             # a frame whose fit found far less fringe contrast than the first landed in a wrong minimum: its
