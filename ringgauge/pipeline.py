@@ -24,7 +24,7 @@ from .imaging import Frame, load_frame
 from .result import AnalysisResult, ImageInfo
 from .rings.centre import gradient_centre, refine_by_sharpness
 from .rings.profile import dominant_period, s_profile, s_profiles_by_label
-from .rings.sectors import sector_scatter
+from .fit.sectors import sector_scatter
 from .uncertainty import BudgetRow, make_budget
 
 Progress = Callable[[float, str], None]

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..fit.orders import fit_orders, locate_extrema
+from .orders import fit_orders, locate_extrema
 
 
 @dataclass(frozen=True)
