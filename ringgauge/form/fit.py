@@ -447,9 +447,25 @@ def _smooth(a, sigma):
     pad = np.pad(a, ((0, Hf * f - H), (0, Wf * f - W)), mode="edge")
     small = pad.reshape(Hf, f, Wf, f).mean(axis=(1, 3))
     small = ndimage.gaussian_filter(small, sigma / f)
-    yy = (np.arange(H) - (f - 1) / 2) / f
-    xx = (np.arange(W) - (f - 1) / 2) / f
-    return ndimage.map_coordinates(small, np.meshgrid(yy, xx, indexing="ij"), order=1, mode="nearest")
+    # bilinear interpolation back to full size (what map_coordinates order=1, mode "nearest" does), done
+    # separably: rows first, then columns, a few times quicker than interpolating every pixel's four neighbours
+    a0, a1, wy = _linear_weights(H, Hf, f)
+    b0, b1, wx = _linear_weights(W, Wf, f)
+    rows = small[a0] * (1.0 - wy)[:, None]
+    rows += small[a1] * wy[:, None]
+    out = rows[:, b0] * (1.0 - wx)
+    out += rows[:, b1] * wx
+    return out
+
+
+def _linear_weights(n_out: int, n_in: int, f: int):
+    """Neighbour indices and weights of linear interpolation from block centres (every ``f`` pixels) back to
+    ``n_out`` pixels, ends held at the nearest block."""
+    c = (np.arange(n_out) - (f - 1) / 2) / f
+    i0 = np.floor(c)
+    w = c - i0
+    i0 = i0.astype(np.intp)
+    return np.clip(i0, 0, n_in - 1), np.clip(i0 + 1, 0, n_in - 1), w
 
 
 def fit_gap(*args, **kwargs) -> GapFit:
