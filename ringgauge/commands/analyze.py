@@ -7,11 +7,10 @@ import importlib.util
 import json
 import sys
 
-from ..bench_setup import BenchSetup
-from ..errors import InputError
 from ..options import add_max_megapixels, number
+from ..sources import SOURCES
 from ._help import ExampleFormatter
-from ..sources import SOURCES, custom_source, get_source
+from ._setup import add_form_arguments, setup_from_args  # noqa: F401 - batch, watch and tests take it from here
 
 
 def _float(text: str) -> float:
@@ -52,10 +51,7 @@ def add_setup_arguments(p: argparse.ArgumentParser) -> None:
         help="radius: Newton's rings on an optical flat; form: against a test plate; auto (default) picks form "
         "when a form option or several frames are given",
     )
-    if _has("ringgauge.form.options"):
-        from ..form import options as form_options
-
-        form_options.add_arguments(p)
+    add_form_arguments(p)
     g = p.add_argument_group("radius tolerance (one of; judged under --decision-rule)")
     g.add_argument("--radius-tolerance", metavar="TEXT",
                    help="radius of curvature tolerance in mm: '1000 ± 5', '1000 +/- 5', '1000 ± 0.5 %%', "
@@ -63,53 +59,6 @@ def add_setup_arguments(p: argparse.ArgumentParser) -> None:
     g.add_argument("--radius-limits", nargs=2, type=number("--radius-limits", lo=-1e7, hi=1e7, unit="mm"),
                    metavar=("LO_MM", "HI_MM"),
                    help="the same as lower and upper limits in mm")
-
-
-def setup_from_args(args: argparse.Namespace) -> tuple[BenchSetup, list[str]]:
-    """Build the bench set-up from parsed options; returns it with any warnings (e.g. an overdue calibration)."""
-    warnings: list[str] = []
-    kw: dict = {}
-    if args.bench:
-        if not _has("ringgauge.calibration.profiles"):
-            raise InputError("bench profiles are not available in this installation")
-        from ..calibration import profiles
-
-        bkw, bw = profiles.setup_kwargs(args.bench)
-        kw.update(bkw)
-        warnings += bw
-        if args.pixel_size is not None:
-            raise InputError("give either --bench or --pixel-size, not both")
-    if args.source and args.wavelength is not None:
-        raise InputError("give either --source or --wavelength, not both")
-    if args.source:
-        kw["source"] = get_source(args.source)
-    elif args.wavelength is not None:
-        kw["source"] = custom_source(args.wavelength, args.wavelength_u, args.bandwidth)
-    if "source" not in kw:
-        raise InputError(f"name the light source: --source NAME ({', '.join(SOURCES)}) or --wavelength NM")
-    if not args.bench:
-        if args.pixel_size is None:
-            raise InputError("give the pixel scale: --pixel-size UM (µm per pixel) or --bench NAME (a calibrated profile)")
-        kw.update(
-            pixel_size_um=args.pixel_size, pixel_size_u_um=args.pixel_size_u,
-            pixel_size_y_um=args.pixel_size_y, pixel_size_y_u_um=args.pixel_size_y_u,
-        )
-    kw.setdefault("medium_index", args.medium_index)
-    if args.medium_index != 1.0:
-        kw["medium_index"] = args.medium_index
-    kw.update(medium_index_u=args.medium_index_u, fringe_kind=args.fringe_kind, extras={"mode": args.mode})
-    if _has("ringgauge.form.options"):
-        from ..form import options as form_options
-
-        fkw, fw = form_options.setup_kwargs(args)
-        kw.update(fkw)
-        warnings += fw
-    from ..conformity import radius_tolerance_from
-
-    rt = radius_tolerance_from(getattr(args, "radius_tolerance", None), getattr(args, "radius_limits", None))
-    if rt is not None:
-        kw["radius_tolerance"] = rt.text
-    return BenchSetup(**kw), warnings
 
 
 def register(sub) -> None:

@@ -47,7 +47,7 @@ def register(sub) -> None:
     g.add_argument("--quiet", action="store_true", help="no progress bar")
     add_db_argument(p)
     p.set_defaults(func=run)
-    from ..records.lotsheet import track_given
+    from ._setup import track_given
 
     track_given(p)  # the lot sheet fills only what the command line left out
 
@@ -72,7 +72,8 @@ def run(args) -> int:
     from ..records.store import RecordFilter
     from .analyze import setup_from_args
 
-    from ..records.lotsheet import apply_sheet, find_sheet, read_sheet
+    from ..records.lotsheet import find_sheet, read_sheet
+    from ._setup import apply_sheet
 
     if args.workers is not None and args.workers < 1:
         raise InputError("--workers must be at least 1")

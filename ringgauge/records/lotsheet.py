@@ -19,7 +19,6 @@ Fields (JSON object)::
 
 from __future__ import annotations
 
-import argparse
 import difflib
 import json
 import math
@@ -67,7 +66,7 @@ FIELDS: dict[str, tuple[str | None, str, tuple | None]] = {
 }
 
 #: fields that say the same thing in another way: one given on the command line overrides all of its group
-_GROUPS = (
+GROUPS = (
     {"source", "wavelength"},
     {"pixel_size", "bench"},
     {"radius_tolerance", "radius_limits"},
@@ -146,39 +145,3 @@ def read_sheet(path: str | Path) -> dict:
         except InputError as exc:
             raise InputError(f"lot sheet {path}: {exc}") from None
     return out
-
-
-def apply_sheet(args: argparse.Namespace, sheet: dict, given: set[str]) -> list[str]:
-    """Fill ``args`` from the sheet where the option was not given on the command line (``given`` holds the
-    destinations given there). Returns the sheet fields that were used."""
-    blocked = set(given)
-    for group in _GROUPS:
-        if group & given:
-            blocked |= group
-    used = []
-    for key, value in sheet.items():
-        dest = FIELDS[key][0]
-        if dest is None or dest in blocked or not hasattr(args, dest):
-            continue
-        setattr(args, dest, value)
-        used.append(key)
-    return used
-
-
-def track_given(parser: argparse.ArgumentParser) -> None:
-    """Make ``parser`` note the destinations of the options given on the command line in ``args._given``
-    (argparse calls an option's action only when the option is given)."""
-    for action in parser._actions:
-        if isinstance(action, argparse._HelpAction) or getattr(action, "_tracks_given", False):
-            continue
-        base = type(action)
-
-        def call(self, parser_, namespace, values, option_string=None, _base=base):
-            given = getattr(namespace, "_given", None)
-            if given is None:
-                given = set()
-                setattr(namespace, "_given", given)
-            given.add(self.dest)
-            _base.__call__(self, parser_, namespace, values, option_string)
-
-        action.__class__ = type(f"Given{base.__name__}", (base,), {"__call__": call, "_tracks_given": True})

@@ -1,5 +1,5 @@
 """Hand-set aperture and centre: ``analyze --aperture X Y DIAMETER`` / ``--centre X Y`` mean what the window's
-hand-set aperture and centre mean (set-up extras ``aperture_px = (x, y, radius)`` and ``centre_px = (x, y)``)."""
+hand-set aperture and centre mean (set-up fields ``aperture_px = (x, y, radius)`` and ``centre_px = (x, y)``)."""
 
 import json
 import sys
@@ -14,7 +14,7 @@ import plate_model as P  # noqa: E402
 from ringgauge.bench_setup import BenchSetup  # noqa: E402
 from ringgauge.cli import main  # noqa: E402
 from ringgauge.errors import InputError  # noqa: E402
-from ringgauge.form import options  # noqa: E402
+from ringgauge.commands._setup import setup_from_args  # noqa: E402
 from ringgauge.form.aperture import aperture_for  # noqa: E402
 from ringgauge.form.evaluate import evaluate_form  # noqa: E402
 from ringgauge.imaging import frame_from_array  # noqa: E402
@@ -27,13 +27,9 @@ def _home(tmp_path, monkeypatch):
 
 
 def _parse(argv):
-    import argparse
+    from ringgauge.cli import build_parser
 
-    p = argparse.ArgumentParser()
-    p.add_argument("images", nargs="+")
-    p.add_argument("--mode", default="auto")
-    options.add_arguments(p)
-    return p.parse_args(argv)
+    return build_parser().parse_args(["analyze", *argv, "--source", "mercury-e", "--pixel-size", "10"])
 
 
 @pytest.fixture()
@@ -43,11 +39,11 @@ def png(tmp_path):
     return str(path)
 
 
-def test_options_become_the_windows_extras(png):
-    kw, warn = options.setup_kwargs(_parse([png, "--aperture", "200.5", "150", "240", "--centre", "201", "149"]))
+def test_options_become_the_windows_hand_settings(png):
+    setup, warn = setup_from_args(_parse([png, "--aperture", "200.5", "150", "240", "--centre", "201", "149"]))
     # the window keeps (x, y, radius); the command line takes a diameter like a drawing does
-    assert kw["extras"]["aperture_px"] == (200.5, 150.0, 120.0)
-    assert kw["extras"]["centre_px"] == (201.0, 149.0)
+    assert setup.aperture_px == (200.5, 150.0, 120.0)
+    assert setup.centre_px == (201.0, 149.0)
     assert not warn  # one image, no form option: a radius measurement, where the centre is used
 
 
@@ -62,7 +58,7 @@ def test_options_become_the_windows_extras(png):
 )
 def test_bad_manual_values_are_one_line_errors(png, argv, words):
     with pytest.raises(InputError) as exc:
-        options.setup_kwargs(_parse([png] + argv))
+        setup_from_args(_parse([png] + argv))
     assert words in str(exc.value) and "\n" not in str(exc.value)
 
 
@@ -75,7 +71,7 @@ def test_non_finite_or_missing_numbers_are_usage_errors(png, argv, capsys):
 
 
 def test_centre_in_form_mode_says_it_is_not_used(png):
-    _, warn = options.setup_kwargs(_parse([png, png, "--centre", "10", "10"]))
+    _, warn = setup_from_args(_parse([png, png, "--centre", "10", "10"]))
     assert any("radius measurement only" in w for w in warn)
 
 
@@ -97,7 +93,7 @@ def test_form_over_a_hand_set_smaller_aperture():
     part = P.Part(power=2.0, rim_phase=0.5)
     frame = frame_from_array(P.render(part, 5)[0])
     setup = BenchSetup(source=get_source("mercury-e"), pixel_size_um=part.pixel_um,
-                       extras={"aperture_px": (200.0, 200.0, 120.0)})
+                       aperture_px=(200.0, 200.0, 120.0))
     r = evaluate_form([frame], setup)
     assert r.aperture.radius_px == 120.0 and r.aperture.manual
     assert abs(abs(r.terms["power_fringes"]) - 2.0 * 0.64) < 0.05
@@ -116,3 +112,4 @@ def test_cli_aperture_end_to_end(tmp_path, capsys):
     form = d.get("form") or d
     ap = form["aperture"]
     assert ap["source"] == "set by hand" and ap["diameter_px"] == pytest.approx(240.0)
+    assert d["setup"]["aperture_px"] == [200.0, 200.0, 120.0]  # what shaped the result is stored with it

@@ -1,6 +1,5 @@
 """Test-plate register, analyze options and the register command."""
 
-import argparse
 import datetime as dt
 import json
 
@@ -8,7 +7,8 @@ import pytest
 
 from ringgauge.cli import main
 from ringgauge.errors import InputError, ToleranceSyntaxError
-from ringgauge.form import options, plates
+from ringgauge.commands._setup import options_from_args, setup_from_args
+from ringgauge.form import plates
 
 
 @pytest.fixture(autouse=True)
@@ -52,26 +52,25 @@ def test_overdue_calibration_is_warned():
 
 
 def _parse(argv):
-    p = argparse.ArgumentParser()
-    p.add_argument("images", nargs="+")
-    options.add_arguments(p)
-    return p.parse_args(argv)
+    from ringgauge.cli import build_parser
+
+    return build_parser().parse_args(["analyze", *argv, "--source", "mercury-e", "--pixel-size", "10"])
 
 
-def test_setup_kwargs_from_register_and_by_hand():
+def test_setup_from_register_and_by_hand():
     plates.add_plate({**PLATE, "calibrated": "2019-01-01"})
-    kw, warn = options.setup_kwargs(_parse(["a.png", "--test-plate", "TP-0412", "--tolerance", "3/2(0.5)"]))
-    assert kw["test_plate"]["radius_mm"] == 51.68 and kw["tolerance"] == "3/2(0.5)"
+    setup, warn = setup_from_args(_parse(["a.png", "--test-plate", "TP-0412", "--tolerance", "3/2(0.5)"]))
+    assert setup.test_plate["radius_mm"] == 51.68 and setup.tolerance == "3/2(0.5)"
     assert any("overdue" in w for w in warn)
-    kw, warn = options.setup_kwargs(_parse(["a.png", "--test-plate-radius", "51.68", "--test-diameter", "21"]))
-    assert kw["test_plate"]["radius_u_mm"] == 0.0 and any("uncertainty" in w for w in warn)
-    assert kw["test_diameter_mm"] == 21.0
+    setup, warn = setup_from_args(_parse(["a.png", "--test-plate-radius", "51.68", "--test-diameter", "21"]))
+    assert setup.test_plate["radius_u_mm"] == 0.0 and any("uncertainty" in w for w in warn)
+    assert setup.test_diameter_mm == 21.0
     with pytest.raises(ToleranceSyntaxError, match="character"):
-        options.setup_kwargs(_parse(["a.png", "--tolerance", "3/2(0.5"]))
+        setup_from_args(_parse(["a.png", "--tolerance", "3/2(0.5"]))
     with pytest.raises(InputError, match="not in the register"):
-        options.setup_kwargs(_parse(["a.png", "--test-plate", "TP-9999"]))
-    assert options.wants_form(_parse(["a.png", "b.png"]))
-    assert not options.wants_form(_parse(["a.png"]))
+        setup_from_args(_parse(["a.png", "--test-plate", "TP-9999"]))
+    assert options_from_args(_parse(["a.png", "b.png"])).asks_for_form(frames=2)
+    assert not options_from_args(_parse(["a.png"])).asks_for_form(frames=1)
 
 
 def test_plates_command(capsys, home):
