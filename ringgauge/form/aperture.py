@@ -105,8 +105,9 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     current part estimate) models that light, so the part is the region that departs from it — uneven light
     and vignetting are divided out instead of being mistaken for the part or for dust. (2) Fine: along rays
     from the coarse centre, the outermost point where the brightness (divided by that light model) leaves the
-    plate's level; there a blurred-edge model — plate level outside, a local quadratic fringe profile inside,
-    a step in value and slope at the rim, convolved with a Gaussian blur — is fitted by least squares, which
+    plate's level; there a blurred-edge model — plate level outside, a local quadratic fringe profile inside
+    (or, where the fringes near the rim are dense, a sinusoid of the ray's own fringe frequency), a step in
+    value and slope at the rim, convolved with a Gaussian blur — is fitted by least squares, which
     places the rim to a fraction of a pixel whether it falls on a dark, grey or bright fringe. A geometric
     least-squares circle (robust loss) through those rim points gives centre, radius and their uncertainties.
 
@@ -141,14 +142,15 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
         # this pass only centres the rays and picks the blur for the close look below: a fiftieth of a pixel
         # is close enough (the close look fits the rim afresh about that centre)
         circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect, xtol=0.02)
-        # close look: the part's side of the model is a local quadratic, so it may reach only a fraction of the
-        # fringe spacing into the part; the longest stretch the quadratic still explains to the noise is kept
+        # close look: the part's side of the model is a local quadratic (a sinusoid where the fringes are dense),
+        # so it may reach only a fraction of the fringe spacing into the part; the longest stretch the model
+        # still explains to the noise is kept
         got = []
         for in_px in (6.0, 4.0, 2.5):
             # the rough departure point lies up to about two blur widths outside the rim
             near = tuple(x for x in SIGMAS if abs(math.log(x / sig)) < 0.3)  # the blur found, +- one step
             tab = _rim_tables(norm, circle, aspect, window=0.06, out_px=max(6.0, 3 * sig + 2),
-                              in_px=in_px + 2 * sig, sigmas=near)
+                              in_px=in_px + 2 * sig, sigmas=near, fringes=True)
             if tab is not None:
                 got.append(_rim_circle(tab, circle, aspect))
         if got:
@@ -348,7 +350,7 @@ EDGE_RAYS = RIM_RAYS  # kept for callers of the earlier name
 
 
 def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, out_px: float = 6.0,
-                in_px: float = RIM_INSIDE_PX, sigmas=SIGMAS):
+                in_px: float = RIM_INSIDE_PX, sigmas=SIGMAS, fringes: bool = False):
     """Per-ray misfit of the blurred-edge model against the trial rim position, for each trial blur.
 
     ``norm`` is the image divided by the plate's light model, so the plate reads about 1 everywhere. On each
@@ -417,14 +419,25 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
     ysq = np.sum(Y * Y, axis=1)
     tables = {}
     K, M = e_grid.size, t.size
+    # the part's side: a local quadratic, or -- where the fringes inside the rim are closer than the stretch
+    # fitted -- a sinusoid of the ray's own fringe frequency (a dense fringe bends a quadratic model and pulls
+    # the rim inward)
+    kq = _ray_frequencies(norm, (cx, cy), th[idx], r + ss[j[idx]], aspect, in_px) if fringes else np.zeros(idx.size)
+    groups = [(kv, np.nonzero(kq == kv)[0]) for kv in np.unique(kq)]
     for sig in sigmas:
-        # the model's columns for every trial position at once, (K, M, 5), and their orthonormal bases
-        B = np.stack(_edge_basis(t[None, :], e_grid[:, None], sig), axis=-1)
-        Q, _ = np.linalg.qr(B)
-        # all rays against all trial positions in one matrix product: (N, M) @ (M, 5 * K)
-        proj = Y @ Q.transpose(1, 2, 0).reshape(M, 5 * K)
-        np.square(proj, out=proj)
-        tables[float(sig)] = np.maximum(ysq[:, None] - proj.reshape(-1, 5, K).sum(axis=1), 0.0)
+        T = np.empty((idx.size, K))
+        for kv, rays in groups:
+            # the model's columns for every trial position at once, (K, M, c), and their orthonormal bases
+            cols = _edge_basis(t[None, :], e_grid[:, None], sig) if kv == 0 else \
+                _fringe_edge_basis(t[None, :], e_grid[:, None], sig, kv)
+            B = np.stack(cols, axis=-1)
+            nc = B.shape[-1]
+            Q, _ = np.linalg.qr(B)
+            # all rays against all trial positions in one matrix product: (N, M) @ (M, c * K)
+            proj = Y[rays] @ Q.transpose(1, 2, 0).reshape(M, nc * K)
+            np.square(proj, out=proj)
+            T[rays] = np.maximum(ysq[rays, None] - proj.reshape(-1, nc, K).sum(axis=1), 0.0)
+        tables[float(sig)] = T
     return {"theta": th[idx], "base": r + ss[j[idx]], "e_grid": e_grid, "tables": tables,
             "noise_var": sig_n**2, "oversampling": 1.0 / ds, "m": Y.shape[1], "centre": (cx, cy)}
 
@@ -522,3 +535,49 @@ def _edge_basis(t, e, sig):
     e2 = (m * m + sig * sig) * p_in - m * sig * phi
     o1 = m * (1 - p_in) + sig * phi  # the plate's own slope outside (uneven light)
     return [1 - p_in, p_in, e1, e2, o1]
+
+
+def _ray_frequencies(norm, centre, theta, base, aspect, in_px):
+    """Each ray's fringe frequency (radians per pixel) just inside its departure radius ``base``, quantised to
+    steps of 8 % so rays of about the same frequency share one model; 0 where the fringes are too wide for a
+    quadratic not to follow them over ``in_px``, or none is seen.
+
+    The strongest tone of the linearly detrended profile over the 20 px inside (a Hann-windowed Fourier sum
+    over trial periods of 2.5-40 px)."""
+    H, W = norm.shape
+    ds = 0.25
+    x = np.arange(1.0, 21.0, ds)  # inward from the departure point, px
+    rr = base[:, None] - x[None, :]
+    xs = centre[0] + rr * np.cos(theta)[:, None]
+    ys = centre[1] + rr * np.sin(theta)[:, None] / aspect
+    seg = ndimage.map_coordinates(norm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1, mode="nearest")
+    X = np.stack([np.ones_like(x), x - x.mean()], axis=1)
+    seg = seg - (seg @ np.linalg.pinv(X).T) @ X.T
+    periods = np.geomspace(2.5, 40.0, 80)
+    kk = 2 * np.pi / periods
+    E = np.exp(-1j * np.outer(x, kk)) * np.hanning(x.size)[:, None]
+    best = kk[np.argmax(np.abs(seg @ E), axis=1)]
+    # a tone needs a full period within the stretch; the quadratic serves while the stretch fitted is under
+    # about a sixth of a period
+    use = (2 * np.pi / best <= x[-1] - x[0]) & (best * in_px > 1.0)
+    step = math.log(1.08)
+    kq = np.exp(np.round(np.log(best) / step) * step)
+    return np.where(use, kq, 0.0)
+
+
+def _fringe_edge_basis(t, e, sig, k):
+    """Columns of the blurred-edge model with a fringe of ``k`` radians per pixel inside: plate level and slope
+    outside; level, slope and the fringe's cos and sin inside, each convolved with a Gaussian of ``sig``. For
+    M ~ N(m, sig^2), m the position relative to the rim, the blurred one-sided tone is
+    E[exp(i k M) 1(M < 0)] = exp(i k m - k^2 sig^2 / 2) Phi(-(m + i k sig^2) / sig), Phi(z) = erfc(-z / sqrt 2) / 2
+    (the Gaussian's characteristic function completed to a square).
+
+    A frequency a few per cent off is absorbed by the level and slope columns over the few pixels fitted;
+    columns for the tone's derivative in frequency or its second harmonic (the multiple-beam shape) were tried
+    and left out: the extra freedom let a wide fringe's rim drift outward by a pixel or two."""
+    from scipy.special import erfc
+
+    cols = _edge_basis(t, e, sig)
+    m = t - e
+    tone = np.exp(1j * k * m - 0.5 * (k * sig) ** 2) * 0.5 * erfc((m + 1j * k * sig * sig) / (sig * math.sqrt(2)))
+    return [cols[0], cols[4], cols[1], cols[2], tone.real, tone.imag]

@@ -54,8 +54,6 @@ SETS = {
 KNOWN = {
     "0.8 fr, uneven light": "one-frame fit under a strong off-centre fall-off reads 0.063 fringe of irregularity "
     "(truth 0) and power +0.033: the gap model absorbs part of the light's shape (form/fit.py)",
-    "10 fr, dark rim": "power 0.054 fringe low (u 0.062): the rim of a 10-fringe part on a dark fringe reads "
-    "0.3-0.4 px small, the fringes within 4 px of the edge bend the blurred-edge model (form/aperture.py)",
     "low power under uneven light, 4 frames": "phase-map route reads 0.6 fringe of power as 0.515 (u 0.053); the "
     "one-frame route on the same part is within 0.03: map near the edge under a steep light fall-off "
     "(form/phase.py)",
