@@ -156,6 +156,28 @@ def write_text_atomic(target: str | os.PathLike, text: str | bytes, *, encoding:
     return target
 
 
+def write_private(target: Path, data: bytes) -> None:
+    """Write a secret file readable by its owner only (0600), atomically, refusing to follow a symlink."""
+    target = Path(target)
+    with locked(target):
+        tmp = target.with_name(f".{target.name}.{os.getpid()}.tmp")
+        try:
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0), 0o600)
+            try:
+                os.fchmod(fd, 0o600)
+                os.write(fd, data)
+                os.fsync(fd)
+            finally:
+                os.close(fd)
+            os.replace(tmp, target)
+        except OSError as exc:
+            try:
+                tmp.unlink()
+            except OSError:
+                pass
+            raise InputError(f"cannot write {target}: {exc.strerror or exc}") from None
+
+
 def _fsync_dir(folder: Path) -> None:
     try:
         dfd = os.open(str(folder), os.O_RDONLY)

@@ -106,7 +106,7 @@ def main() -> int:
     print(f"demo: lot processed in {time.monotonic() - t0:.1f} s", file=sys.stderr)
 
     from ringgauge.records import RecordFilter, open_store
-    from ringgauge.records.documents import issue_certificate, issue_lot_report
+    from ringgauge.certificates import issue_certificate, issue_lot_report
 
     written = []
     with open_store() as store:

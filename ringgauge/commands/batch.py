@@ -67,7 +67,7 @@ def _safe(name: str) -> str:
 
 def run(args) -> int:
     from ..records.batch import find_images, run_lot
-    from ..records.documents import power_limits_from_tolerance
+    from ..certificates import power_limits_from_tolerance
     from ..records.lot import chart_png, summarise_lot
     from ..records.store import RecordFilter
     from .analyze import setup_from_args
@@ -109,7 +109,7 @@ def run(args) -> int:
             chart_written = True
         report = None
         if args.report and not run_.interrupted:
-            from ..records.documents import issue_lot_report
+            from ..certificates import issue_lot_report
             from ..shop import load_shop
 
             doc, path = issue_lot_report(store, meta.lot, args.report, load_shop(), tolerance=setup.tolerance,

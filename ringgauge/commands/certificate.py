@@ -63,7 +63,7 @@ def run(args) -> int:
     if args.out and not args.out.lower().endswith(".pdf"):
         raise InputError(f"--out {args.out}: give a file name ending in .pdf")
     shop = load_shop(args.shop)
-    from ..records.documents import issue_certificate, issue_lot_report, reprint
+    from ..certificates import issue_certificate, issue_lot_report, reprint
 
     with open_from_args(args) as store:
         if t:

@@ -83,7 +83,7 @@ def issue_certificates(record_ids: Sequence[int], out_dir: str | os.PathLike, *,
     """A certificate PDF per record that holds a result (failed analyses get none), and a lot report when
     ``lot`` is given. Asking again for the same record reprints its certificate with the same number."""
     from ..records import open_store
-    from ..records.documents import issue_certificate, issue_lot_report
+    from ..certificates import issue_certificate, issue_lot_report
     from ..shop import load_shop
 
     out = Path(out_dir)

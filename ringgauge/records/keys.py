@@ -20,7 +20,8 @@ import os
 import secrets
 from pathlib import Path
 
-from ..errors import InputError, StoreError
+from ..errors import StoreError
+from ..settings import write_private
 
 KEY_FILE = "records.key"
 
@@ -37,30 +38,6 @@ def key_path() -> Path:
 def key_id(key: bytes) -> str:
     """A short public name of a key (it reveals nothing about the key)."""
     return hashlib.sha256(b"ringgauge records key id\0" + key).hexdigest()[:16]
-
-
-def write_private(target: Path, data: bytes) -> None:
-    """Write a secret file readable by its owner only (0600), atomically, refusing to follow a symlink."""
-    from ..settings import locked
-
-    target = Path(target)
-    with locked(target):
-        tmp = target.with_name(f".{target.name}.{os.getpid()}.tmp")
-        try:
-            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0), 0o600)
-            try:
-                os.fchmod(fd, 0o600)
-                os.write(fd, data)
-                os.fsync(fd)
-            finally:
-                os.close(fd)
-            os.replace(tmp, target)
-        except OSError as exc:
-            try:
-                tmp.unlink()
-            except OSError:
-                pass
-            raise InputError(f"cannot write {target}: {exc.strerror or exc}") from None
 
 
 def check_private(p: Path) -> None:

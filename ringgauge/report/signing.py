@@ -72,7 +72,7 @@ def fingerprint(cert_der: bytes) -> str:
 
 
 def _write_private(p: Path, data: bytes) -> None:
-    from ..records.keys import write_private
+    from ..settings import write_private
 
     write_private(p, data)
 

@@ -32,6 +32,22 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError, RinggaugeError
+from .content import (
+    CONTENT_FILE,
+    _canonical_digest,
+    _results_rows,
+    budget_tables,
+    certificate_item_rows,
+    content_checksum,
+    load_record_image,
+    lot_counts_rows,
+    lot_parts_table,
+    lot_spread_rows,
+    results_table,
+    specification_rows,
+    traceability_rows,
+    verdict_terms_table,
+)
 
 
 @dataclass
@@ -79,6 +95,10 @@ def printed_values(content: dict) -> list[str]:
 # ------------------------------------------------------------------------------------------- table cells
 
 
+#: check names of the certificate's first table where they differ from the printed label
+_ITEM_CHECK_NAMES = {"Measured (UTC)": "measured date", "Inspection record": "record"}
+
+
 def expected_rows(content: dict) -> list[tuple[str, list[str]]]:
     """The table rows the document prints, as (what, cells): every cell must be printed as a whole cell, and the
     cells of one row on one line. Only what the content says is checked (values, not headings), so a change of
@@ -97,51 +117,26 @@ def expected_rows(content: dict) -> list[tuple[str, list[str]]]:
 
     if c.get("kind") == "certificate":
         # label and value on one line: a short value ("1", "2") also appears elsewhere on the page
-        many("customer", ["Customer", c["customer"]["customer"]])
-        many("order", ["Order", c["customer"]["order"]])
-        many("part / drawing", ["Part / drawing", f"{c['item']['part']} / {c['item']['drawing']}"])
-        for k in ("surface", "serial", "lot"):
-            many(k, [k.capitalize(), c["item"][k]])
-        many("measured date", ["Measured (UTC)", c["dates"]["measured (UTC)"]])
-        many("record", ["Inspection record", c["dates"]["record"]])
-        spec = c["specification"]
-        for k, v in (spec.items() if isinstance(spec, dict) else spec):
-            many(str(k).lower(), [str(k)[:1].upper() + str(k)[1:], v])
-        for r in c["results"]:
-            many(f"results row '{r['quantity']}'", [r["quantity"], r["value"], r["U"], r["k"]])
-        terms = c["decision"].get("terms")
-        if isinstance(terms, list) and terms:
-            keys = list(dict.fromkeys(k for t in terms for k in t))
-            terms = {"header": keys, "rows": [[t.get(k, "") for k in keys] for t in terms]}
-        if isinstance(terms, dict):
-            for r in terms.get("rows") or []:
-                many(f"verdict terms row '{r[0]}'", r)
-        budgets = c.get("budgets") if "budgets" in c else ([c["budget"]] if c.get("budget") else [])
-        for b in budgets:
-            for r in b["rows"]:
-                many(f"budget {b.get('output', '')} row '{r['quantity']}'",
-                     [r["quantity"], r["estimate"], r["u"], r["distribution"], r["divisor"], r["sensitivity"],
-                      r["contribution"], r["share"]])
+        for label, v in certificate_item_rows(c):
+            many(_ITEM_CHECK_NAMES.get(label, label.lower()), [label, v])
+        for label, v in specification_rows(c):
+            many(label.lower(), [label, v])
+        for r in results_table(c)[1]:
+            many(f"results row '{r[0]}'", r)
+        for r in (verdict_terms_table(c) or {}).get("rows") or []:
+            many(f"verdict terms row '{r[0]}'", r)
+        for b, budget_rows in budget_tables(c):
+            for r in budget_rows:
+                many(f"budget {b.get('output', '')} row '{r[0]}'", r)
         for r in c.get("form_budget") or []:
             many(f"form contributions row '{r[0]}'", r)
-        tr = c["traceability"]
-        plate = tr["test plate"]
-        if isinstance(plate, dict):
-            from .pdf import _plate_text
-
-            plate = _plate_text(plate)
-        for k, v in (("Test plate", plate), ("Wavelength source", tr["wavelength source"]),
-                     ("Pixel scale", tr["pixel scale"]), ("Pixel-scale calibration", tr["pixel-scale calibration"]),
-                     ("Temperature", c["environment"]["temperature"]),
-                     ("Image file", f"{c['image']['name']}, {c['image']['size']}")):
-            many(k.lower(), [k, v])
+        for label, v in traceability_rows(c):
+            many(label.lower(), [label, v])
     else:
         for k in ("lot", "part", "customer", "tolerance", "period", "operators", "n_records"):
             one(k, c.get(k))
-        for k, v in c.get("counts") or []:
+        for k, v in lot_counts_rows(c) if c.get("counts") else []:
             many(f"count of '{k}'", [k, v], ordered=False)
-        from .pdf import lot_parts_table, lot_spread_rows
-
         for row in lot_spread_rows(c):
             many(f"{row[0].lower()} statistics", row[1:], ordered=False)
         for x in c.get("capability") or []:
@@ -344,8 +339,7 @@ def _page_text_check(v: Verification, content: dict, store, doc) -> None:
 
     from pypdf import PdfReader
 
-    from ..records.documents import load_record_image
-    from .pdf import render_certificate, render_lot_report
+    from .layout import render_certificate, render_lot_report
 
     def texts(path) -> set[str]:
         return {t for rs in page_runs(PdfReader(str(path))) for _, _, t in rs}
@@ -378,16 +372,12 @@ def _page_text_check(v: Verification, content: dict, store, doc) -> None:
 
 
 def _record_checks(v: Verification, content: dict, store, doc) -> None:
-    from ..records.store import canonical_json  # noqa: F401
-
     if doc.kind == "certificate":
         try:
             rec = store.get(doc.record_id)
         except RinggaugeError as exc:
             v.check(False, f"record: {exc}")
             return
-        from .pdf import _results_rows
-
         problems = []
         if rec.content_sha256 != content.get("record_checksum"):
             problems.append("its checksum differs from the one printed")
@@ -407,8 +397,6 @@ def _record_checks(v: Verification, content: dict, store, doc) -> None:
         v.check(not problems, f"record: the printed results are record {rec.id}'s" if not problems else
                 f"record: record {rec.id} does not match — {'; '.join(problems)}")
     else:
-        from .pdf import _canonical_digest
-
         try:
             ids = [int(r["record"]) for r in content.get("rows") or []]
             recs = [store.get(i) for i in ids]
@@ -428,8 +416,6 @@ def verify_pdf(path: str | os.PathLike, store=None) -> Verification:
     """Check a certificate or lot report (see the module's docstring for each check)."""
     from pypdf import PdfReader
     from pypdf.errors import PdfReadError
-
-    from .pdf import CONTENT_FILE, content_checksum
 
     from ..settings import read_regular_bytes
 

@@ -212,7 +212,7 @@ def test_training_log_needs_a_name_and_survives_a_damaged_line(rg_home):
 
 @pytest.mark.slow
 def test_lot_is_kept_in_the_records_and_certified(lot_page, qtbot, sample_dir, tmp_path):
-    pytest.importorskip("ringgauge.records.documents")
+    pytest.importorskip("ringgauge.certificates")
     from ringgauge.records import RecordFilter, open_store
 
     page = lot_page

@@ -105,7 +105,7 @@ def test_real_engine_measures_a_synthetic_lens(app, qtbot, rg_home, tmp_path):
 
 @pytest.mark.slow
 def test_keep_a_result_and_issue_its_certificate(app, qtbot, fake_engine, sample_dir, rg_home, tmp_path):
-    pytest.importorskip("ringgauge.records.documents")
+    pytest.importorskip("ringgauge.certificates")
     from ringgauge.records import open_store
 
     w = make_window(qtbot, fake_engine, rg_home)

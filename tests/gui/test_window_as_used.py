@@ -270,7 +270,7 @@ def test_ctrl_k_keeps_and_ctrl_p_prints(app, qtbot, sample_dir, rg_home, tmp_pat
 
 
 def test_print_a_result_and_a_certificate_to_pdf(app, qtbot, sample_dir, rg_home, tmp_path):
-    pytest.importorskip("ringgauge.records.documents")
+    pytest.importorskip("ringgauge.certificates")
     w = make_window(qtbot, FakeEngine(), rg_home)
     assert not w.a_print.isEnabled() and w.print_to(_pdf_printer(tmp_path / "none.pdf")) is False
     _open(qtbot, w, sample_dir / "lens-A01.png")

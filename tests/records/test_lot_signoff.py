@@ -113,7 +113,7 @@ def _pdf_text(path) -> str:
 
 
 def test_lot_report_read_back(lot_store, tmp_path):
-    from ringgauge.records.documents import issue_lot_report
+    from ringgauge.certificates import issue_lot_report
 
     doc, path = issue_lot_report(lot_store, "FH-T", tmp_path / "lot.pdf", {"name": "Test Shop (invented)"})
     text = _pdf_text(path)
@@ -257,7 +257,7 @@ def test_lot_sheet_given_but_missing_or_too_large(tmp_path, capsys):
 def test_radius_only_lot_report_verifies_against_its_store(lot_store, tmp_path):
     """A lot of lenses on a flat prints no power column; verification must read the cells that were printed
     (it once expected a power cell in every parts row and failed every such lot report)."""
-    from ringgauge.records.documents import issue_lot_report
+    from ringgauge.certificates import issue_lot_report
     from ringgauge.report.verify import verify_pdf
 
     _doc, path = issue_lot_report(lot_store, "FH-T", tmp_path / "lot.pdf", {"name": "Test Shop (invented)"})

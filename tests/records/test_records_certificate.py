@@ -14,8 +14,9 @@ from pypdf import PdfReader, PdfWriter
 from ringgauge.errors import InputError
 from ringgauge.imaging import save_png, sha256_file
 from ringgauge.records import RecordMeta, open_store
-from ringgauge.records.documents import issue_certificate, issue_lot_report, power_limits_from_tolerance, reprint
-from ringgauge.report.pdf import CONTENT_FILE, verify_pdf
+from ringgauge.certificates import issue_certificate, issue_lot_report, power_limits_from_tolerance, reprint
+from ringgauge.report.content import CONTENT_FILE
+from ringgauge.report.verify import verify_pdf
 from ringgauge.shop import load_shop, save_shop
 from records_sample import SHOP
 

@@ -15,7 +15,7 @@ from cryptography.x509.oid import NameOID
 
 from ringgauge.cli import main
 from ringgauge.records import RecordMeta, open_store
-from ringgauge.records.documents import issue_certificate
+from ringgauge.certificates import issue_certificate
 from ringgauge.report import signing
 from ringgauge.report.verify import verify_pdf
 

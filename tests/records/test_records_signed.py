@@ -21,8 +21,10 @@ from records_sample import SHOP
 
 from ringgauge.cli import main
 from ringgauge.records import RecordMeta, open_store
-from ringgauge.records.documents import issue_certificate, issue_lot_report, load_record_image
-from ringgauge.report.pdf import CONTENT_FILE, content_checksum, render_certificate
+from ringgauge.certificates import issue_certificate, issue_lot_report
+from ringgauge.report.content import load_record_image
+from ringgauge.report.content import CONTENT_FILE, content_checksum
+from ringgauge.report.layout import render_certificate
 from ringgauge.report.verify import verify_pdf
 
 
@@ -282,7 +284,7 @@ def test_signature_stripped(issued, tmp_path):
 def legacy(tmp_path, make_result, monkeypatch):
     """A certificate issued before signing existed: rendered and numbered, no signature, no file kept."""
     monkeypatch.setenv("RINGGAUGE_HOME", str(tmp_path / "home"))
-    from ringgauge.report.pdf import certificate_content
+    from ringgauge.report.content import certificate_content
 
     store = open_store(tmp_path / "r.sqlite")
     rec = store.add(RecordMeta(part="PCX-25-50", serial="0007", operator="A. Kestrel",

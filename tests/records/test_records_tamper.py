@@ -308,7 +308,7 @@ def test_upgrade_seals_old_records_and_says_so(sqlite_path, make_result):
 
 
 def test_hand_made_supersede_is_refused_or_flagged_manual(filled, capsys, tmp_path, make_result):
-    from ringgauge.records.documents import issue_certificate
+    from ringgauge.certificates import issue_certificate
     from pypdf import PdfReader
 
     f = tmp_path / "edited.json"

@@ -1,5 +1,10 @@
 """Issuing certificates and lot reports: number them in the store, keep their content, write the PDF.
 
+This module sits above both :mod:`ringgauge.records` (the store that numbers and keeps documents) and
+:mod:`ringgauge.report` (what a document says, its layout, its signature, its verification): records never
+imports report, report reads the store only through a store object it is given, and the command line and the
+window issue documents through here.
+
 A certificate is issued once per record; asking again reprints the issued content (same number, same
 content checksum) unless a new issue is asked for. A lot report is issued anew each time (the lot may have
 grown), and any issued document can be reprinted by its number.
@@ -13,9 +18,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..errors import InputError
-from .lot import summarise_lot
-from .store import IssuedDocument, RecordFilter, Store
+from .errors import InputError
+from .records.lot import summarise_lot
+from .records.store import IssuedDocument, RecordFilter, Store
+from .report.content import load_record_image
 
 
 def power_limits_from_tolerance(tolerance: str | None, wavelength_nm: float | None = None
@@ -27,7 +33,7 @@ def power_limits_from_tolerance(tolerance: str | None, wavelength_nm: float | No
     height)."""
     if not tolerance:
         return None
-    from ..form.tolerance import parse_tolerance
+    from .form.tolerance import parse_tolerance
 
     tol = parse_tolerance(tolerance)
     if tol.power is None:
@@ -36,26 +42,11 @@ def power_limits_from_tolerance(tolerance: str | None, wavelength_nm: float | No
     return (-a, a)
 
 
-def load_record_image(record):
-    """The record's image for the figures, if the file is still there and unchanged: (image01, note)."""
-    from ..imaging import load_frame
-
-    if not record.image_path:
-        return None, "Image not shown: the record names no image file."
-    try:
-        frame = load_frame(record.image_path)
-    except InputError as exc:
-        return None, f"Image not shown: {exc}."
-    if record.image_sha256 and frame.sha256 != record.image_sha256:
-        return None, (f"Image not shown: {record.image_path} has changed since the measurement "
-                      "(its checksum differs from the record's).")
-    return frame.data, None
-
-
 def issue_certificate(store: Store, record_id: int, out: str | Path, shop: dict, *, paper: str | None = None,
                       approver: str | None = None, new_issue: bool = False) -> tuple[IssuedDocument, Path, bool]:
     """Issue (or reprint) the certificate of a record; returns (document, path, reprinted)."""
-    from ..report.pdf import certificate_content, render_certificate
+    from .report.content import certificate_content
+    from .report.layout import render_certificate
 
     signer = prepare_signer(shop)
     rec = store.get(record_id)
@@ -85,8 +76,9 @@ def issue_lot_report(store: Store, lot: str, out: str | Path, shop: dict, *, pap
                      tolerance: str | None = None, radius_limits=None, approver: str | None = None,
                      chart_out: str | Path | None = None) -> tuple[IssuedDocument, Path]:
     """Issue a lot report from the lot's current records."""
-    from ..report.pdf import lot_report_content, render_lot_report
-    from .lot import chart_png
+    from .records.lot import chart_png
+    from .report.content import lot_report_content
+    from .report.layout import render_lot_report
 
     signer = prepare_signer(shop)
     records = store.find(RecordFilter(lot=lot))
@@ -117,7 +109,7 @@ def _lot_wavelength(records) -> float | None:
 
 def reprint(store: Store, number: str, out: str | Path, *, paper: str = "A4") -> tuple[IssuedDocument, Path]:
     """Lay out an issued document again from its stored content."""
-    from ..report.pdf import render_certificate, render_lot_report
+    from .report.layout import render_certificate, render_lot_report
 
     doc = store.document(number)
     signer = prepare_signer({})
@@ -148,7 +140,7 @@ def _refuse_broken_record(store: Store, record_id: int) -> None:
 def prepare_signer(shop: dict):
     """The shop's signer, ready before anything is numbered or written (a key is made if there is none; a
     passphrase is asked for now), so a key that cannot be used stops the issue before it starts."""
-    from ..report.signing import ensure_key, load_signer
+    from .report.signing import ensure_key, load_signer
 
     ensure_key(shop)
     return load_signer()
@@ -160,7 +152,7 @@ def sign_and_keep(store: Store, doc: IssuedDocument, path: Path, shop: dict, sig
     If signing or keeping fails, the unsigned file is removed: no unsigned copy is left looking issued."""
     import hashlib
 
-    from ..report.signing import sign_pdf_file, signature_box
+    from .report.signing import sign_pdf_file, signature_box
 
     try:
         if signer is None:
