@@ -189,7 +189,7 @@ class CalibrationDialog(QDialog):
         return True
 
     def _done(self, _token, run) -> None:
-        from ..commands.calibrate import format_calibration  # the command line's own report
+        from ..report.calibration_text import format_calibration  # the command line's own report
 
         self.b_run.setEnabled(True)
         self.result = run
