@@ -27,6 +27,7 @@ demo: $(STAMP)
 	@bash scripts/demo.sh
 
 test: $(STAMP)
+	@$(VENV)/bin/lint-imports --no-cache
 	@$(PY) -m pytest -q -n auto --dist loadfile
 
 bench: $(STAMP)
