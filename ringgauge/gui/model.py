@@ -16,7 +16,7 @@ from typing import Any, Callable, Sequence
 from ..bench_setup import BenchSetup
 from ..errors import AnalysisError, InputError, RinggaugeError
 from ..imaging import IMAGE_SUFFIXES, Frame, load_frame
-from ..sources import custom_source, get_source
+from ..setup_options import SetupOptions, build_setup, inspection_pairs
 
 ProgressFn = Callable[[float, str], None]
 AnalyseFn = Callable[..., Any]
@@ -135,15 +135,6 @@ class SetupState:
         return replace(base, **kw)
 
     # -- derived values -------------------------------------------------------------------------------
-    def light_source(self):
-        if self.source == CUSTOM:
-            return custom_source(
-                _as_float("wavelength", self.custom_wavelength_nm),
-                _as_float("wavelength uncertainty", self.custom_wavelength_u_nm),
-                _as_float("source bandwidth", self.custom_fwhm_nm) or 0.0,
-            )
-        return get_source(self.source)
-
     def index(self) -> tuple[float, float]:
         if self.medium in MEDIA:
             _, n, u = MEDIA[self.medium]
@@ -152,54 +143,38 @@ class SetupState:
             raise InputError(f"unknown gap medium '{self.medium}'; choose {', '.join(MEDIA)} or custom")
         return _as_float("gap medium index", self.medium_index), _as_float("index uncertainty", self.medium_index_u)
 
-    def to_bench_setup(self, *, overrides: "Overrides | None" = None) -> BenchSetup:
-        """Build the engine's :class:`BenchSetup`; raises :class:`InputError` with the panel's wording."""
-        from . import integrations
-
-        kw: dict[str, Any] = {}
-        extras: dict[str, Any] = {}
-        if self.bench_profile:
-            pk, warnings = integrations.profile_setup_kwargs(self.bench_profile)
-            # the panel's own choice of lamp and gap medium wins over the profile's suggestion
-            kw.update({k: v for k, v in pk.items() if k not in ("source", "medium_index", "medium_index_u")})
-            if warnings:
-                extras["bench_warnings"] = list(warnings)
-        else:
-            kw["pixel_size_um"] = _as_float("pixel size", self.pixel_size_um)
-            kw["pixel_size_u_um"] = _as_float("pixel size uncertainty", self.pixel_size_u_um)
-        n, nu = self.index()
-        if self.operator.strip():
-            extras["operator"] = self.operator.strip()
-        details = self.inspection_details()
-        if details:
-            extras["inspection"] = details
-        if overrides is not None:
-            extras.update(overrides.as_extras())
-        if self.gap_change not in ("increasing", "decreasing"):
-            raise InputError(f"gap change must be 'increasing' or 'decreasing', got {self.gap_change!r}")
-        extras["gap_change"] = self.gap_change
-        plate = integrations.plate_dict(self.test_plate) if self.test_plate else None
-        tol = self.tolerance.strip() or None
-        if tol:
-            integrations.check_tolerance(tol)
+    def to_options(self, *, overrides: "Overrides | None" = None, motion_sign: dict | None = None) -> SetupOptions:
+        """The panel's choices (and the hand settings, and the live view's sign evidence) as typed set-up options;
+        raises :class:`InputError` with the panel's wording for a field that is not a number."""
+        src: dict[str, Any] = {"source": self.source}
+        if self.source == CUSTOM:
+            src = dict(wavelength_nm=_as_float("wavelength", self.custom_wavelength_nm),
+                       wavelength_u_nm=_as_float("wavelength uncertainty", self.custom_wavelength_u_nm),
+                       bandwidth_nm=_as_float("source bandwidth", self.custom_fwhm_nm) or 0.0)
+        scale: dict[str, Any] = {"bench": self.bench_profile}
+        if not self.bench_profile:
+            scale = dict(pixel_size_um=_as_float("pixel size", self.pixel_size_um),
+                         pixel_size_u_um=_as_float("pixel size uncertainty", self.pixel_size_u_um))
+        n, nu = self.index()  # the panel's gap medium wins over a bench profile's suggestion
         diameter = _as_float("test diameter", self.test_diameter_mm, allow_none=True)
         if diameter is not None and diameter <= 0:
-            diameter = None
-        # no test diameter: the form is evaluated over the clear aperture found, as on the command line
-        return BenchSetup(
-            source=self.light_source(),
-            medium_index=n,
-            medium_index_u=nu,
-            fringe_kind=self.fringe_kind,
-            test_diameter_mm=diameter,
-            tolerance=tol,
-            test_plate=plate,
-            decision_rule=self.decision_rule or "simple",
-            press_test=self.press_test or None,
+            diameter = None  # no test diameter: the form is evaluated over the clear aperture found, as on the CLI
+        ov = overrides or Overrides()
+        return SetupOptions(
+            **src, **scale, medium_index=n, medium_index_u=nu, fringe_kind=self.fringe_kind,
+            test_diameter_mm=diameter, tolerance=self.tolerance.strip() or None,
+            test_plate=self.test_plate or None, press_test=self.press_test or None,
+            decision_rule=self.decision_rule or "simple", gap_change=self.gap_change,
             radius_tolerance=self.radius_tolerance.strip() or None,
-            extras=extras,
-            **kw,
+            centre_px=ov.centre_px, aperture_px=ov.aperture_px, aperture_size="radius",
+            operator=self.operator.strip() or None, inspection=tuple(self.inspection_details().items()), motion_sign=motion_sign,
         )
+
+    def to_bench_setup(self, *, overrides: "Overrides | None" = None, motion_sign: dict | None = None) -> BenchSetup:
+        """Build the engine's :class:`BenchSetup` through the one set-up builder (the command line's too); raises
+        :class:`InputError` with a one-line message. A bench profile's warnings travel in ``bench_warnings``."""
+        setup, _warnings = build_setup(self.to_options(overrides=overrides, motion_sign=motion_sign))
+        return setup
 
 
 @dataclass(frozen=True)
@@ -213,7 +188,8 @@ class Overrides:
     def empty(self) -> bool:
         return self.centre_px is None and self.aperture_px is None
 
-    def as_extras(self) -> dict:
+    def to_dict(self) -> dict:
+        """The hand settings for the overlay (``centre_px``, ``aperture_px`` = x, y, radius), set ones only."""
         d: dict[str, Any] = {}
         if self.centre_px is not None:
             d["centre_px"] = tuple(float(v) for v in self.centre_px)
@@ -229,6 +205,18 @@ class Overrides:
             x, y, r = self.aperture_px
             parts.append(f"aperture set by hand: radius {r:.1f} px about ({x:.1f}, {y:.1f}) px")
         return "; ".join(parts) or "no manual settings"
+
+
+def with_bench_warnings(result):
+    """The result with its set-up's bench-profile warnings (calibration overdue, y scale not measured) at the head
+    of its own, as the command line prints them: the window's warnings list, the saved JSON and the record then
+    show them. A result that already carries them (a lot's stored one) is returned as it is."""
+    setup = getattr(result, "setup", None)
+    have = tuple(getattr(result, "warnings", None) or ())
+    extra = tuple(w for w in (getattr(setup, "bench_warnings", None) or ()) if w not in have)
+    if not extra or not is_dataclass(result) or not hasattr(result, "warnings"):
+        return result
+    return replace(result, warnings=extra + have)
 
 
 class _Cancelled(Exception):
@@ -356,14 +344,10 @@ class BenchSession:
     def _details_to_result(self) -> None:
         res = self.result
         setup = getattr(res, "setup", None)
-        if res is None or not hasattr(setup, "extras") or not is_dataclass(res):
+        if res is None or not isinstance(setup, BenchSetup) or not is_dataclass(res):
             return
-        extras = {k: v for k, v in setup.extras.items() if k not in ("inspection", "operator")}
-        if self.setup.operator.strip():
-            extras["operator"] = self.setup.operator.strip()
-        if self.setup.inspection_details():
-            extras["inspection"] = self.setup.inspection_details()
-        self.result = replace(res, setup=replace(setup, extras=extras))
+        self.result = replace(res, setup=replace(setup, operator=self.setup.operator.strip() or None,
+                                                 inspection=inspection_pairs(self.setup.inspection_details())))
 
     def replace_setup(self, state: SetupState) -> None:
         if state != self.setup:
@@ -466,9 +450,7 @@ class BenchSession:
         """Snapshot the inputs for one analysis. Raises :class:`InputError` when they are incomplete."""
         if not self.frames:
             raise InputError("no image open; open an interferogram first (File > Open, or drop a file)")
-        setup = self.setup.to_bench_setup(overrides=self.overrides)
-        if self.sign_evidence:
-            setup = replace(setup, extras={**setup.extras, "motion_sign": self.sign_evidence})
+        setup = self.setup.to_bench_setup(overrides=self.overrides, motion_sign=self.sign_evidence)
         job = Job(self.generation, self.frames, setup, self.overrides, self.analyse_fn)
         if self._job is not None and self._job.generation != job.generation:
             self._job.cancelled = True
@@ -498,7 +480,7 @@ class BenchSession:
             return False
         self._job = None
         self.busy = False
-        self.result = result
+        self.result = with_bench_warnings(result)
         self.stale = False
         self.error = None
         self.changed.emit("result")
@@ -539,8 +521,7 @@ class BenchSession:
         except RinggaugeError as exc:
             self.fail(job, str(exc))
             raise
-        self.accept(job, result)
-        return result
+        return self.result if self.accept(job, result) else result
 
 
 class FolderWatch:

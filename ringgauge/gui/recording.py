@@ -66,10 +66,9 @@ def save_records(items: Sequence[ToRecord], *, lot: str | None, operator: str | 
 
 
 def _item_meta(base, it: ToRecord):
-    """The record details of one item: the set-up panel's inspection details (kept in the set-up's extras),
-    the serial defaulting to the image's name."""
-    extras = getattr(getattr(it.result, "setup", None), "extras", None) or {}
-    details = {k: v for k, v in (extras.get("inspection") or {}).items() if v}
+    """The record details of one item: the set-up panel's inspection details (kept in the set-up's
+    ``inspection``), the serial defaulting to the image's name."""
+    details = {k: v for k, v in (getattr(getattr(it.result, "setup", None), "inspection", None) or ()) if v}
     if base.lot:
         details.pop("serial", None)  # a lot's images each have their own serial: their names
     meta = base.with_(**{k: v for k, v in details.items() if getattr(base, k, None) is None})

@@ -493,7 +493,7 @@ class MainWindow(QMainWindow):
             if what == "setup" and self.autosave:
                 self.prefs.save_setup(s.setup)
             page.view.set_overlay(display.overlay_from(s.result.to_dict() if s.result else None,
-                                                       s.overrides.as_extras()))
+                                                       s.overrides.to_dict()))
             self._sync_undo()
             if what == "overrides":
                 page.hint.setText(s.overrides.describe())
@@ -520,7 +520,7 @@ class MainWindow(QMainWindow):
             self.a_print.setEnabled(False)
             page.results.show_error(s.error or "")
             page.plots.clear()
-            page.view.set_overlay(display.overlay_from(None, s.overrides.as_extras()))
+            page.view.set_overlay(display.overlay_from(None, s.overrides.to_dict()))
             self.set_status(f"Analysis failed: {s.error}" if s.frames else f"No measurement: {s.error}")
 
     def show_result(self) -> None:
@@ -528,12 +528,12 @@ class MainWindow(QMainWindow):
         d = s.result.to_dict() if s.result is not None else None
         self._residual_cache = None
         page.results.show_result(d)
-        page.view.set_overlay(display.overlay_from(d, s.overrides.as_extras()))
+        page.view.set_overlay(display.overlay_from(d, s.overrides.to_dict()))
         page.plots.show_result(d, form_obj=getattr(s.result, "form", None),
                                shape=s.frames[0].shape if s.frames else None)
         if self.residual_on:
             self._show_photo()
-        ignored = display.overrides_ignored(d, s.overrides.as_extras())
+        ignored = display.overrides_ignored(d, s.overrides.to_dict())
         if ignored:
             self.bench.show_notice("The analysis did not use your hand-set " + " and ".join(ignored)
                                    + ": this engine finds its own. Treat the result with care or clear the "

@@ -40,8 +40,10 @@ def test_setup_to_bench_setup_media_sources_and_messages():
     b = SetupState(tolerance="3/2(0.5)").to_bench_setup()
     assert b.tolerance == "3/2(0.5)" and b.test_diameter_mm is None
     ov = Overrides(centre_px=(10.0, 20.0))
-    assert SetupState(operator=" ab ").to_bench_setup(overrides=ov).extras == {
-        "operator": "ab", "centre_px": (10.0, 20.0), "gap_change": "increasing"}
+    b = SetupState(operator=" ab ").to_bench_setup(overrides=ov)
+    assert (b.operator, b.centre_px, b.gap_change) == ("ab", (10.0, 20.0), "increasing")
+    # nothing else was set by hand or typed
+    assert (b.aperture_px, b.inspection, b.motion_sign, b.bench_warnings) == (None, (), None, ())
 
 
 # -- session -----------------------------------------------------------------------------------------------------------

@@ -79,7 +79,7 @@ def test_inspection_details_reach_the_record_serial_defaults_to_the_image(app, q
                       ("order", "TG-1"), ("surface", "S1")):
         _type(qtbot, panel.details[key], text)
     _type(qtbot, panel.operator, "A. Tester")
-    qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.extras.get("inspection", {}).get("surface")
+    qtbot.waitUntil(lambda: analysed(w)() and dict(w.session.result.setup.inspection).get("surface")
                     == "S1", timeout=60000)
     store = str(tmp_path / "records.sqlite")
     assert w.keep_result(target=store)
@@ -145,8 +145,8 @@ def test_details_change_no_measurement_and_a_new_image_clears_the_serial(app, qt
     s.update_setup(serial="SN-7", part="PCX-1000", operator="A. Tester")
     assert seen == ["details"] and not getattr(s, "stale", False)  # no new analysis for who and what
     assert s.result.radius_mm == before.radius_mm
-    assert s.result.setup.extras["inspection"] == {"serial": "SN-7", "part": "PCX-1000"}
-    assert s.result.setup.extras["operator"] == "A. Tester"
+    assert dict(s.result.setup.inspection) == {"serial": "SN-7", "part": "PCX-1000"}
+    assert s.result.setup.operator == "A. Tester"
     s.update_setup(radius_tolerance="995..1005")
     assert seen[-1] == "setup"  # a tolerance changes the verdict: analysed again
     s.open_paths([str(LOT / "FH2604-02.png")])

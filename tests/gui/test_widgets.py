@@ -178,5 +178,5 @@ def test_decision_rule_and_sign_evidence_both_ways(panel):
     assert (s.setup.decision_rule, s.setup.press_test, s.setup.gap_change) == ("simple", "", "increasing")
     panel.press.setCurrentIndex(panel.press.findData("rings-shrink"))
     b = s.setup.to_bench_setup()
-    assert b.press_test == "rings-shrink" and b.extras["gap_change"] == "increasing"
+    assert b.press_test == "rings-shrink" and b.gap_change == "increasing"
     assert b.decision_rule == "simple"

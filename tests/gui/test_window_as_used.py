@@ -202,7 +202,7 @@ def test_hand_set_aperture_is_analysed_again_and_clear_redo_round_trip(app, qtbo
     assert w.session.overrides.aperture_px == (160.0, 128.0, 60.0)
     assert w.bench.view.overlay.aperture_by_hand and w.bench.view.mode == "look"
     qtbot.waitUntil(lambda: eng.calls > calls and analysed(w)(), timeout=10000)
-    assert w.session.result.setup.extras["aperture_px"] == (160.0, 128.0, 60.0)  # the engine was told
+    assert w.session.result.setup.aperture_px == (160.0, 128.0, 60.0)  # the engine was told
     assert w.a_clear.isEnabled()
     w.a_clear.trigger()
     assert w.session.overrides.empty and not w.bench.view.overlay.aperture_by_hand

@@ -24,7 +24,7 @@ def test_manual_centre_with_undo(app, qtbot, fake_engine, sample_dir, rg_home):
     assert w.bench.view.mode == "look" and w.a_undo.isEnabled()
     assert w.bench.results.banner.word.text() == "ANALYSING"
     # the engine is told
-    qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.extras.get("centre_px") == (120.0, 100.0),
+    qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.centre_px == (120.0, 100.0),
                     timeout=10000)
     # the hand-made engine keeps its own centre: the window says the hand setting was not used
     assert "did not use your hand-set centre" in w.bench.notice.text()
