@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
 )
 
 from ..errors import RinggaugeError
-from . import display, integrations
+from . import display
 from .lot import COLUMNS, DONE, FAILED, QUEUED, RUNNING, Lot
 from .model import BenchSession, _Cancelled
 from .results_panel import ResultsPanel
@@ -164,12 +164,10 @@ class LotPage(QWidget):
         self.b_export = QPushButton("Export CSV…")
         self.b_keep = QPushButton("Keep in records")
         self.b_keep.setToolTip("Store every analysed image of the lot in the inspection records")
-        self.b_keep.setEnabled(integrations.records_available())
+        self.b_keep.setEnabled(True)
         self.b_certs = QPushButton("Certificates…")
         self.b_certs.setEnabled(False)
-        self.b_certs.setToolTip("Certificates of the kept records and a lot report, as PDF files"
-                                if integrations.certificates_available() else
-                                "This build cannot issue certificates")
+        self.b_certs.setToolTip("Certificates of the kept records and a lot report, as PDF files")
         self.folder_label = ElidedLabel("No lot open")
         self.folder_label.setObjectName("imageTitle")
         self.folder_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
@@ -535,7 +533,7 @@ class LotPage(QWidget):
                     self.lot.rows[i].record_id = rid
             self.message.setText(f"Kept {len(value)} images of lot {self.lot.name} in the inspection records "
                                  f"(records {min(value)}–{max(value)})")
-            self.b_certs.setEnabled(integrations.certificates_available())
+            self.b_certs.setEnabled(True)
             self.b_keep.setEnabled(True)
         else:
             self.kept_paths = list(value)
@@ -544,7 +542,7 @@ class LotPage(QWidget):
 
     def _paper_failed(self, token, message: str) -> None:
         self.message.setText(message)
-        self.b_keep.setEnabled(integrations.records_available())
+        self.b_keep.setEnabled(True)
         self.b_certs.setEnabled(any(r.record_id is not None for r in self.lot.rows))
 
     def wait_paper(self, msecs: int = 60000) -> bool:

@@ -34,7 +34,7 @@ from .. import __version__
 from ..errors import RinggaugeError
 from ..imaging import IMAGE_SUFFIXES
 from ..sources import SAFETY_NOTES
-from . import display, integrations
+from . import display
 from .image_view import LAYERS, ImageView
 from .lot_view import LotPage
 from .model import BenchSession, FolderWatch, Job
@@ -264,7 +264,7 @@ class MainWindow(QMainWindow):
                                  QKeySequence.StandardKey.Print, tip="Print the result on a printer (or to PDF)")
         self.a_print_cert = self._act("Print certi&ficate…", lambda: self.print_dialog("certificate"),
                                       tip="Print the certificate issued last")
-        self.a_keep.setEnabled(integrations.records_available())
+        self.a_keep.setEnabled(True)
         self.a_cert.setEnabled(False)
         self.a_print.setEnabled(False)
         self.a_print_cert.setEnabled(False)
@@ -671,7 +671,7 @@ class MainWindow(QMainWindow):
     def _paper_done(self, token, value) -> None:
         if token[0] == "keep":
             self.kept_record = (token[1], value[0])
-            self.a_cert.setEnabled(integrations.certificates_available() and token[1] is self.session.result)
+            self.a_cert.setEnabled(token[1] is self.session.result)
             self.set_status(f"Kept as inspection record {value[0]}")
         else:
             self.last_certificate = value[0]
