@@ -34,6 +34,44 @@ def test_manual_centre_with_undo(app, qtbot, fake_engine, sample_dir, rg_home):
     assert w.session.overrides.empty and "at least 8 px" in w.status.text()
 
 
+def test_hand_set_centre_is_kept_with_the_result_and_the_record(app, qtbot, fake_engine, sample_dir, rg_home,
+                                                                tmp_path):
+    from ringgauge.records import open_store
+
+    w = make_window(qtbot, fake_engine, rg_home)
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    w.set_mode("centre")
+    w.bench.view.centrePicked.emit(120.0, 100.0)
+    qtbot.waitUntil(lambda: analysed(w)() and w.session.result.setup.centre_px == (120.0, 100.0), timeout=10000)
+    assert w.session.result.to_dict()["setup"]["centre_px"] == [120.0, 100.0]
+    store = str(tmp_path / "records.sqlite")
+    assert w.keep_result(target=store)
+    qtbot.waitUntil(lambda: w.kept_record is not None, timeout=20000)
+    with open_store(store) as st:
+        rec = st.get(w.kept_record[1])
+    # what shaped the result is kept with it: the record's set-up and its result's set-up
+    assert rec.setup["centre_px"] == [120.0, 100.0]
+    assert rec.result["setup"]["centre_px"] == [120.0, 100.0]
+
+
+def test_bench_profile_warnings_are_shown_with_the_result(app, qtbot, fake_engine, sample_dir, rg_home):
+    from ringgauge.calibration import profiles
+    from ringgauge.gui.model import SetupState
+
+    # calibrated in 2020 with a 180-day interval: overdue on any day these tests run
+    profiles.record_calibration("Bench Q", profiles.hand_entry(16.0, 0.02, date="2020-01-02"),
+                                recalibration_days=180)
+    w = make_window(qtbot, fake_engine, rg_home, setup=SetupState(source="sodium-d", bench_profile="Bench Q"))
+    w.open_paths([str(sample_dir / "lens-A01.png")])
+    qtbot.waitUntil(analysed(w), timeout=10000)
+    overdue = [t for t in w.session.result.setup.bench_warnings if "re-calibration interval" in t]
+    assert overdue
+    shown = [w.bench.results.warnings.item(i).text() for i in range(w.bench.results.warnings.count())]
+    assert overdue[0] in shown and "hand-made result" in shown  # the engine's own warnings stay
+    assert overdue[0] in w.session.result.to_dict()["warnings"]  # so also in a saved result and a record
+
+
 def test_layers_residual_view_and_help(app, qtbot, fake_engine, sample_dir, rg_home):
     w = make_window(qtbot, fake_engine, rg_home)
     w.open_paths([str(sample_dir / "lens-A01.png")])
