@@ -18,6 +18,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from . import physics
 from .errors import InputError
 from .records.lot import summarise_lot
 from .records.store import IssuedDocument, RecordFilter, Store
@@ -38,7 +39,7 @@ def power_limits_from_tolerance(tolerance: str | None, wavelength_nm: float | No
     tol = parse_tolerance(tolerance)
     if tol.power is None:
         return None
-    a = tol.power * (tol.wavelength_nm / wavelength_nm if wavelength_nm else 1.0)
+    a = physics.fringes_at(tol.power, tol.wavelength_nm, wavelength_nm) if wavelength_nm else tol.power
     return (-a, a)
 
 

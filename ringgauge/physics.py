@@ -1,4 +1,5 @@
-"""Newton's-rings relations the engine measures with (ring fit, radius, training exercises).
+"""Newton's-rings relations, in one place: the engine, the synthetic images' fringe-rate check, the training
+exercises and the documents use these rather than writing a formula again.
 
 Reflection, gap medium index n, lens radius R resting on a flat:
 dark rings r_m^2 = m lambda R / n, bright rings r_m^2 = (m - 1/2) lambda R / n. A least-squares line
@@ -70,3 +71,19 @@ def power_from_radius(r_part_mm: float, plate_radius_mm: float, diameter_mm: flo
     lam_mm = wavelength_nm * 1e-6
     return (1.0 / r_part_mm - 1.0 / plate_radius_mm) * diameter_mm**2 / (4.0 * lam_mm)
 
+
+
+def fringe_height_nm(wavelength_nm: float, medium_index: float = 1.0) -> float:
+    """Change of gap (nm) between neighbouring fringes in reflection: lambda / (2 n)."""
+    return wavelength_nm / (2.0 * medium_index)
+
+
+def fringes_at(fringes: float, from_wavelength_nm: float, to_wavelength_nm: float) -> float:
+    """A height given in fringes of one wavelength, in fringes of another: N * lambda_from / lambda_to (the
+    height N lambda_from / 2 is the same)."""
+    return fringes * (from_wavelength_nm / to_wavelength_nm)
+
+
+def fringe_frequency_per_mm(r_mm, radius_mm: float, wavelength_nm: float, medium_index: float = 1.0):
+    """Fringes per mm at radius r of Newton's rings: d(n r^2 / (lambda R))/dr = 2 n r / (lambda R)."""
+    return 2.0 * medium_index * r_mm / (radius_mm * wavelength_nm * 1e-6)

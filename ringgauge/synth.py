@@ -18,6 +18,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 from scipy import ndimage
 
+from . import physics
 from .sources import LightSource, get_source
 
 GLASS_INDEX = 1.52
@@ -266,7 +267,7 @@ def newton_rings(
     # finest fringe: at the farthest corner, cycles per pixel = d(2 n t / lambda)/dr * pixel
     far = max(np.hypot(x - cx, y - cy) for x in (0, W - 1) for y in (0, H - 1))
     rfar = far * max(px, py)
-    freq = 2 * medium_index * rfar / (radius_mm * src.wavelength_nm * 1e-6) * max(px, py)
+    freq = physics.fringe_frequency_per_mm(rfar, radius_mm, src.wavelength_nm, medium_index) * max(px, py)
     truth = {
         "kind": "newton_rings",
         "radius_mm": float(radius_mm),

@@ -17,7 +17,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from ..physics import part_radius_mm, power_from_radius  # noqa: F401 - also used by the tests
+from ..physics import part_radius_mm, power_from_radius
 from ..settings import home
 from ..sources import get_source
 from ..synth import Camera, Dust, Lighting, SurfaceForm, test_plate_fringes

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import synth
+from .. import physics, synth
 from ..errors import InputError
 from ..sources import LightSource, get_source
 
@@ -103,7 +103,7 @@ def render_sequence(
     if plan.contact == "edge" and rim < far_mm:
         raise InputError("the bearing rim of an edge-contact sequence must lie outside the field")
     sag_rim_nm = float(synth.sphere_sag_mm(rim * rim, plan.radius_mm)) * 1e6
-    freq = 2 * medium_index * far_mm / (plan.radius_mm * src.wavelength_nm * 1e-6) * max(px, py)
+    freq = physics.fringe_frequency_per_mm(far_mm, plan.radius_mm, src.wavelength_nm, medium_index) * max(px, py)
     for i, t0 in enumerate(plan.gap_offsets_nm()):
 
         def gap(x_mm, y_mm, t0=t0):
