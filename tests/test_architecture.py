@@ -23,11 +23,9 @@ QT = "Qt is imported only by the window (ringgauge.gui)"
 DB = "Only the inspection records (ringgauge.records) talk to a database"
 LAYERS = "Layers: each package imports only from the layers below it"
 
-pytestmark = pytest.mark.skipif(not LINT.exists(), reason="import-linter is not installed (pip install -e '.[test]')")
-
-
 def lint(where: Path) -> subprocess.CompletedProcess:
     """lint-imports with the project's own contracts, on the ``ringgauge`` package found in ``where``."""
+    assert LINT.exists(), "lint-imports is missing: install the test extra (pip install -e '.[test]')"
     env = {**os.environ, "PYTHONPATH": str(where), "NO_COLOR": "1"}
     return subprocess.run([str(LINT), "--no-cache", str(where / "pyproject.toml")], cwd=where, env=env,
                           capture_output=True, text=True, timeout=300)
