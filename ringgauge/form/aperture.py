@@ -463,16 +463,40 @@ def _rim_circle(tab, circle, aspect, xtol=1e-3):
         mins = T.min(axis=1)
         ex = T - mins[:, None]
 
-        def cost(p, ex=ex.ravel(), row=np.arange(ex.shape[0]) * eg.size):
-            e = crossing(p) - base
-            pos = (e - eg[0]) / (eg[1] - eg[0])
-            inside = (pos >= 0) & (pos <= eg.size - 1)
-            i0 = np.minimum(np.maximum(np.floor(pos), 0), eg.size - 2).astype(np.intp)
-            f = np.minimum(np.maximum(pos - i0, 0), 1)
+        def cost(p, ex=ex.ravel(), row=np.arange(ex.shape[0]) * eg.size, eg0=eg[0], deg=eg[1] - eg[0],
+                 last=eg.size - 1, bufs=[np.empty(c.size) for _ in range(4)]):
+            # the crossing (see crossing()) and the interpolated table, with the same arithmetic in place: the
+            # minimiser calls this some thousand times, and allocations cost as much as the sums
+            dx, dyy, r = p
+            pos, a, f, v = bufs
+            np.multiply(c, dx, out=pos)
+            np.multiply(sn, dyy, out=a)
+            pos += a  # pu
+            np.multiply(pos, pos, out=a)
+            a += r * r - dx * dx - dyy * dyy
+            np.maximum(a, 0.0, out=a)
+            np.sqrt(a, out=a)
+            a += pos  # the crossing
+            np.subtract(a, base, out=pos)
+            pos -= eg0
+            pos /= deg
+            inside = (pos >= 0) & (pos <= last)
+            np.floor(pos, out=a)
+            np.clip(a, 0, last - 1, out=a)
+            i0 = a.astype(np.intp)
+            np.subtract(pos, a, out=f)
+            np.clip(f, 0, 1, out=f)
             at = row + i0  # flat index of each ray's lower neighbour in the table
-            v = (1 - f) * ex[at] + f * ex[at + 1]
-            v = np.where(inside, v, cap)
-            return float(np.sum(v / (1 + v / cap)))
+            np.subtract(1, f, out=a)
+            a *= ex.take(at)
+            at += 1
+            np.multiply(f, ex.take(at), out=v)
+            v += a
+            np.copyto(v, cap, where=~inside)
+            np.divide(v, cap, out=a)
+            a += 1
+            v /= a
+            return float(np.sum(v))
 
         # start from the per-ray best positions
         e_best = eg[np.argmin(ex, axis=1)] + base
@@ -540,30 +564,40 @@ def _edge_basis(t, e, sig):
 def _ray_frequencies(norm, centre, theta, base, aspect, in_px):
     """Each ray's fringe frequency (radians per pixel) just inside its departure radius ``base``, quantised to
     steps of 8 % so rays of about the same frequency share one model; 0 where the fringes are too wide for a
-    quadratic not to follow them over ``in_px``, or none is seen.
+    quadratic not to follow them over ``in_px``, or no clear fringe is seen.
 
-    The strongest tone of the linearly detrended profile over the 20 px inside (a Hann-windowed Fourier sum
-    over trial periods of 2.5-40 px)."""
+    The strongest tone of the linearly detrended profile over the 32 px inside (a Hann-windowed Fourier sum
+    over trial periods of 2.5-64 px); it counts when one and a half periods fit in the stretch and a sinusoid
+    of that frequency explains at least 60 % of the profile's variance (dust, noise or a wide fringe's curve
+    do not), on more than a dozen rays."""
     H, W = norm.shape
     ds = 0.25
-    x = np.arange(1.0, 21.0, ds)  # inward from the departure point, px
+    x = np.arange(1.0, 33.0, ds)  # inward from the departure point, px
     rr = base[:, None] - x[None, :]
     xs = centre[0] + rr * np.cos(theta)[:, None]
     ys = centre[1] + rr * np.sin(theta)[:, None] / aspect
     seg = ndimage.map_coordinates(norm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1, mode="nearest")
     X = np.stack([np.ones_like(x), x - x.mean()], axis=1)
     seg = seg - (seg @ np.linalg.pinv(X).T) @ X.T
-    periods = np.geomspace(2.5, 40.0, 80)
+    periods = np.geomspace(2.5, 64.0, 100)
     kk = 2 * np.pi / periods
     E = np.exp(-1j * np.outer(x, kk)) * np.hanning(x.size)[:, None]
     best = kk[np.argmax(np.abs(seg @ E), axis=1)]
-    # a tone needs a full period within the stretch; the quadratic serves while the stretch fitted is under
-    # about a sixth of a period
-    use = (2 * np.pi / best <= x[-1] - x[0]) & (best * in_px > 1.0)
+    # share of the variance a sinusoid of that frequency explains (per-ray 2 x 2 normal equations)
+    cs, sn = np.cos(best[:, None] * x[None, :]), np.sin(best[:, None] * x[None, :])
+    a11, a12, a22 = (cs * cs).sum(1), (cs * sn).sum(1), (sn * sn).sum(1)
+    b1, b2 = (cs * seg).sum(1), (sn * seg).sum(1)
+    det = a11 * a22 - a12 * a12
+    with np.errstate(divide="ignore", invalid="ignore"):
+        fitted = (a22 * b1 * b1 - 2 * a12 * b1 * b2 + a11 * b2 * b2) / det
+        share = fitted / np.maximum((seg * seg).sum(1), 1e-300)
+    use = (2 * np.pi / best <= (x[-1] - x[0]) / 1.5) & (best * in_px > 1.0) & (share >= 0.6)
     step = math.log(1.08)
-    kq = np.exp(np.round(np.log(best) / step) * step)
-    return np.where(use, kq, 0.0)
-
+    kq = np.where(use, np.exp(np.round(np.log(best) / step) * step), 0.0)
+    # a frequency seen on a dozen rays or fewer is left out (a speck of dust, a glint; each frequency costs a
+    # model of its own)
+    vals, inv, cnt = np.unique(kq, return_inverse=True, return_counts=True)
+    return np.where(cnt[inv] > 12, kq, 0.0)
 
 def _fringe_edge_basis(t, e, sig, k):
     """Columns of the blurred-edge model with a fringe of ``k`` radians per pixel inside: plate level and slope
