@@ -134,31 +134,39 @@ def test_radius_report_says_which_uncertainty_is_u_and_which_is_U(radius_result)
     assert "8.0000 ± 0.0080 µm/px" in text and "expanded uncertainties, k = 2" in text
 
 
-def test_form_report_uses_the_trades_names_and_prints_each_warning_once():
+@pytest.fixture(scope="module")
+def plate_result():
+    from ringgauge.bench_setup import BenchSetup
+    from ringgauge.pipeline import analyse_files
+    from ringgauge.sources import get_source
+
+    setup = BenchSetup(source=get_source("mercury-e"), pixel_size_um=25.0, pixel_size_u_um=0.02,
+                       test_diameter_mm=18.0)
+    return analyse_files([str(sorted((SAMPLES / "testplate").glob("*.png"))[0])], setup)
+
+
+def test_form_report_uses_the_trades_names_and_prints_each_warning_once(plate_result):
+    from dataclasses import replace
+
+    from ringgauge.conformity import TermVerdict, Verdict
+    from ringgauge.form.tolerance import parse_tolerance
     from ringgauge.report.form_text import format_form
     from ringgauge.report.text import format_result
 
-    form = {
-        "k": 2.0, "wavelength_nm": 546.074, "fringe_nm": 273.037,
-        "aperture": {"diameter_mm": 20.0, "diameter_u_mm": 0.01, "centre_px": [100.0, 100.0]},
-        "test_diameter_mm": 18.0, "test_diameter_source": "given", "masks": [],
-        "sign": {"sign": "unknown", "detail": "one frame"},
-        "tolerance": {"text": "3/2(0.5/0.3) RMSt < 0.5", "wavelength_nm": 546.074, "wavelength_stated": False},
-        "verdict": {"overall": "pass", "decision_rule": "simple acceptance", "terms": [
-            {"term": "rot_sym_irregularity", "value_fringes": 0.1, "U_fringes": 0.01, "limit_fringes": 0.3,
-             "verdict": "pass"},
-            {"term": "rms_total", "value_fringes": 0.2, "U_fringes": 0.01, "limit_fringes": 0.5, "verdict": "pass"},
-        ]},
-        "warnings": ["weak fringe contrast (0.04)"],
-    }
+    def term(name, value, limit):
+        return TermVerdict(name, value, 0.01, limit, "fringes", value, 0.01, limit, value * 273.037, 546.074,
+                           False, "pass")
+
+    verdict = Verdict("pass", (term("rot_sym_irregularity", 0.1, 0.3), term("rms_total", 0.2, 0.5)),
+                      decision_rule="simple acceptance")
+    form = replace(plate_result.form, tolerance=parse_tolerance("3/2(0.5/0.3) RMSt < 0.5"), verdict=verdict,
+                   warnings=("weak fringe contrast (0.04)",))
     text = format_form(form)
     assert "rot_sym" not in text and "rms_total" not in text
-    assert "rotationally symmetric irregularity (C)" in text and "RMSt" in text
+    verdicts = text.split("Tolerance")[1]  # the names in the verdict lines, not only in the table of terms
+    assert "rotationally symmetric irregularity (C)" in verdicts and "RMSt" in verdicts
     assert text.count("weak fringe contrast") == 1
-    d = {"image": {"path": "p.png", "width": 10, "height": 10, "bit_depth": 8, "channel": "grey", "sha256": "0" * 64},
-         "setup": {"pixel_size_um": [25.0, 25.0], "pixel_size_u_um": [0.02, 0.02], "source": {"name": "Hg e"},
-                   "wavelength_nm": 546.074, "wavelength_u_nm": 0.001, "medium_index": 1.0},
-         "ringgauge_version": "x", "form": form, "warnings": ["weak fringe contrast (0.04)", "another"]}
+    d = replace(plate_result, form=form, warnings=("weak fringe contrast (0.04)", "another"))
     full = format_result(d)
     assert full.count("weak fringe contrast") == 1 and "another" in full
 

@@ -122,7 +122,7 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(text)
     else:
-        print(format_result(d))
+        print(format_result(result, warnings=d["warnings"]))
     if getattr(args, "record", False):
         _keep(args, result, d)
     return 0

@@ -1,17 +1,17 @@
-"""What the window draws, worked out in plain Python from a result's ``to_dict()`` (no Qt, no computing of
-measurements: only the geometry, text and arrays the widgets paint).
+"""What the window draws, worked out in plain Python from a typed result (no Qt, no computing of measurements:
+only the geometry, text and arrays the widgets paint). The results table renders :mod:`ringgauge.presentation`.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
-
 import numpy as np
 
-from ..report.labels import term_label
-from ..uncertainty import format_value, round_uncertainty
+from .. import presentation
+from ..form.result import FormResult
+from ..result import AnalysisResult
+from ..uncertainty import round_uncertainty
 
 
 # -- the photograph -------------------------------------------------------------------------------------------
@@ -86,97 +86,79 @@ def _num(v) -> float | None:
     return f if math.isfinite(f) else None
 
 
-def _aspect(d: dict) -> float:
+def _aspect(result: AnalysisResult) -> float:
     """Pixel size along y over pixel size along x (1 for square pixels)."""
-    try:
-        px, py = d["setup"]["pixel_size_um"]
-        return float(py) / float(px)
-    except (KeyError, TypeError, ValueError, ZeroDivisionError):
-        return 1.0
+    px, py = result.setup.pixel_size_xy_um
+    return float(py) / float(px) if px else 1.0
 
 
-def _find(d: Any, *keys: str):
-    """First value found under any of ``keys`` in a nested dict (depth-first)."""
-    if isinstance(d, dict):
-        for k in keys:
-            if k in d and d[k] is not None:
-                return d[k]
-        for v in d.values():
-            got = _find(v, *keys)
-            if got is not None:
-                return got
-    return None
-
-
-def overlay_from(d: dict | None, overrides: dict | None = None) -> Overlay:
-    """Overlay shapes from a result dict (``AnalysisResult.to_dict()``) and the manual overrides."""
+def overlay_from(result: AnalysisResult | None, overrides: dict | None = None) -> Overlay:
+    """Overlay shapes from a result and the manual overrides."""
     ov = Overlay()
     overrides = overrides or {}
-    if d:
-        aspect = _aspect(d)
-        c = d.get("centre_px")
-        if c and _num(c[0]) is not None and _num(c[1]) is not None:
+    if result is not None:
+        aspect = _aspect(result)
+        c = result.centre_px
+        if c is not None and _num(c[0]) is not None and _num(c[1]) is not None:
             ov.centre = (float(c[0]), float(c[1]))
-        for r in (d.get("fringes") or {}).get("rings", []) or []:
-            rp = _num(r.get("radius_px"))
+        for r in () if result.fit is None else result.fit.rings:
+            rp = _num(r.radius_px)
             if rp is None:
                 continue
-            ov.rings.append(RingShape(rp, rp / aspect, str(r.get("kind", "dark")), _num(r.get("order")) or 0.0,
-                                      bool(r.get("used", True))))
-        ap = _find(d.get("form"), "aperture") or _find(d.get("fullfield"), "aperture")
-        if isinstance(ap, dict):
-            cc = ap.get("centre_px")
-            dia = _num(ap.get("diameter_px"))
-            rad = _num(ap.get("radius_px")) or (dia / 2 if dia else None)
-            if cc and rad:
-                ov.aperture = (float(cc[0]), float(cc[1]), rad, rad / aspect)
-        masks = (d.get("form") or {}).get("masks") if isinstance(d.get("form"), dict) else None
-        if isinstance(masks, list):
-            for m in masks:
-                if isinstance(m, dict) and m.get("centre_px") and _num(m.get("area_px")):
-                    x, y = float(m["centre_px"][0]), float(m["centre_px"][1])
-                    ov.masks.append((x, y, max(2.0, math.sqrt(float(m["area_px"]) / math.pi))))
-        form = d.get("form") if isinstance(d.get("form"), dict) else {}
-        td = _num(form.get("test_diameter_mm"))
-        px = (d.get("setup") or {}).get("pixel_size_um") or []
-        if td and ov.aperture is not None and len(px) >= 2 and _num(px[0]) and _num(px[1]):
-            # the test diameter about the aperture's centre, in pixels along x and y
-            cx, cy = ov.aperture[0], ov.aperture[1]
-            ov.test_circle = (cx, cy, td / 2 * 1e3 / float(px[0]), td / 2 * 1e3 / float(px[1]))
-            ov.test_diameter_mm = td
-        axis = _num(form.get("astigmatism_axis_deg"))
-        if axis is not None and (_num(form.get("astigmatism_fringes")) or 0) > 0:
-            # the form evaluation counts the axis from +x toward +y (rows, down): clockwise on screen
-            ov.meridians = [(axis, "stronger meridian"), (axis + 90.0, "weaker meridian")]
+            ov.rings.append(RingShape(rp, rp / aspect, r.kind, _num(r.order) or 0.0, r.used))
+        form = result.form
+        if form is not None:
+            ap = form.aperture
+            ov.aperture = (float(ap.centre_px[0]), float(ap.centre_px[1]), float(ap.radius_px),
+                           float(ap.radius_px) / aspect)
+            for m in form.masks:
+                if m.area_px:
+                    ov.masks.append((float(m.centre_px[0]), float(m.centre_px[1]),
+                                     max(2.0, math.sqrt(float(m.area_px) / math.pi))))
+            td = _num(form.test_diameter_mm)
+            px, py = result.setup.pixel_size_xy_um
+            if td and px and py:
+                # the test diameter about the aperture's centre, in pixels along x and y
+                cx, cy = ov.aperture[0], ov.aperture[1]
+                ov.test_circle = (cx, cy, td / 2 * 1e3 / float(px), td / 2 * 1e3 / float(py))
+                ov.test_diameter_mm = td
+            axis = _num(form.astigmatism_axis.value)
+            try:
+                astig = form.term("astigmatism").fringes.value
+            except KeyError:
+                astig = 0.0
+            if axis is not None and astig > 0:
+                # the form evaluation counts the axis from +x toward +y (rows, down): clockwise on screen
+                ov.meridians = [(axis, "stronger meridian"), (axis + 90.0, "weaker meridian")]
     if overrides.get("centre_px") is not None:
         ov.centre = tuple(float(v) for v in overrides["centre_px"])  # type: ignore[assignment]
         ov.centre_by_hand = True
     if overrides.get("aperture_px") is not None:
         x, y, r = (float(v) for v in overrides["aperture_px"])
-        aspect = _aspect(d) if d else 1.0
+        aspect = _aspect(result) if result is not None else 1.0
         ov.aperture = (x, y, r, r / aspect)
         ov.aperture_by_hand = True
     return ov
 
 
-def overrides_ignored(d: dict | None, overrides: dict | None, *, tol_px: float = 3.0) -> list[str]:
+def overrides_ignored(result: AnalysisResult | None, overrides: dict | None, *, tol_px: float = 3.0) -> list[str]:
     """Which hand settings the result does not reflect (the engine found its own centre or aperture).
 
-    The window passes a hand-set centre and aperture to the engine in ``setup.extras``; an engine that does not
+    The window passes a hand-set centre and aperture to the engine in the set-up; an engine that does not
     read them finds its own. The operator must know when that happened."""
     out: list[str] = []
-    if not d or not overrides:
+    if result is None or not overrides:
         return out
     c = overrides.get("centre_px")
-    rc = d.get("centre_px")
-    if c is not None and rc and math.hypot(float(rc[0]) - c[0], float(rc[1]) - c[1]) > tol_px:
+    rc = result.centre_px
+    if c is not None and rc is not None and math.hypot(float(rc[0]) - c[0], float(rc[1]) - c[1]) > tol_px:
         out.append(f"centre (the result's centre is at {float(rc[0]):.1f}, {float(rc[1]):.1f} px)")
     a = overrides.get("aperture_px")
-    ap = ((d.get("form") or {}).get("aperture") or {}) if isinstance(d.get("form"), dict) else {}
-    if a is not None and ap.get("centre_px") and _num(ap.get("diameter_px")):
-        off = math.hypot(ap["centre_px"][0] - a[0], ap["centre_px"][1] - a[1])
-        if off > tol_px or abs(float(ap["diameter_px"]) / 2 - a[2]) > tol_px:
-            out.append(f"aperture (the result's aperture is {float(ap['diameter_px']):.0f} px across)")
+    if a is not None and result.form is not None:
+        ap = result.form.aperture
+        off = math.hypot(ap.centre_px[0] - a[0], ap.centre_px[1] - a[1])
+        if off > tol_px or abs(float(ap.radius_px) - a[2]) > tol_px:
+            out.append(f"aperture (the result's aperture is {2 * float(ap.radius_px):.0f} px across)")
     return out
 
 
@@ -196,195 +178,55 @@ def _fmt(v: float | None, digits: int = 6) -> str:
     return f"{v:.{digits}g}"
 
 
-def _fmt_pair(value: float | None, U: float | None) -> tuple[str, str]:  # noqa: N803
-    """Value and expanded uncertainty rounded together (U to two significant digits)."""
-    if value is None:
-        return "—", "—"
-    if U is None or not math.isfinite(U) or U <= 0:
-        return f"{value:.6g}", "not available"
-    text = format_value(value, U, "").strip()
-    val, _, unc = text.partition(" ± ")
-    return val, "± " + unc.strip()
-
-
-_SKIP = {"k", "U", "u", "unit", "value"}
-
-
-def _quantity_rows(d: dict, group: str, prefix: str = "") -> list[ValueRow]:
-    """Rows for every ``{"value", "unit", ...}`` entry in a nested dict (form results, fringes)."""
-    rows = []
-    for key, v in d.items():
-        if not isinstance(v, dict):
-            continue
-        if "value" in v and "unit" in v:
-            val = _num(v.get("value"))
-            U = _num(v.get("U"))
-            if U is None and _num(v.get("u")) is not None:
-                U = _num(v.get("u")) * (_num(v.get("k")) or 2.0)
-            a, b = _fmt_pair(val, U)
-            label = (prefix + key).replace("_", " ")
-            rows.append(ValueRow(label[:1].upper() + label[1:], a, b, str(v.get("unit", "")), group))
-        elif key not in ("setup", "budget", "aperture", "rings"):
-            rows.extend(_quantity_rows(v, group, prefix=f"{key} "))
-    return rows
-
-
-def value_rows(d: dict | None) -> list[ValueRow]:
-    """Every value the result carries, with unit and expanded uncertainty (k as stated in the result)."""
-    if not d:
-        return []
-    rows: list[ValueRow] = []
-    k = _num(d.get("k")) or 2.0
-    R, U = _num(d.get("radius_mm")), _num(d.get("radius_U_mm"))
-    if R is not None:
-        a, b = _fmt_pair(R, U)
-        rows.append(ValueRow("Radius of curvature R", a, b, "mm", "Radius"))
-        if U is not None and R:
-            rel = 100 * U / abs(R)
-            rows.append(ValueRow("Relative U", f"{rel:.2g}" if rel >= 0.01 else f"{1e4 * rel:.2g}",
-                                 "—", "%" if rel >= 0.01 else "ppm", "Radius"))
-        rows.append(ValueRow("Coverage factor k", f"{k:g}", "—", "", "Radius"))
-        budget = d.get("budget") or {}
-        dof = _num(budget.get("dof_eff"))
-        dof_text = "∞" if dof is None else ("> 1000" if dof > 1000 else f"{dof:.0f}")
-        rows.append(ValueRow("Degrees of freedom", dof_text, "—", "", "Radius"))
-    c, cu = d.get("centre_px"), d.get("centre_u_px")
-    if c:
-        for i, axis in enumerate("xy"):
-            v = _num(c[i])
-            u = _num(cu[i]) if cu else None
-            a, b = _fmt_pair(v, None if u is None else k * u)
-            rows.append(ValueRow(f"Ring centre {axis}", a, b, "px", "Rings"))
-    fr = d.get("fringes") or {}
-    if fr:
-        s, su = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("slope_u_mm2_per_fringe"))
-        a, b = _fmt_pair(s, None if su is None else k * su)
-        rows.append(ValueRow("Slope of r²", a, b, "mm²/fringe", "Rings"))
-        off = _num(fr.get("contact_offset_fringes"))
-        if off is not None:
-            rows.append(ValueRow("Contact offset", f"{off:.3f}", "—", "fringes", "Rings"))
-        rows.append(ValueRow("Rings used", str(fr.get("rings_used", "—")), "—", "", "Rings"))
-        rmin, rmax = _num(fr.get("r_min_mm")), _num(fr.get("r_max_mm"))
-        if rmin is not None and rmax is not None:
-            rows.append(ValueRow("Ring radii used", f"{rmin:.3f} – {rmax:.3f}", "—", "mm", "Rings"))
-        redchi = _num(fr.get("redchi"))
-        if redchi is not None:
-            rows.append(ValueRow("Reduced chi-square", f"{redchi:.3g}", "—", "", "Rings"))
-    form = d.get("form")
-    if isinstance(form, dict):
-        rows.extend(form_rows(form))
-    setup = d.get("setup") or {}
-    if setup:
-        lam, lamu = _num(setup.get("wavelength_nm")), _num(setup.get("wavelength_u_nm"))
-        a, b = _fmt_pair(lam, None if lamu is None else k * lamu)
-        rows.append(ValueRow("Wavelength λ", a, b, "nm", "Set-up"))
-        px = setup.get("pixel_size_um") or []
-        pu = setup.get("pixel_size_u_um") or []
-        for i, axis in enumerate("xy"[: len(px)]):
-            a, b = _fmt_pair(_num(px[i]), None if i >= len(pu) or _num(pu[i]) is None else k * _num(pu[i]))
-            rows.append(ValueRow(f"Pixel size {axis}", a, b, "µm", "Set-up"))
-        n, nu = _num(setup.get("medium_index")), _num(setup.get("medium_index_u"))
-        a, b = _fmt_pair(n, None if not nu else k * nu)
-        rows.append(ValueRow("Gap medium index n", a, b if nu else "exact (air)", "", "Set-up"))
-    el = _num(d.get("elapsed_s"))
-    if el is not None:
-        rows.append(ValueRow("Analysis time", f"{el:.2f}", "—", "s", "Run"))
-    return rows
-
-
-#: form terms as the form evaluation names them, with the labels the table shows (ISO 10110-5 letters)
-FORM_LABELS = (
-    ("power_fringes", "Power (A)"),
-    ("astigmatism_fringes", "Astigmatism"),
-    ("irregularity_fringes", "Irregularity (B)"),
-    ("rot_sym_irregularity_fringes", "Rot. symmetric irregularity (C)"),
-    ("rms_total_fringes", "RMSt"),
-    ("rms_irregularity_fringes", "RMSi"),
-    ("rms_asymmetric_fringes", "RMSa"),
-    ("pv_total_fringes", "PV after piston and tilt"),
-)
-
-
-def form_rows(form: dict) -> list[ValueRow]:
-    """Rows for a form result's ``to_dict()``: terms in fringes (U = k·u), power in nm, axis, sign, aperture,
-    masks and the radius deviation against the plate."""
-    g = "Surface form"
-    k = _num(form.get("k")) or 2.0
-    rows: list[ValueRow] = []
-    fr_nm = _num(form.get("fringe_nm"))
-    if fr_nm is not None:
-        rows.append(ValueRow("One fringe (λ/2n)", f"{fr_nm:.2f}", "—", "nm", g))
-    for key, label in FORM_LABELS:
-        v = _num(form.get(key))
-        if v is None:
-            continue
-        u = _num(form.get(key.replace("_fringes", "_u_fringes")))
-        a, b = _fmt_pair(v, None if u is None else k * u)
-        rows.append(ValueRow(label, a, b, "fringes", g))
-        if key in ("power_fringes", "irregularity_fringes"):
-            vn = _num(form.get(key.replace("_fringes", "_nm")))
-            un = _num(form.get(key.replace("_fringes", "_u_nm")))
-            if vn is not None:
-                a, b = _fmt_pair(vn, None if un is None else k * un)
-                rows.append(ValueRow(label + " in nm", a, b, "nm", g))
-    sign = form.get("sign") or {}
-    if sign:
-        rows.append(ValueRow("Power sign", str(sign.get("sign", "unknown")), "—", "", g))
-    ax = _num(form.get("astigmatism_axis_deg"))
-    if ax is not None:
-        au = _num(form.get("astigmatism_axis_u_deg"))
-        a, b = _fmt_pair(ax, None if au is None else k * au)
-        rows.append(ValueRow("Astigmatism axis", a, b, "°", g))
-    td = _num(form.get("test_diameter_mm"))
-    if td is not None:
-        rows.append(ValueRow("Test diameter", f"{td:g}", "—", "mm", g))
-    ap = form.get("aperture") or {}
-    ad, adu = _num(ap.get("diameter_mm")), _num(ap.get("diameter_u_mm"))
-    if ad is not None:
-        a, b = _fmt_pair(ad, None if adu is None else k * adu)
-        rows.append(ValueRow("Aperture diameter", a, b, "mm", g))
-    mf = _num(form.get("masked_fraction"))
-    if mf is not None:
-        rows.append(ValueRow("Masked (dust, glare)", f"{100 * mf:.1f}", "—", "%", g))
-    rad = form.get("radius") or {}
-    if rad:
-        gr = "Against the test plate"
-        plate = rad.get("plate") or {}
-        if plate.get("id"):
-            rows.append(ValueRow("Test plate", str(plate["id"]), "—", "", gr))
-        v, U = _num(rad.get("delta_r_mm")), _num(rad.get("delta_r_U_mm"))
-        if v is not None:
-            a, b = _fmt_pair(v, U)
-            rows.append(ValueRow("Radius deviation ΔR", a, b, "mm", gr))
-        v, U = _num(rad.get("surface_radius_mm")), _num(rad.get("surface_radius_U_mm"))
-        if v is not None:
-            a, b = _fmt_pair(v, U)
-            rows.append(ValueRow("Surface radius", a, b, "mm", gr))
-        elif rad.get("surface_radius_candidates_mm"):
-            c = rad["surface_radius_candidates_mm"]
-            rows.append(ValueRow("Surface radius (sign unknown)", f"{c[0]:.4f} or {c[1]:.4f}", "—", "mm", gr))
-    return rows
-
-
-def budget_rows(d: dict | None) -> list[list[str]]:
-    """The uncertainty budget as table rows: quantity, estimate, u, distribution, c_i, contribution, share."""
-    b = (d or {}).get("budget") or {}
-    if not b:
-        rad = (((d or {}).get("form") or {}).get("radius") or {})
-        b = rad.get("budget_surface_radius") or rad.get("budget_delta_r") or {}
+def table_rows(rows: list[presentation.Row]) -> list[ValueRow]:
+    """Presentation rows as the window's table shows them: value, "± U" (or why there is none), unit. A form
+    term's value in nm gets a row of its own for power and irregularity."""
     out = []
-    unit = b.get("unit", "")
-    for r in b.get("rows", []) or []:
-        out.append([
-            str(r.get("quantity", "")),
-            f"{_fmt(_num(r.get('estimate')))} {r.get('estimate_unit', '')}".strip(),
-            _fmt(_num(r.get("u")), 3),
-            str(r.get("distribution", "")),
-            f"{_fmt(_num(r.get('sensitivity')), 3)} {r.get('sensitivity_unit', '')}".strip(),
-            f"{_fmt(_num(r.get('contribution')), 3)} {unit}".strip(),
-            f"{100 * (_num(r.get('share')) or 0):.1f} %",
-        ])
+    for r in rows:
+        out.append(_table_row(r.label, r, r.value))
+        if r.alt is not None and r.key.removeprefix("form.") in presentation.NM_ROWS:
+            out.append(_table_row(r.label + " in nm", r, r.alt))
     return out
+
+
+def _table_row(label: str, r: presentation.Row, q) -> ValueRow:
+    if q is None or r.value is None or (r.kind not in (presentation.MEASURED, presentation.SETTING)
+                                        and q.U is None):
+        return ValueRow(label, presentation.figure_text(r), presentation.no_U_text(r), r.shown_unit, r.section)
+    a, b = presentation.value_and_U(q.value, q.U, decimals=r.decimals)
+    return ValueRow(label, a, presentation.no_U_text(r) if b is None else "± " + b, q.unit, r.section)
+
+
+def value_rows(result: AnalysisResult | None) -> list[ValueRow]:
+    """Every value the result carries, with unit and expanded uncertainty (k as stated in the result)."""
+    return table_rows(presentation.rows(result))
+
+
+def form_rows(form: FormResult) -> list[ValueRow]:
+    """Rows of a form result: terms in fringes (U = k·u), power and irregularity in nm, sign, axis, test
+    diameter, aperture, masks, and the radius against the test plate."""
+    return table_rows(presentation.form_rows(form) + presentation.plate_rows(form))
+
+
+def budget_rows(result: AnalysisResult | None) -> list[list[str]]:
+    """The uncertainty budget as table rows: quantity, estimate, u, distribution, c_i, contribution, share."""
+    if result is None:
+        return []
+    b = result.budget
+    if b is None and result.form is not None and result.form.radius is not None:
+        rad = result.form.radius
+        b = rad.budget_surface_radius or rad.budget_delta_r
+    if b is None:
+        return []
+    return [[
+        r.quantity,
+        f"{_fmt(_num(r.estimate))} {r.estimate_unit}".strip(),
+        _fmt(_num(r.u), 3),
+        r.distribution,
+        f"{_fmt(_num(r.sensitivity), 3)} {r.sensitivity_unit}".strip(),
+        f"{_fmt(_num(r.contribution), 3)} {b.output_unit}".strip(),
+        f"{100 * (_num(r.share) or 0):.1f} %",
+    ] for r in b.rows]
 
 
 # -- the verdict --------------------------------------------------------------------------------------------
@@ -399,27 +241,7 @@ class VerdictView:
     headline: str = ""  # the key values, large enough to read from a step back
 
 
-def headline(d: dict | None) -> str:
-    """The values an inspector reads first: R ± U, or power and irregularity ± U in fringes."""
-    if not d:
-        return ""
-    k = _num(d.get("k")) or 2.0
-    R, U = _num(d.get("radius_mm")), _num(d.get("radius_U_mm"))
-    if R is not None:
-        a, b = _fmt_pair(R, U)
-        return f"R = {a} {b if b.startswith('±') else ''} mm".replace("  ", " ") + f"  (k = {k:g})"
-    form = d.get("form") if isinstance(d.get("form"), dict) else None
-    if form:
-        kf = _num(form.get("k")) or 2.0
-        parts = []
-        for key, label in (("power_fringes", "Power"), ("irregularity_fringes", "Irregularity")):
-            v, u = _num(form.get(key)), _num(form.get(key.replace("_fringes", "_u_fringes")))
-            if v is not None:
-                a, b = _fmt_pair(v, None if u is None else kf * u)
-                parts.append(f"{label} {a} {b if b.startswith('±') else ''}".rstrip())
-        if parts:
-            return " · ".join(parts) + f" fringes  (k = {kf:g})"
-    return ""
+headline = presentation.headline
 
 
 _VERDICTS = {
@@ -433,94 +255,85 @@ _VERDICTS = {
 }
 
 
-def verdict_view(d: dict | None) -> VerdictView:
-    v = (d or {}).get("verdict")
-    head = headline(d)
-    if not isinstance(v, dict):
-        if d and d.get("radius_mm") is not None:
+def verdict_view(result: AnalysisResult | None) -> VerdictView:
+    v = None if result is None else result.verdict
+    head = headline(result)
+    if v is None:
+        if result is not None and result.radius is not None:
             return VerdictView("MEASURED", "•", "none", "radius measured; no tolerance given, so no pass/fail", "",
                                headline=head)
         return VerdictView("NO RESULT", "–", "none", "open an image and analyse it", "")
-    overall = str(v.get("overall", "not evaluated")).lower()
+    overall = str(v.overall or "not evaluated").lower()
     word, sym, tone, expl = _VERDICTS.get(overall, (overall.upper(), "?", "none", ""))
     terms = []
-    for t in v.get("terms", []) or []:
-        if isinstance(t, dict):
-            name = term_label(str(t.get("term") or t.get("name") or "term"))  # the trade's name, not the key
-            status = str(t.get("status") or t.get("verdict") or "").upper()
-            val = _num(t.get("value", t.get("value_fringes")))
-            lim = _num(t.get("limit", t.get("limit_fringes")))
-            U = _num(t.get("U", t.get("U_fringes")))
-            unit = t.get("unit") or ("fringes" if "value_fringes" in t else "")
-            txt = f"{name}: {status}".strip(": ")
-            if val is not None and lim is not None:
-                a, b = _fmt_pair(val, U) if U is not None else (f"{val:.3g}", "")
-                pm = f" {b}" if b.startswith("±") else ""
-                txt += f" ({a}{pm} {unit}, limit {lim:g} {unit})".replace("  ", " ")
-            terms.append(txt)
-        else:
-            terms.append(str(t))
-    if v.get("meaning"):
-        expl = str(v["meaning"])
-    elif overall == "not evaluated" and v.get("reason"):
-        expl = str(v["reason"])
+    for t in v.terms:
+        name = presentation.term_label(t.term)  # the trade's name, not the key
+        txt = f"{name}: {str(t.verdict).upper()}".strip(": ")
+        val, lim = _num(t.value), _num(t.limit)
+        if val is not None and lim is not None:
+            a, b = presentation.value_and_U(val, _num(t.U))
+            if b is None:
+                a = f"{val:.3g}"
+            pm = "" if b is None else f" ± {b}"
+            txt += f" ({a}{pm} {t.unit}, limit {lim:g} {t.unit})".replace("  ", " ")
+        terms.append(txt)
+    if v.meaning:
+        expl = str(v.meaning)
+    elif overall == "not evaluated" and v.reason:
+        expl = str(v.reason)
     # with a term-by-term verdict the terms themselves carry the values; the headline would repeat them
-    return VerdictView(word, sym, tone, expl, str(v.get("decision_rule", "")), tuple(terms),
-                       "" if terms else head)
+    return VerdictView(word, sym, tone, expl, str(v.decision_rule or ""), tuple(terms), "" if terms else head)
 
 
 # -- plots ----------------------------------------------------------------------------------------------------
-def ring_plot_data(d: dict | None) -> dict | None:
+def ring_plot_data(result: AnalysisResult | None) -> dict | None:
     """r² against fringe order with the fitted line and the residuals (mm², µm² for residuals)."""
-    fr = (d or {}).get("fringes") or {}
-    rings = fr.get("rings") or []
-    if not rings:
+    fit = None if result is None else result.fit
+    if fit is None or not fit.rings:
         return None
-    order = np.array([_num(r.get("order")) or 0.0 for r in rings])
-    r2 = np.array([_num(r.get("r2_mm2")) or 0.0 for r in rings])
-    u = np.array([_num(r.get("u_r2_mm2")) or 0.0 for r in rings])
-    res = np.array([_num(r.get("residual_mm2")) or 0.0 for r in rings])
-    used = np.array([bool(r.get("used", True)) for r in rings])
-    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
+    rings = fit.rings
+    order = np.array([_num(r.order) or 0.0 for r in rings])
+    r2 = np.array([_num(r.r2_mm2) or 0.0 for r in rings])
+    u = np.array([_num(r.u_r2_mm2) or 0.0 for r in rings])
+    res = np.array([_num(r.residual_mm2) or 0.0 for r in rings])
+    used = np.array([bool(r.used) for r in rings])
     return {"order": order, "r2_mm2": r2, "u_r2_mm2": u, "residual_um2": res * 1e6, "used": used,
-            "slope_mm2": slope, "intercept_mm2": icpt}
+            "slope_mm2": _num(fit.slope_mm2), "intercept_mm2": _num(fit.intercept_mm2)}
 
 
-def profile_plot_data(d: dict | None) -> dict | None:
-    ff = (d or {}).get("fullfield") or {}
-    i = ff.get("profile_i")
-    if not i:
+def profile_plot_data(result: AnalysisResult | None) -> dict | None:
+    ff = None if result is None else result.fullfield
+    if ff is None or not ff.profile_i or not ff.profile_r_px:
         return None
-    if ff.get("profile_r_px"):
-        x = np.asarray(ff["profile_r_px"], dtype=float)
-        xlabel = "radius r / px"
-    elif ff.get("profile_s_px2"):
-        x = np.sqrt(np.clip(np.asarray(ff["profile_s_px2"], dtype=float), 0, None))
-        xlabel = "radius r / px"
-    else:
-        return None
-    extrema = np.asarray(ff.get("extrema_r_px") or [], dtype=float)
-    iv = np.asarray(i, dtype=float)
+    x = np.asarray(ff.profile_r_px, dtype=float)
+    iv = np.asarray(ff.profile_i, dtype=float)
     n = min(len(x), len(iv))
-    return {"r_px": x[:n], "intensity": iv[:n], "extrema_r_px": extrema, "xlabel": xlabel}
+    return {"r_px": x[:n], "intensity": iv[:n], "extrema_r_px": np.asarray(ff.extrema_r_px or (), dtype=float),
+            "xlabel": "radius r / px"}
 
 
-def ring_gap_map(d: dict | None, shape: tuple[int, int], *, step: int = 4) -> dict | None:
+def _ring_model(result: AnalysisResult | None):
+    """(slope mm²/fringe, intercept mm², centre px, pixel size µm (x, y), r_max mm) of the ring fit, or None."""
+    fit = None if result is None else result.fit
+    if fit is None or result.centre_px is None:
+        return None
+    slope, icpt = _num(fit.slope_mm2), _num(fit.intercept_mm2)
+    if slope is None or icpt is None or not slope:
+        return None
+    return slope, icpt, result.centre_px, result.setup.pixel_size_xy_um, _num(fit.r_max_mm)
+
+
+def ring_gap_map(result: AnalysisResult | None, shape: tuple[int, int], *, step: int = 4) -> dict | None:
     """The fitted gap (nm) over the field from the ring fit: gap = (r² - c) / slope fringes of λ/(2n).
 
     Returned on a grid subsampled by ``step`` (x, y extents in pixels). Used when the result carries no form
     map of its own (a lens on an optical flat).
     """
-    if not d:
+    model = _ring_model(result)
+    if model is None:
         return None
-    fr = d.get("fringes") or {}
-    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
-    c = d.get("centre_px")
-    setup = d.get("setup") or {}
-    lam, n = _num(setup.get("wavelength_nm")), _num(setup.get("medium_index")) or 1.0
-    px = setup.get("pixel_size_um") or []
-    if None in (slope, icpt, lam) or not c or len(px) < 2 or not slope:
-        return None
+    slope, icpt, c, px, rmax = model
+    lam, n = result.setup.wavelength_nm, result.setup.medium_index or 1.0
     H, W = shape
     ys = np.arange(0, H, step, dtype=float)
     xs = np.arange(0, W, step, dtype=float)
@@ -529,23 +342,22 @@ def ring_gap_map(d: dict | None, shape: tuple[int, int], *, step: int = 4) -> di
     r2 = dx[None, :] ** 2 + dy[:, None] ** 2
     fringes = (r2 - icpt) / slope
     gap_nm = fringes * lam / (2 * n)
-    rmax = _num(fr.get("r_max_mm"))
     if rmax is not None:
         gap_nm = np.where(r2 <= rmax * rmax, gap_nm, np.nan)
     return {"gap_nm": gap_nm, "extent_px": (0.0, float(W), float(H), 0.0), "title": "Fitted gap from the ring fit"}
 
 
-def form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
+def form_map(result: AnalysisResult | None, shape: tuple[int, int] | None = None) -> dict | None:
     """The surface-form map: the form result's own map when it has one, else the ring fit's gap.
 
     ``extent_px`` is (left, right, bottom, top) in image pixels; ``extent_mm`` the same in millimetres on the
     part, measured from the aperture's (or the rings') centre, when the pixel size is known."""
-    m = _form_map(d, form_obj, shape)
+    m = _form_map(result, shape)
     if m is None:
         return None
-    px = ((d or {}).get("setup") or {}).get("pixel_size_um") or []
-    centre = m.get("centre_px") or (d or {}).get("centre_px")
-    if len(px) >= 2 and _num(px[0]) and _num(px[1]) and centre:
+    px = result.setup.pixel_size_xy_um
+    centre = m.get("centre_px") or result.centre_px
+    if _num(px[0]) and _num(px[1]) and centre:
         x0, x1, y0, y1 = m["extent_px"]
         sx, sy = float(px[0]) * 1e-3, float(px[1]) * 1e-3
         cx, cy = float(centre[0]), float(centre[1])
@@ -585,22 +397,23 @@ def form_profile(m: dict | None, *, bins: int = 40) -> dict | None:
     return {"r_mm": mid[keep], "mean_nm": mean, "lo_nm": lo[keep], "hi_nm": hi[keep]}
 
 
-def _form_map(d: dict | None, form_obj=None, shape: tuple[int, int] | None = None) -> dict | None:
+def _form_map(result: AnalysisResult | None, shape: tuple[int, int] | None = None) -> dict | None:
     """The form result's own height map (the engine makes it, from the phase map or the gap fit, with the sign
     applied when known); without a form result, the ring fit's gap."""
-    m = getattr(form_obj, "height_map_nm", None) if form_obj is not None else None
+    if result is None:
+        return None
+    form = result.form
+    m = None if form is None else form.height_map_nm
     if m is not None and np.ndim(m) == 2:
         arr = np.asarray(m, dtype=float)
-        ext = getattr(form_obj, "map_extent_px", None)
+        ext = form.map_extent_px
         extent = tuple(ext) if ext is not None else (0.0, float(arr.shape[1]), float(arr.shape[0]), 0.0)
-        ap = getattr(form_obj, "aperture", None)
-        out = {"gap_nm": arr, "extent_px": extent, "title": "Surface form less piston and tilt"}
-        if ap is not None:
-            out["centre_px"] = (float(ap.centre_px[0]), float(ap.centre_px[1]))
-        return out
+        ap = form.aperture
+        return {"gap_nm": arr, "extent_px": extent, "title": "Surface form less piston and tilt",
+                "centre_px": (float(ap.centre_px[0]), float(ap.centre_px[1]))}
     if shape is None:
         return None
-    return ring_gap_map(d, shape)
+    return ring_gap_map(result, shape)
 
 
 def _cell_residual(img, m, rn, theta, *, annuli: int, sectors: int) -> np.ndarray:
@@ -630,23 +443,26 @@ def _cell_residual(img, m, rn, theta, *, annuli: int, sectors: int) -> np.ndarra
     return out.reshape(H, W)
 
 
-def residual_image(data: np.ndarray, d: dict | None, *, form_obj=None, annuli: int = 24,
+def residual_image(data: np.ndarray, result: AnalysisResult | None, *, form_obj=None, annuli: int = 24,
                    sectors: int = 12) -> np.ndarray | None:
     """Fit minus image, NaN where nothing was fitted.
 
     Rings on a flat: the fitted orders put dark rings at whole m = (r² − c) / slope. Form against a test plate:
     the gap fit gives m = gap in fringes (dark at whole fringes). The model is I = a − b cos 2πm; only the
     background a and the fringe amplitude b are taken from the image, cell by cell of annuli and angular sectors
-    (uneven lighting); the phase is the fit's own, so a wrong centre, slope or form shows as residual fringes."""
+    (uneven lighting); the phase is the fit's own, so a wrong centre, slope or form shows as residual fringes.
+    ``form_obj`` (default: the result's form) holds the engine's gap fits while the result is in memory."""
     img = np.asarray(data, dtype=np.float64)
     H, W = img.shape
     yy, xx = np.mgrid[0:H, 0:W]
-    if form_obj is not None and getattr(form_obj, "fits", None):
+    if form_obj is None and result is not None:
+        form_obj = result.form
+    if form_obj is not None and getattr(form_obj, "engine_fits", None):
         try:
             from ..form.fit import gap_basis
         except ImportError:
             return None
-        f = form_obj.fits[0]
+        f = form_obj.engine_fits[0]
         cx, cy = f.centre_px
         r, aspect = float(f.radius_px), float(f.aspect or 1.0)
         u, v = (xx - cx) / r, (yy - cy) * aspect / r
@@ -657,15 +473,10 @@ def residual_image(data: np.ndarray, d: dict | None, *, form_obj=None, annuli: i
         m[inside] = coeffs @ gap_basis(u[inside], v[inside], len(coeffs))
         return _cell_residual(img, m, np.where(inside, rn, 2.0), np.arctan2(v, u), annuli=annuli // 2,
                               sectors=sectors)
-    if not d:
+    model = _ring_model(result)
+    if model is None or model[4] is None:
         return None
-    fr = d.get("fringes") or {}
-    slope, icpt = _num(fr.get("slope_mm2_per_fringe")), _num(fr.get("intercept_mm2"))
-    c = d.get("centre_px")
-    px = (d.get("setup") or {}).get("pixel_size_um") or []
-    rmax = _num(fr.get("r_max_mm"))
-    if None in (slope, icpt, rmax) or not c or len(px) < 2 or not slope:
-        return None
+    slope, icpt, c, px, rmax = model
     dx = (xx - float(c[0])) * float(px[0]) * 1e-3
     dy = (yy - float(c[1])) * float(px[1]) * 1e-3
     r2 = dx * dx + dy * dy

@@ -474,7 +474,7 @@ class LotPage(QWidget):
         self.detail_title.setText(r.name)
         self.b_bench.setEnabled(True)
         if r.result is not None:
-            self.detail.show_result(r.result.to_dict())
+            self.detail.show_result(r.result)
         elif r.status == FAILED:
             self.detail.show_error(r.message)
         else:

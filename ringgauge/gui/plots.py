@@ -52,7 +52,7 @@ class PlotCanvas(QStackedWidget):
 
 
 class PlotPanel(QTabWidget):
-    """Three tabs of plots; :meth:`show_result` redraws them from a result dict. Only the tab in view is drawn
+    """Three tabs of plots; :meth:`show_result` redraws them from a typed result. Only the tab in view is drawn
     at once; the others are drawn when they are opened (matplotlib drawing is the slow part)."""
 
     def __init__(self, parent=None):
@@ -72,12 +72,13 @@ class PlotPanel(QTabWidget):
         for c in (self.rings, self.profile, self.form):
             c.empty("no result yet")
 
-    def show_result(self, d: dict | None, *, form_obj=None, shape=None) -> None:
-        self._pending = {0: (self._rings, (d, form_obj, shape)), 1: (self._profile, (d,)),
-                         2: (self._form, (d, form_obj, shape))}
+    def show_result(self, result, *, shape=None) -> None:
+        """``result``: an :class:`~ringgauge.result.AnalysisResult` or None; ``shape`` the image's (rows, columns)."""
+        self._pending = {0: (self._rings, (result, shape)), 1: (self._profile, (result,)),
+                         2: (self._form, (result, shape))}
         # state what each tab will hold now, draw the visible one now and the rest when opened
-        self.rings.has_data = display.ring_plot_data(d) is not None
-        self.profile.has_data = display.profile_plot_data(d) is not None
+        self.rings.has_data = display.ring_plot_data(result) is not None
+        self.profile.has_data = display.profile_plot_data(result) is not None
         self._draw_pending(self.currentIndex())
 
     def _draw_pending(self, index: int) -> None:
@@ -94,11 +95,11 @@ class PlotPanel(QTabWidget):
         for i in list(self._pending):
             self._draw_pending(i)
 
-    def _rings(self, d, form_obj=None, shape=None) -> None:
-        data = display.ring_plot_data(d)
+    def _rings(self, result, shape=None) -> None:
+        data = display.ring_plot_data(result)
         c = self.rings
         if data is None:
-            self._form_profile(d, form_obj, shape)
+            self._form_profile(result, shape)
             return
         c.figure.clear()
         ax, axr = c.figure.subplots(2, 1, sharex=True, height_ratios=[3, 1.3])
@@ -122,13 +123,14 @@ class PlotPanel(QTabWidget):
         axr.set_xlabel("fringe order m")
         c.shown()
 
-    def _form_profile(self, d, form_obj, shape) -> None:
+    def _form_profile(self, result, shape) -> None:
         """A form job has no ring orders: show the form along the radius instead, and say why."""
         c = self.rings
-        prof = display.form_profile(display.form_map(d, form_obj, shape)) if d and d.get("form") else None
+        has_form = result is not None and result.form is not None
+        prof = display.form_profile(display.form_map(result, shape)) if has_form else None
         if prof is None:
             c.empty("Not a ring-radius job: r² against fringe order belongs to Newton's rings on an optical flat. "
-                    "This result has no rings to plot." if d else "no result yet")
+                    "This result has no rings to plot." if result is not None else "no result yet")
             return
         c.figure.clear()
         ax = c.figure.add_subplot(111)
@@ -147,8 +149,8 @@ class PlotPanel(QTabWidget):
             pass
         c.shown()
 
-    def _profile(self, d) -> None:
-        data = display.profile_plot_data(d)
+    def _profile(self, result) -> None:
+        data = display.profile_plot_data(result)
         c = self.profile
         if data is None:
             c.empty("this result carries no radial profile")
@@ -166,8 +168,8 @@ class PlotPanel(QTabWidget):
         ax.legend(loc="upper right", fontsize=9)
         c.shown()
 
-    def _form(self, d, form_obj, shape) -> None:
-        data = display.form_map(d, form_obj, shape)
+    def _form(self, result, shape) -> None:
+        data = display.form_map(result, shape)
         c = self.form
         if data is None or not np.isfinite(data["gap_nm"]).any():
             c.empty("no form map for this result")

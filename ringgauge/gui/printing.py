@@ -15,6 +15,7 @@ from PySide6.QtCore import QMarginsF, QRectF, QUrl
 from PySide6.QtGui import QFont, QFontMetricsF, QImage, QPageLayout, QPainter, QTextDocument
 
 from ..errors import InputError
+from ..result import AnalysisResult
 from . import display
 
 
@@ -22,15 +23,15 @@ def _esc(x) -> str:
     return html.escape(str(x))
 
 
-def result_html(d: dict, *, title: str = "", stale: bool = False, with_picture: bool = False) -> str:
+def result_html(result: AnalysisResult, *, title: str = "", stale: bool = False, with_picture: bool = False) -> str:
     """The printed page of a result, as HTML for ``QTextDocument`` (built from the window's own rows)."""
-    v = display.verdict_view(d)
-    rows = display.value_rows(d)
-    budget = display.budget_rows(d)
+    v = display.verdict_view(result)
+    rows = display.value_rows(result)
+    budget = display.budget_rows(result)
     when = _dt.datetime.now().astimezone().strftime("%Y-%m-%d %H:%M %Z")
     parts = [
         "<html><body style='font-family: sans-serif; font-size: 9pt;'>",
-        f"<h2>ringgauge — {_esc(title or (d.get('image') or {}).get('path') or 'result')}</h2>",
+        f"<h2>ringgauge — {_esc(title or result.image.path or 'result')}</h2>",
         f"<p>Printed {when}. Not a certificate: certificates are issued from the inspection records.</p>",
     ]
     if stale:
@@ -46,7 +47,7 @@ def result_html(d: dict, *, title: str = "", stale: bool = False, with_picture: 
         parts.append(f"<tr><td>{_esc(r.label)}</td><td align='right'>{_esc(r.value)}</td>"
                      f"<td align='right'>{_esc(r.uncertainty)}</td><td>{_esc(r.unit)}</td></tr>")
     parts.append("</table>")
-    k = d.get("k")
+    k = result.k
     if k:
         parts.append(f"<p>U = k·u, expanded uncertainty with k = {float(k):g} (about 95 %); u is the standard "
                      "uncertainty (k = 1).</p>")
@@ -58,7 +59,7 @@ def result_html(d: dict, *, title: str = "", stale: bool = False, with_picture: 
         for r in budget:
             parts.append("<tr>" + "".join(f"<td>{_esc(c)}</td>" for c in r) + "</tr>")
         parts.append("</table>")
-    warns = list(d.get("warnings") or [])
+    warns = list(result.warnings)
     if warns:
         parts.append("<h3>Warnings</h3><ul>" + "".join(f"<li>{_esc(w)}</li>" for w in warns) + "</ul>")
     if with_picture:
@@ -67,15 +68,16 @@ def result_html(d: dict, *, title: str = "", stale: bool = False, with_picture: 
     return "".join(parts)
 
 
-def print_result(d: dict, printer, *, picture: QImage | None = None, title: str = "", stale: bool = False) -> None:
+def print_result(result: AnalysisResult | None, printer, *, picture: QImage | None = None, title: str = "",
+                 stale: bool = False) -> None:
     """Lay out the result on ``printer``'s pages (A4 or the printer's paper, 15 mm margins)."""
-    if not d:
+    if result is None:
         raise InputError("nothing to print: no result")
     doc = QTextDocument()
     has_pic = picture is not None and not picture.isNull()
     if has_pic:
         doc.addResource(QTextDocument.ResourceType.ImageResource, QUrl("ringgauge://picture"), picture)
-    doc.setHtml(result_html(d, title=title, stale=stale, with_picture=has_pic))
+    doc.setHtml(result_html(result, title=title, stale=stale, with_picture=has_pic))
     printer.setPageMargins(QMarginsF(15, 15, 15, 15), QPageLayout.Unit.Millimeter)
     doc.print_(printer)
 

@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from ..result import AnalysisResult
 from .display import VerdictView, budget_rows, value_rows, verdict_view
 
 #: banner colours per tone: (background, text). The word and symbol carry the meaning; colour only helps.
@@ -163,12 +164,12 @@ class ResultsPanel(QWidget):
         self.k_note.setText("")
         self.banner.show_verdict(verdict_view(None))
 
-    def show_result(self, d: dict | None) -> None:
+    def show_result(self, result: AnalysisResult | None) -> None:
         self.stale = False
         for t in (self.values, self.budget):
             t.setEnabled(True)
-        self.banner.show_verdict(verdict_view(d))
-        rows = value_rows(d)
+        self.banner.show_verdict(verdict_view(result))
+        rows = value_rows(result)
         self.values.setRowCount(len(rows))
         group = None
         for i, r in enumerate(rows):
@@ -180,20 +181,19 @@ class ResultsPanel(QWidget):
                     it.setToolTip(r.group)
                 self.values.setItem(i, j, it)
             group = r.group
-        brows = budget_rows(d)
+        brows = budget_rows(result)
         self.budget.setRowCount(len(brows))
         for i, r in enumerate(brows):
             for j, text in enumerate(r):
                 self.budget.setItem(i, j, QTableWidgetItem(text))
         self._fit_width()
-        warns = list((d or {}).get("warnings") or [])
+        warns = [] if result is None else list(result.warnings)
         self.warnings.clear()
         self.warnings.addItems(warns)
         self.tabs.setTabText(2, f"Warnings ({len(warns)})" if warns else "Warnings")
-        k = (d or {}).get("k")
-        budget = (d or {}).get("budget") or {}
-        self.k_note.setText(
-            f"U = k·u with k = {k:g} ({budget.get('coverage', 'approximately 95 %')} coverage)." if k else "")
+        k = None if result is None else result.k
+        coverage = "approximately 95 %" if result is None or result.budget is None else result.budget.coverage
+        self.k_note.setText(f"U = k·u with k = {k:g} ({coverage} coverage)." if k else "")
 
     def needed_width(self) -> int:
         """Width the values table needs to show every column whole (no cut text, no sideways scrolling)."""

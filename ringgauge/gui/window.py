@@ -492,8 +492,7 @@ class MainWindow(QMainWindow):
                 page.plots.clear()
             if what == "setup" and self.autosave:
                 self.prefs.save_setup(s.setup)
-            page.view.set_overlay(display.overlay_from(s.result.to_dict() if s.result else None,
-                                                       s.overrides.to_dict()))
+            page.view.set_overlay(display.overlay_from(s.result, s.overrides.to_dict()))
             self._sync_undo()
             if what == "overrides":
                 page.hint.setText(s.overrides.describe())
@@ -525,25 +524,23 @@ class MainWindow(QMainWindow):
 
     def show_result(self) -> None:
         s, page = self.session, self.bench
-        d = s.result.to_dict() if s.result is not None else None
+        r = s.result
         self._residual_cache = None
-        page.results.show_result(d)
-        page.view.set_overlay(display.overlay_from(d, s.overrides.to_dict()))
-        page.plots.show_result(d, form_obj=getattr(s.result, "form", None),
-                               shape=s.frames[0].shape if s.frames else None)
+        page.results.show_result(r)
+        page.view.set_overlay(display.overlay_from(r, s.overrides.to_dict()))
+        page.plots.show_result(r, shape=s.frames[0].shape if s.frames else None)
         if self.residual_on:
             self._show_photo()
-        ignored = display.overrides_ignored(d, s.overrides.to_dict())
+        ignored = display.overrides_ignored(r, s.overrides.to_dict())
         if ignored:
             self.bench.show_notice("The analysis did not use your hand-set " + " and ".join(ignored)
                                    + ": this engine finds its own. Treat the result with care or clear the "
                                    "manual settings (Edit menu).")
-        v = display.verdict_view(d)
-        R = (d or {}).get("radius_mm")
+        v = display.verdict_view(r)
         extra = ""
-        if R is not None:
-            row = display.value_rows(d)[0]
-            extra = f"R = {row.value} {row.uncertainty} mm (k = {d.get('k', 2):g})"
+        if r is not None and r.radius is not None:
+            row = display.value_rows(r)[0]
+            extra = f"R = {row.value} {row.uncertainty} mm (k = {r.k:g})"
         self.set_status(f"Analysed {s.title}: {v.word}" + (f", {extra}" if extra else ""))
 
     def _show_photo(self, *, refit: bool = False) -> None:
@@ -705,7 +702,7 @@ class MainWindow(QMainWindow):
             if s.result is None:
                 raise RinggaugeError("nothing to print yet: analyse an image first")
             picture = self.bench.view.grab().toImage()
-            printing.print_result(s.result.to_dict(), printer, picture=picture, title=s.title,
+            printing.print_result(s.result, printer, picture=picture, title=s.title,
                                   stale=self.bench.results.stale)
         except RinggaugeError as exc:
             self.show_problem(str(exc))
@@ -805,6 +802,5 @@ class MainWindow(QMainWindow):
 
 def _residual_rgb(data, result):
     """Fit minus image as an RGB picture, or None when the result has nothing fitted (worker thread)."""
-    d = result.to_dict()
-    res = display.residual_image(data, d, form_obj=getattr(result, "form", None))
+    res = display.residual_image(data, result)
     return None if res is None else display.signed_to_rgb(res)

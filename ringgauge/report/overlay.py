@@ -11,6 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..form.result import FORM_TERMS
+
 INK = "#1f4e79"
 ACCENT = "#c55a11"
 MAX_DISPLAY_PX = 900
@@ -128,27 +130,17 @@ def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
     fig.savefig(path, format="png")
 
 
-FORM_TERMS = (
-    ("power_fringes", "power_u_fringes", "power (A)"),
-    ("astigmatism_fringes", "astigmatism_u_fringes", "astigmatism"),
-    ("irregularity_fringes", "irregularity_u_fringes", "irregularity (B)"),
-    ("rot_sym_irregularity_fringes", "rot_sym_irregularity_u_fringes", "rot. sym. irregularity (C)"),
-    ("rms_total_fringes", "rms_total_u_fringes", "RMSt"),
-    ("rms_irregularity_fringes", "rms_irregularity_u_fringes", "RMSi"),
-    ("rms_asymmetric_fringes", "rms_asymmetric_u_fringes", "RMSa"),
-    ("pv_total_fringes", "pv_total_u_fringes", "PV total"),
-)
-
-
 def _form_terms(form: dict) -> list[tuple[str, float, float | None]]:
+    """(short label, value, u) in fringes of each form term the stored form result holds, in ``FORM_TERMS``
+    order."""
     out = []
     if not isinstance(form, dict):
         return out
-    for key, ukey, label in FORM_TERMS:
-        v = form.get(key)
+    for t in FORM_TERMS:
+        v = form.get(t.key)
         if isinstance(v, (int, float)) and math.isfinite(v):
-            u = form.get(ukey)
-            out.append((label, float(v), float(u) if isinstance(u, (int, float)) else None))
+            u = form.get(f"{t.name}_u_fringes")
+            out.append((t.short, float(v), float(u) if isinstance(u, (int, float)) else None))
     return out
 
 

@@ -8,7 +8,8 @@ import numpy as np
 
 from ringgauge.errors import AnalysisError
 from ringgauge.result import AnalysisResult, ImageInfo, Ring, RingFit
-from ringgauge.uncertainty import BudgetRow, make_budget
+from ringgauge.conformity import Verdict
+from ringgauge.uncertainty import BudgetRow, Quantity, make_budget
 
 
 def write_rings(path, *, radius_mm=800.0, width=320, height=256, pixel_um=16.0, seed=1, source="sodium-d"):
@@ -36,8 +37,11 @@ def hand_result(frame, setup, radius_mm: float, *, verdict=None, n_rings: int = 
     budget = make_budget("R", "mm", radius_mm, rows)
     h, w = frame.shape
     info = ImageInfo(frame.path, frame.sha256, w, h, frame.bit_depth, frame.channel, 0.0)
-    return AnalysisResult(info, setup, ((w - 1) / 2, (h - 1) / 2), (0.01, 0.01), radius_mm, budget.u_c, budget.k,
-                          budget, fit, verdict=verdict, warnings=("hand-made result",))
+    if isinstance(verdict, dict):
+        verdict = Verdict.from_dict(verdict)
+    return AnalysisResult(info, setup, ((w - 1) / 2, (h - 1) / 2), (0.01, 0.01),
+                          Quantity(radius_mm, budget.u_c, "mm", budget.k), budget.k, budget, fit, verdict=verdict,
+                          warnings=("hand-made result",))
 
 
 class FakeEngine:

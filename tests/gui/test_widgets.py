@@ -63,9 +63,9 @@ def test_results_panel_states_the_verdict_in_words(app, qtbot, sample_dir):
     for overall, word, tone in (("pass", "PASS", "pass"), ("fail", "FAIL", "fail"),
                                 ("conditional fail", "CONDITIONAL FAIL", "conditional")):
         rule = "guard-banded acceptance: a term passes only when value + U is within the limit"
-        d = hand_result(f, setup, 900.0, verdict={"overall": overall, "terms": [],
-                                                  "decision_rule": rule}).to_dict()
-        rp.show_result(d)
+        r = hand_result(f, setup, 900.0, verdict={"overall": overall, "terms": [],
+                                                  "decision_rule": rule})
+        rp.show_result(r)
         assert rp.banner.word.text() == word and rp.banner.tone == tone
         assert rp.banner.rule.text() == "Decision rule: guard-banded acceptance"
         assert rp.banner.rule.toolTip() == rule
@@ -87,14 +87,14 @@ def test_image_view_layers_and_picking(app, qtbot, sample_dir):
     f = load_frame(sample_dir / "lens-A01.png")
     v.set_image(display.image_to_u8(f.data))
     setup = SetupState(source="sodium-d", pixel_size_um=16.0).to_bench_setup()
-    d = hand_result(f, setup, 800.0).to_dict()
-    v.set_overlay(display.overlay_from(d, {"aperture_px": (160, 128, 100)}))
+    r = hand_result(f, setup, 800.0)
+    v.set_overlay(display.overlay_from(r, {"aperture_px": (160, 128, 100)}))
     assert v.layer_item_count("rings") == 10
     assert v.layer_item_count("centre") == 4  # two arms, each with a dark halo
     assert v.layer_item_count("aperture") == 1
     v.set_layer_visible("rings", False)
     assert not v._groups["rings"].isVisible()
-    v.set_overlay(display.overlay_from(d))  # a new result keeps the layer switched off
+    v.set_overlay(display.overlay_from(r))  # a new result keeps the layer switched off
     assert not v._groups["rings"].isVisible() and v.layer_item_count("aperture") == 0
     # click to set the centre: the signal carries image coordinates
     v.set_mode("centre")
