@@ -209,18 +209,20 @@ class _Problem:
         np.multiply(self.PLT, f[:, None], out=X[:, 1:])
         return X
 
-    def shape(self, ph):
+    def shape(self, ph, cos_ph=None):
         """Fringe shape: cos(ph) for two-beam fringes; the multiple-beam (Airy) profile for F > 0, scaled to
-        the same range [-1, 1] (1 at zero gap)."""
+        the same range [-1, 1] (1 at zero gap). ``cos_ph``: cos(ph) when already at hand."""
+        if cos_ph is None:
+            cos_ph = np.cos(ph)
         if self.F == 0:
-            return np.cos(ph)
-        x = 0.5 * (1.0 - np.cos(ph))
+            return cos_ph
+        x = 0.5 * (1.0 - cos_ph)
         return 1.0 - 2.0 * (1.0 + self.F) * x / (1.0 + self.F * x)
 
-    def dshape(self, ph):
+    def dshape(self, ph, cos_ph=None):
         if self.F == 0:
             return -np.sin(ph)
-        x = 0.5 * (1.0 - np.cos(ph))
+        x = 0.5 * (1.0 - (np.cos(ph) if cos_ph is None else cos_ph))
         return -(1.0 + self.F) * np.sin(ph) / (1.0 + self.F * x) ** 2
 
     def linear(self, c, m):
@@ -256,9 +258,10 @@ class _Problem:
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
         ph, M = self._parts(c, m)
         L = self.PLT @ lin[1:]
-        cs = self.shape(ph)
+        cos_ph = np.cos(ph)
+        cs = self.shape(ph, cos_ph)
         # kept for full_jac: the Jacobian is always asked for at the last accepted residual's parameters
-        self._last = (np.array(p, dtype=float), nw, ph, M, cs, L)
+        self._last = (np.array(p, dtype=float), nw, ph, M, cs, L, cos_ph)
         r = np.empty(self.y.size + 2)
         r[:-2] = lin[0] + L * (1.0 + M * cs) - self.y
         k = self._penalty_weight()
@@ -267,20 +270,24 @@ class _Problem:
         r[-1] = k * (max(0.0, lin[0] - hi) - max(0.0, lo - lin[0])) / max(hi, 1e-6)
         return r
 
-    def full_jac(self, p, nw):
+    def full_jac(self, p, nw, out=None):
+        """Jacobian of :meth:`full_residual`; written into ``out`` (same shape) when given, so a fit's iterations
+        reuse one array."""
         c, m, lin = p[:nw], p[nw : nw + self.NM], p[nw + self.NM :]
         last = getattr(self, "_last", None)
         if last is not None and last[1] == nw and np.array_equal(last[0], p):
-            ph, M, cs, L = last[2:]
+            ph, M, cs, L, cos_ph = last[2:]
         else:
             ph, M = self._parts(c, m)
-            cs = self.shape(ph)
+            cos_ph = np.cos(ph)
+            cs = self.shape(ph, cos_ph)
             L = self.PLT @ lin[1:]
         N = self.y.size
         nL = self.PLT.shape[1]
-        J = np.empty((N + 2, nw + self.NM + 1 + nL))
+        shape = (N + 2, nw + self.NM + 1 + nL)
+        J = out if out is not None and out.shape == shape else np.empty(shape)
         J[N:] = 0.0
-        np.multiply(self.ZT[:, :nw], (2 * np.pi * L * M * self.dshape(ph))[:, None], out=J[:N, :nw])
+        np.multiply(self.ZT[:, :nw], (2 * np.pi * L * M * self.dshape(ph, cos_ph))[:, None], out=J[:N, :nw])
         np.multiply(self.PMT, (L * cs)[:, None], out=J[:N, nw : nw + 3])
         J[:N, nw + 3] = 1.0
         np.multiply(self.PLT, (1.0 + M * cs)[:, None], out=J[:N, nw + 4 :])
@@ -849,8 +856,13 @@ def _refine(prob: _Problem, p0, nw, max_nfev: int = 100, free=None) -> _LMResult
     cost = float(r @ r)
     lam = 1e-3
 
+    buf = []
+
     def jac(q):
-        J = prob.full_jac(q, nw)
+        # one array for every iteration's Jacobian (A and g are formed from it before it is refilled)
+        J = prob.full_jac(q, nw, out=buf[0] if buf else None)
+        if not buf:
+            buf.append(J)
         return J if free is None else J[:, idx]
 
     J = jac(p)
