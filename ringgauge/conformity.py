@@ -413,13 +413,15 @@ def with_radius_verdict(result):
     if result.form is None:
         radius = judge_radius(result.radius_mm, result.radius_U_mm, tol, rule, what="radius of curvature")
     else:
-        block = getattr(result.form, "radius", None) or {}
-        r, U = block.get("surface_radius_mm"), block.get("surface_radius_U_mm")
+        block = result.form.radius
+        r = None if block is None else block.surface_radius_mm
+        U = None if block is None else block.surface_radius_U_mm
         radius = judge_radius(r, U, tol, rule, what="surface radius")
         if r is None:
-            radius["note"] = (block.get("surface_radius_note") or
+            radius["note"] = ((block.surface_radius_note if block is not None else None) or
                               "no test-plate radius given: the surface radius (plate radius ± ΔR) is not known")
-    return replace(result, verdict=combined_verdict(result.verdict, radius, rule))
+    prior = None if result.verdict is None else result.verdict.to_dict()
+    return replace(result, verdict=Verdict.from_dict(combined_verdict(prior, radius, rule)))
 
 
 def verdict_lines(radius: dict) -> list[str]:
@@ -447,3 +449,107 @@ def verdict_lines(radius: dict) -> list[str]:
     if radius.get("note"):
         lines.append(f"  note: {radius['note']}")
     return lines
+
+
+# --- the verdict as a result keeps it ------------------------------------------------------------------------
+
+def _omit_none(d: dict, always: tuple[str, ...] = ()) -> dict:
+    return {k: v for k, v in d.items() if v is not None or k in always}
+
+
+@dataclass(frozen=True)
+class TermVerdict:
+    """The verdict on one toleranced form term (ISO 10110-5), compared in the tolerance's own unit."""
+
+    term: str
+    value: float | None
+    U: float | None  # noqa: N815 - expanded uncertainty (k = 2), in ``unit``
+    limit: float
+    unit: str
+    value_fringes: float | None
+    U_fringes: float | None  # noqa: N815
+    limit_fringes: float | None
+    value_nm: float | None
+    wavelength_nm: float
+    wavelength_stated: bool
+    verdict: str
+    note: str = ""
+
+    def to_dict(self) -> dict:
+        return dict(self.__dict__)
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "TermVerdict":
+        from .serialise import build
+
+        return build(cls, d)
+
+
+@dataclass(frozen=True)
+class RadiusVerdict:
+    """The verdict on a radius of curvature (measured, or the surface radius against a test plate)."""
+
+    quantity: str  # "radius of curvature" or "surface radius"
+    tolerance: RadiusTolerance
+    verdict: str
+    state: str
+    accepted: bool | None
+    value: float | None
+    U: float | None  # noqa: N815
+    unit: str
+    lower: float | None
+    upper: float | None
+    rule: str
+    rule_name: str
+    rule_wording: str
+    guard_band: float
+    acceptance_lower: float | None
+    acceptance_upper: float | None
+    p_conform: float | None = None
+    note: str = ""
+
+    def to_dict(self) -> dict:
+        d = {k: v for k, v in self.__dict__.items() if k not in ("quantity", "tolerance")}
+        d.update(quantity=self.quantity, tolerance=self.tolerance.to_dict())
+        return d
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "RadiusVerdict":
+        from .serialise import build
+
+        t = d["tolerance"]
+        tol = RadiusTolerance(t["text"], float(t["lower_mm"]), float(t["upper_mm"]),
+                              None if t.get("nominal_mm") is None else float(t["nominal_mm"]))
+        return build(cls, d, tolerance=tol)
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """A result's verdict: the form terms against their ISO 10110-5 tolerance and/or the radius against its
+    tolerance, under one decision rule; ``overall`` is the worst of them."""
+
+    overall: str
+    terms: tuple[TermVerdict, ...] = ()
+    decision_rule: str | None = None  # the rule's name and wording, as printed
+    rule: str | None = None
+    rule_name: str | None = None
+    reason: str | None = None
+    meaning: str | None = None
+    power_note: str | None = None
+    wavelength_note: str | None = None
+    form_overall: str | None = None
+    radius: RadiusVerdict | None = None
+    radius_meaning: str | None = None
+
+    def to_dict(self) -> dict:
+        d = dict(self.__dict__)
+        d["terms"] = [t.to_dict() for t in self.terms]
+        d["radius"] = None if self.radius is None else self.radius.to_dict()
+        return _omit_none(d, always=("terms",))
+
+    @classmethod
+    def from_dict(cls, d: dict | None) -> "Verdict | None":
+        from .serialise import build
+
+        return None if d is None else build(cls, d)
+

@@ -21,11 +21,11 @@ from .errors import AnalysisError, InputError
 from .fit.fullfield import fit_full_field
 from .fit.orders import fit_orders, locate_extrema
 from .imaging import Frame, load_frame
-from .result import AnalysisResult, ImageInfo
+from .result import AnalysisResult, FullField, ImageInfo, Sectors
 from .rings.centre import gradient_centre, refine_by_sharpness
 from .rings.profile import dominant_period, s_profile, s_profiles_by_label
 from .fit.sectors import sector_scatter
-from .uncertainty import BudgetRow, make_budget
+from .uncertainty import BudgetRow, Quantity, make_budget
 
 Progress = Callable[[float, str], None]
 
@@ -104,11 +104,10 @@ def _analyse(frames, setup: BenchSetup, progress: Progress) -> AnalysisResult:
         from .form.evaluate import evaluate_form  # form evaluation is its own sub-package
 
         form = evaluate_form(frames, setup, progress=progress)
-        fd = form.to_dict()
         return with_radius_verdict(AnalysisResult(
-            image=image_info(frames[0]), setup=setup, centre_px=None, centre_u_px=None, radius_mm=None,
-            radius_u_mm=None, k=2.0, budget=None, fit=None, form=form, verdict=fd.get("verdict"),
-            warnings=tuple(fd.get("warnings", ())), elapsed_s=time.perf_counter() - t0,
+            image=image_info(frames[0]), setup=setup, centre_px=None, centre_u_px=None, radius=None,
+            k=2.0, budget=None, fit=None, form=form, verdict=form.verdict,
+            warnings=form.warnings, elapsed_s=time.perf_counter() - t0,
             frames=tuple(image_info(f) for f in frames),
         ))
     res = analyse_rings(frames[0], setup, progress=progress)
@@ -311,33 +310,33 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
             "--pixel-size-u or use a calibrated bench profile"
         )
     prof_dict = _profile_for_display(prof, px_mm)
-    fullfield = {
-        "method": "joint least-squares fit of the ring model to all pixels (variable projection)",
-        "radius_mm": R_ff * (1 - a2 / 2),
-        "blur_sigma_px": blur,
-        "blur_correction_ppm": 1e6 * a2 / 2,
-        "centre_px": [ff.x0, ff.y0],
-        "centre_u_px": [float(cu[0]), float(cu[1])],
-        "period_px2_per_fringe": period_s,
-        "fringe_contrast": contrast,
-        "modulation": ff.modulation,
-        "background": ff.background,
-        "residual_rms": ff.sigma,
-        "pixels_used": ff.npix,
-        "r_max_px": ff.r_max,
-        "r_max_mm": ff.r_max * px_mm,
-        "coarse_centre_px": [cx, cy],
-        "gradient_centre_px": [c0.x, c0.y],
+    fullfield = FullField(
+        method="joint least-squares fit of the ring model to all pixels (variable projection)",
+        radius_mm=R_ff * (1 - a2 / 2),
+        blur_sigma_px=blur,
+        blur_correction_ppm=1e6 * a2 / 2,
+        centre_px=(float(ff.x0), float(ff.y0)),
+        centre_u_px=(float(cu[0]), float(cu[1])),
+        period_px2_per_fringe=period_s,
+        fringe_contrast=contrast,
+        modulation=ff.modulation,
+        background=ff.background,
+        residual_rms=ff.sigma,
+        pixels_used=int(ff.npix),
+        r_max_px=ff.r_max,
+        r_max_mm=ff.r_max * px_mm,
+        coarse_centre_px=(float(cx), float(cy)),
+        gradient_centre_px=(float(c0.x), float(c0.y)),
         **prof_dict,
-        "extrema_r_px": [float(math.sqrt(e.s)) for e in extrema],
-        "extrema_kind": [e.kind for e in extrema],
-        "sectors": None if sectors is None else sectors.to_dict(),
-    }
+        extrema_r_px=tuple(float(math.sqrt(e.s)) for e in extrema),
+        extrema_kind=tuple(e.kind for e in extrema),
+        sectors=None if sectors is None else Sectors.of(sectors),
+    )
     progress(1.0, "done")
     fit = replace(fit, fringe_wavelength_nm=lam_nm)
     return AnalysisResult(
         image=image_info(frame), setup=setup, centre_px=(float(centre[0]), float(centre[1])),
-        centre_u_px=(float(cu[0]), float(cu[1])), radius_mm=float(R), radius_u_mm=float(budget.u_c),
+        centre_u_px=(float(cu[0]), float(cu[1])), radius=Quantity(float(R), float(budget.u_c), "mm", float(budget.k)),
         k=float(budget.k), budget=budget, fit=fit, fullfield=fullfield, warnings=tuple(warnings),
     )
 
@@ -386,8 +385,8 @@ def _profile_for_display(prof, px_mm: float, max_points: int = 1500) -> dict:
     i = prof.mean[good]
     step = max(1, len(s) // max_points)
     return {
-        "profile_r_px": [float(v) for v in np.sqrt(s[::step])],
-        "profile_i": [float(v) for v in i[::step]],
+        "profile_r_px": tuple(float(v) for v in np.sqrt(s[::step])),
+        "profile_i": tuple(float(v) for v in i[::step]),
     }
 
 

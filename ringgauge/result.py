@@ -1,32 +1,38 @@
-"""Frozen result types of an analysis. Every result has ``to_dict()`` returning plain JSON-able objects:
-that is what ``--json`` prints, what the records store keeps and what reports and certificates format."""
+"""Frozen result types of an analysis.
+
+Every result type has ``to_dict()``, returning plain JSON-able objects (what ``--json`` prints, what the records
+store keeps and what certificates are made from), and ``from_dict()``, its inverse, so a stored result reads back
+as the same typed result: ``AnalysisResult.from_dict(r.to_dict()) == r``. ``to_dict`` only serialises; values
+are worked out when the result is made. The JSON carries ``schema_version`` (:data:`SCHEMA_VERSION`); results
+stored before it was written read as version 1, which has the same fields.
+"""
 
 from __future__ import annotations
 
-import math
-from dataclasses import dataclass, field
-from typing import Any
-
-import numpy as np
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from . import __version__
 from .bench_setup import BenchSetup
-from .uncertainty import Budget
+from .conformity import Verdict
+from .errors import InputError
+from .serialise import build, convert, finite_or_none
+from .serialise import jsonable as _f
+from .uncertainty import Budget, Quantity
 
+if TYPE_CHECKING:  # pragma: no cover
+    from .form.result import FormResult
 
-def _f(x):
-    if x is None:
-        return None
-    if isinstance(x, (np.floating, float)):
-        x = float(x)
-        return x if math.isfinite(x) else None
-    if isinstance(x, (np.integer,)):
-        return int(x)
-    return x
+#: version of the result JSON: 2 added ``schema_version`` itself (version 1 had the same fields)
+SCHEMA_VERSION = 2
+#: the JSON's statement of the image coordinates
+COORDINATES = "x = column, y = row, pixel centres at integers, origin at the top-left pixel"
 
 
 @dataclass(frozen=True)
 class ImageInfo:
+    """One analysed image file: where it came from and what it holds."""
+
     path: str | None
     sha256: str
     width: int
@@ -37,6 +43,10 @@ class ImageInfo:
 
     def to_dict(self) -> dict:
         return {k: _f(v) for k, v in self.__dict__.items()}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "ImageInfo":
+        return build(cls, d)
 
 
 @dataclass(frozen=True)
@@ -54,6 +64,10 @@ class Ring:
 
     def to_dict(self) -> dict:
         return {k: _f(v) for k, v in self.__dict__.items()}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Ring":
+        return build(cls, d)
 
 
 @dataclass(frozen=True)
@@ -83,6 +97,19 @@ class RingFit:
     #: the wavelength the fringes follow (a source of several lines or a band: its mean wavenumber's reciprocal)
     fringe_wavelength_nm: float | None = None
 
+    COVARIANCE_SCALING = "reduced chi-square (never scaled down with fewer than 5 degrees of freedom)"
+    _KEYS = {"slope_mm2": "slope_mm2_per_fringe", "slope_u_mm2": "slope_u_mm2_per_fringe",
+             "intercept_fringes": "contact_offset_fringes"}
+
+    @property
+    def slope(self) -> Quantity:
+        """The slope of r² against order, mm² per fringe."""
+        return Quantity(self.slope_mm2, self.slope_u_mm2, "mm²/fringe")
+
+    @property
+    def rings_used(self) -> tuple[Ring, ...]:
+        return tuple(r for r in self.rings if r.used)
+
     def to_dict(self) -> dict:
         return {
             "fringe_wavelength_nm": _f(self.fringe_wavelength_nm),
@@ -92,54 +119,146 @@ class RingFit:
             "intercept_u_mm2": _f(self.intercept_u_mm2),
             "contact_offset_fringes": _f(self.intercept_fringes),
             "covariance": None if self.covariance is None else [[_f(v) for v in row] for row in self.covariance],
-            "covariance_scaling": "reduced chi-square (never scaled down with fewer than 5 degrees of freedom)",
+            "covariance_scaling": self.COVARIANCE_SCALING,
             "chisqr": _f(self.chisqr),
             "redchi": _f(self.redchi),
             "ndata": self.ndata,
             "nvarys": self.nvarys,
-            "rings_used": sum(1 for r in self.rings if r.used),
+            "rings_used": len(self.rings_used),
             "r_min_mm": _f(self.r_min_mm),
             "r_max_mm": _f(self.r_max_mm),
-            "residuals_mm2": [_f(r.residual_mm2) for r in self.rings if r.used],
+            "residuals_mm2": [_f(r.residual_mm2) for r in self.rings_used],
             "rings": [r.to_dict() for r in self.rings],
             "method": self.method,
             "success": self.success,
             "message": self.message,
         }
 
+    @classmethod
+    def from_dict(cls, d: dict) -> "RingFit":
+        return build(cls, d, cls._KEYS)
+
+
+@dataclass(frozen=True)
+class Sectors:
+    """The ring fit repeated in angular sectors: the scatter of their slopes (Type A) and the rings' roundness."""
+
+    n_sectors: int
+    angles_deg: tuple[float, ...]  # sector mid-angles, from +x toward +y (image rows down)
+    slopes_mm2_per_fringe: tuple[float, ...]
+    rings: tuple[int, ...]
+    u_mean_slope_mm2: float  # standard uncertainty of the mean slope from the sector scatter
+    dof: int
+    ellipticity: float  # relative amplitude of the cos 2θ variation of the slope
+    ellipticity_u: float
+    long_axis_deg: float  # angle of the largest slope (longest ring axis)
+
+    @classmethod
+    def of(cls, s) -> "Sectors":
+        """The stored part of the engine's sector scatter."""
+        return cls(int(s.n_sectors), tuple(float(a) for a in s.angles_deg), tuple(float(v) for v in s.slopes_mm2),
+                   tuple(int(n) for n in s.rings), float(s.u_mean_slope_mm2), int(s.dof), float(s.ellipticity),
+                   float(s.ellipticity_u), float(s.axis_deg))
+
+    def to_dict(self) -> dict:
+        return {k: list(v) if isinstance(v, tuple) else v for k, v in self.__dict__.items()}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Sectors":
+        return build(cls, d)
+
+
+@dataclass(frozen=True)
+class FullField:
+    """The cross-check of the ring fit: one least-squares fit of the ring model to all pixels, and what the
+    rings' extraction saw (profile, extrema, sectors)."""
+
+    method: str
+    radius_mm: float
+    blur_sigma_px: float
+    blur_correction_ppm: float
+    centre_px: tuple[float, float]
+    centre_u_px: tuple[float, float]
+    period_px2_per_fringe: float
+    fringe_contrast: float
+    modulation: float
+    background: float
+    residual_rms: float
+    pixels_used: int
+    r_max_px: float
+    r_max_mm: float
+    coarse_centre_px: tuple[float, float]
+    gradient_centre_px: tuple[float, float]
+    profile_r_px: tuple[float, ...]
+    profile_i: tuple[float, ...]
+    extrema_r_px: tuple[float, ...]
+    extrema_kind: tuple[str, ...]
+    sectors: Sectors | None
+
+    def __post_init__(self):
+        for f in ("radius_mm", "blur_sigma_px", "blur_correction_ppm", "period_px2_per_fringe", "fringe_contrast",
+                  "modulation", "background", "residual_rms", "r_max_px", "r_max_mm"):
+            object.__setattr__(self, f, finite_or_none(getattr(self, f)))
+
+    def to_dict(self) -> dict:
+        d = {}
+        for k, v in self.__dict__.items():
+            if k == "sectors":
+                d[k] = None if v is None else v.to_dict()
+            else:
+                d[k] = list(v) if isinstance(v, tuple) else _f(v)
+        return d
+
+    @classmethod
+    def from_dict(cls, d: dict | None) -> "FullField | None":
+        return build(cls, d) if d else None
+
 
 @dataclass(frozen=True)
 class AnalysisResult:
-    """What one analysis of one frame (or a frame set) found."""
+    """What one analysis of one frame (or a frame set) found.
+
+    ``radius`` is the radius of curvature from Newton's rings (mm, standard uncertainty, coverage factor ``k``);
+    ``form`` the surface form against a test plate when that was evaluated; ``verdict`` the conformity
+    verdicts (form terms and/or radius) under the set-up's tolerances.
+    """
 
     image: ImageInfo
     setup: BenchSetup
     centre_px: tuple[float, float] | None
     centre_u_px: tuple[float, float] | None
-    radius_mm: float | None
-    radius_u_mm: float | None
+    radius: Quantity | None
     k: float
     budget: Budget | None
     fit: RingFit | None
-    fullfield: dict = field(default_factory=dict)
-    form: Any = None  # ringgauge.form result, when form against a test plate was evaluated
-    verdict: dict | None = None
+    fullfield: FullField | None = None
+    form: "FormResult | None" = None
+    verdict: Verdict | None = None
     warnings: tuple[str, ...] = ()
     elapsed_s: float = 0.0
     frames: tuple[ImageInfo, ...] = ()
     version: str = __version__
 
     @property
+    def radius_mm(self) -> float | None:
+        return None if self.radius is None else self.radius.value
+
+    @property
+    def radius_u_mm(self) -> float | None:
+        return None if self.radius is None else self.radius.u
+
+    @property
     def radius_U_mm(self) -> float | None:  # noqa: N802
-        return None if self.radius_u_mm is None else self.k * self.radius_u_mm
+        return None if self.radius is None else self.radius.U
 
     def to_dict(self) -> dict:
         return {
+            "schema_version": SCHEMA_VERSION,
             "ringgauge_version": self.version,
             "image": self.image.to_dict(),
             "frames": [f.to_dict() for f in self.frames],
             "setup": self.setup.to_dict(),
-            "coordinates": "x = column, y = row, pixel centres at integers, origin at the top-left pixel",
+            "coordinates": COORDINATES,
             "centre_px": None if self.centre_px is None else [_f(v) for v in self.centre_px],
             "centre_u_px": None if self.centre_u_px is None else [_f(v) for v in self.centre_u_px],
             "radius_mm": _f(self.radius_mm),
@@ -148,9 +267,43 @@ class AnalysisResult:
             "k": self.k,
             "budget": None if self.budget is None else self.budget.to_dict(),
             "fringes": None if self.fit is None else self.fit.to_dict(),
-            "fullfield": {k: _f(v) if not isinstance(v, (list, tuple, dict)) else v for k, v in self.fullfield.items()},
+            "fullfield": {} if self.fullfield is None else self.fullfield.to_dict(),
             "form": None if self.form is None else self.form.to_dict(),
-            "verdict": self.verdict,
+            "verdict": None if self.verdict is None else self.verdict.to_dict(),
             "warnings": list(self.warnings),
             "elapsed_s": _f(self.elapsed_s),
         }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "AnalysisResult":
+        """A result as ``to_dict()`` wrote it (any schema version up to :data:`SCHEMA_VERSION`)."""
+        from .form.result import FormResult
+
+        if not isinstance(d, dict) or "setup" not in d or "image" not in d:
+            raise InputError("not a ringgauge result (no image and set-up)")
+        version = int(d.get("schema_version") or 1)
+        if version > SCHEMA_VERSION:
+            raise InputError(f"the result was written by a newer ringgauge (schema {version}; this one reads up to "
+                             f"{SCHEMA_VERSION}): update ringgauge to read it")
+        k = float(d.get("k") or 2.0)
+        setup = BenchSetup.from_dict(d["setup"])
+        radius = None
+        if d.get("radius_mm") is not None:
+            radius = Quantity(float(d["radius_mm"]), finite_or_none(d.get("radius_u_mm")), "mm", k)
+        return cls(
+            image=ImageInfo.from_dict(d["image"]),
+            setup=setup,
+            centre_px=convert(tuple[float, float], d.get("centre_px")),
+            centre_u_px=convert(tuple[float, float], d.get("centre_u_px")),
+            radius=radius,
+            k=k,
+            budget=None if d.get("budget") is None else Budget.from_dict(d["budget"]),
+            fit=None if d.get("fringes") is None else RingFit.from_dict(d["fringes"]),
+            fullfield=FullField.from_dict(d.get("fullfield")),
+            form=None if d.get("form") is None else FormResult.from_dict(d["form"], pixel_size_um=setup.pixel_size_xy_um),
+            verdict=None if d.get("verdict") is None else Verdict.from_dict(d["verdict"]),
+            warnings=tuple(d.get("warnings") or ()),
+            elapsed_s=float(d.get("elapsed_s") or 0.0),
+            frames=tuple(ImageInfo.from_dict(f) for f in d.get("frames") or ()),
+            version=str(d.get("ringgauge_version") or ""),
+        )

@@ -27,6 +27,11 @@ class Quantity:
     def to_dict(self) -> dict:
         return {"value": self.value, "u": self.u, "unit": self.unit, "k": self.k, "U": self.U}
 
+    @classmethod
+    def from_dict(cls, d: dict) -> "Quantity":
+        return cls(float(d["value"]), None if d.get("u") is None else float(d["u"]), str(d["unit"]),
+                   float(d.get("k") or 2.0))
+
 
 @dataclass(frozen=True)
 class BudgetRow:
@@ -48,6 +53,12 @@ class BudgetRow:
         if math.isinf(d["dof"]):
             d["dof"] = None
         return d
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "BudgetRow":
+        from .serialise import build
+
+        return build(cls, {**d, "dof": math.inf if d.get("dof") is None else d["dof"]})
 
 
 @dataclass(frozen=True)
@@ -78,6 +89,13 @@ class Budget:
             "coverage": self.coverage,
             "notes": list(self.notes),
         }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Budget":
+        from .serialise import build
+
+        return build(cls, {**d, "dof_eff": math.inf if d.get("dof_eff") is None else d["dof_eff"]},
+                     {"output_unit": "unit"})
 
 
 def make_budget(output: str, unit: str, value: float, rows: list[BudgetRow], *, notes=()) -> Budget:

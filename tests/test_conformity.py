@@ -170,32 +170,34 @@ def test_surface_radius_against_a_test_plate_is_judged_beside_the_form_verdict()
     from dataclasses import dataclass
     from types import SimpleNamespace
 
-    from ringgauge.conformity import with_radius_verdict
+    from ringgauge.conformity import TermVerdict, Verdict, with_radius_verdict
 
     @dataclass(frozen=True)
     class R:  # the fields of an AnalysisResult the verdict reads
         setup: object
         form: object
-        verdict: dict | None
+        verdict: Verdict | None
         radius_mm: float | None = None
         radius_U_mm: float | None = None  # noqa: N815
 
-    form_verdict = {"overall": "pass", "terms": [{"term": "power", "verdict": "pass"}], "rule": "simple",
-                    "decision_rule": "simple acceptance: ..."}
+    power = TermVerdict("power", 1.2, 0.1, 2.0, "fringes", 1.2, 0.1, 2.0, 330.0, 546.07, False, "pass")
+    form_verdict = Verdict("pass", (power,), "simple acceptance: ...", "simple")
     setup = SimpleNamespace(radius_tolerance="51.68 ± 0.02", decision_rule="simple")
-    block = {"surface_radius_mm": 51.695, "surface_radius_U_mm": 0.004}
-    out = with_radius_verdict(R(setup, SimpleNamespace(radius=block), form_verdict))
+
+    def block(r, U=None, note=None):  # the surface-radius fields of a form result
+        return SimpleNamespace(surface_radius_mm=r, surface_radius_U_mm=U, surface_radius_note=note)
+
+    out = with_radius_verdict(R(setup, SimpleNamespace(radius=block(51.695, 0.004)), form_verdict))
     v = out.verdict
-    assert v["radius"]["quantity"] == "surface radius" and v["radius"]["verdict"] == "pass"
-    assert v["form_overall"] == "pass" and v["overall"] == "pass" and v["terms"] == form_verdict["terms"]
-    block = {"surface_radius_mm": 51.702, "surface_radius_U_mm": 0.004}  # 51.698 .. 51.706 straddles 51.70
-    v = with_radius_verdict(R(setup, SimpleNamespace(radius=block), form_verdict)).verdict
-    assert v["radius"]["verdict"] == "conditional fail" and v["overall"] == "conditional fail"
+    assert v.radius.quantity == "surface radius" and v.radius.verdict == "pass"
+    assert v.form_overall == "pass" and v.overall == "pass" and v.terms == form_verdict.terms
+    # 51.698 .. 51.706 straddles 51.70
+    v = with_radius_verdict(R(setup, SimpleNamespace(radius=block(51.702, 0.004)), form_verdict)).verdict
+    assert v.radius.verdict == "conditional fail" and v.overall == "conditional fail"
     # sign of power unknown: no surface radius, so no radius verdict — said, not guessed
-    block = {"surface_radius_mm": None, "surface_radius_note": "sign unknown"}
-    v = with_radius_verdict(R(setup, SimpleNamespace(radius=block), form_verdict)).verdict
-    assert v["radius"]["verdict"] == "not evaluated" and "sign unknown" in v["radius"]["note"]
-    assert v["overall"] == "pass"  # the form verdict still stands
+    v = with_radius_verdict(R(setup, SimpleNamespace(radius=block(None, note="sign unknown")), form_verdict)).verdict
+    assert v.radius.verdict == "not evaluated" and "sign unknown" in v.radius.note
+    assert v.overall == "pass"  # the form verdict still stands
     # no radius tolerance: the result is untouched
     plain = R(SimpleNamespace(radius_tolerance=None, decision_rule="simple"), None, None, 1000.0, 2.0)
     assert with_radius_verdict(plain) is plain

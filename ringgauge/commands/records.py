@@ -312,6 +312,13 @@ def run_supersede(args) -> int:
             raise InputError(f"{p}: not valid JSON (line {exc.lineno}: {exc.msg})") from None
         if not isinstance(result, dict) or "setup" not in result or "image" not in result:
             raise InputError(f"{p}: not a ringgauge result (expected the JSON of 'ringgauge analyze --out')")
+        from ..result import AnalysisResult
+
+        try:  # every stored result must read back as a typed result, a hand-edited one too
+            AnalysisResult.from_dict({k: v for k, v in result.items() if k != "ringgauge_seal"})
+        except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
+            raise InputError(f"{p}: not a whole ringgauge result ({type(exc).__name__}: {exc}); start from the JSON "
+                             "of 'ringgauge analyze --out'") from None
         why = check_seal(result)
         if why is None:
             origin, how = "sealed result", "new result (sealed by ringgauge)"

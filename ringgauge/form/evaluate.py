@@ -20,17 +20,21 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import replace
 
 import numpy as np
 
 from ..errors import AnalysisError, InputError
-from .aperture import Aperture, aperture_for
+from .aperture import aperture_for
 from .fit import GapFit, finesse_coefficient, fit_gap
 from .phase import PhaseMap, ansi_nm, phase_map, zernike_fit
 from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxial, radius_budget
 from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
 from .tolerance import Tolerance, judge, parse_tolerance
+from .result import (TERM_KEYS, FitSummary, FormResult, FormTerm, HeightMap, Mask, PhaseSummary,
+                     SurfaceRadius, ZernikeSet, ZernikeTerm, u_nm)
+from ..conformity import Verdict
+from ..uncertainty import Quantity
 
 MC_DRAWS = 300
 
@@ -41,16 +45,7 @@ def finesse_candidates(n: float) -> tuple[float, ...]:
     return (0.0, finesse_coefficient(1.45, n), finesse_coefficient(1.90, n))
 GLASS_INDEX = 1.52  # typical crown glass; sets the multiple-beam fringe shape (common practice, no source)
 
-FORM_TERMS = (
-    "power_fringes",
-    "astigmatism_fringes",
-    "irregularity_fringes",
-    "rot_sym_irregularity_fringes",
-    "rms_total_fringes",
-    "rms_irregularity_fringes",
-    "rms_asymmetric_fringes",
-    "pv_total_fringes",
-)
+FORM_TERMS = TERM_KEYS  # result keys of the form terms, in order (ringgauge.form.result.FORM_TERMS)
 
 
 RIM = 720  # points on the test disc's edge used for the PV terms (a square grid misses the rim's extremes)
@@ -125,136 +120,6 @@ def form_terms_batch(Ws: np.ndarray, u: np.ndarray, v: np.ndarray, rim: int = 0)
         "rms_irregularity_fringes": np.sqrt(np.mean(wi * wi, axis=1)),
         "rms_asymmetric_fringes": np.sqrt(np.mean(wa * wa, axis=1)),
         "pv_total_fringes": np.ptp(wt_f, axis=1),
-    }
-
-
-@dataclass(frozen=True)
-class FormResult:
-    """Surface form of one part against a test plate. ``to_dict()`` is the JSON the tool prints and keeps."""
-
-    wavelength_nm: float
-    wavelength_u_nm: float
-    medium_index: float
-    fringe_nm: float
-    terms: dict  # name -> value (fringes), magnitudes for power when the sign is unknown
-    terms_u: dict  # name -> standard uncertainty (fringes)
-    astigmatism_axis_deg: float
-    astigmatism_axis_u_deg: float | None
-    test_diameter_mm: float
-    test_diameter_source: str
-    aperture: Aperture
-    aperture_diameter_mm: float
-    masks: tuple[dict, ...]
-    masked_fraction: float
-    sign: SignResult
-    fits: tuple[GapFit, ...]
-    radius: dict | None
-    tolerance: Tolerance | None
-    verdict: dict
-    warnings: tuple[str, ...]
-    pixel_size_um: tuple[float, float]
-    elapsed_s: float
-    k: float = 2.0
-    notes: tuple[str, ...] = field(default_factory=tuple)
-    budget_rows: dict = field(default_factory=dict)  # term -> ((source, u in fringes), ...)
-    route: str = "one-frame fit"  # how the form was measured (one-frame fit, model fit with piston steps, phase map)
-    zernike_ansi: dict | None = None  # ANSI Z80.28 coefficients over the test diameter (nm)
-    height_map_nm: np.ndarray | None = None  # surface departure less piston and tilt, nm, NaN outside (grid)
-    map_extent_px: tuple | None = None  # (x_left, x_right, y_bottom, y_top) of that grid in frame pixels
-    phase: dict | None = None  # phase-map details (steps, tilts, modulation) when that route was used
-
-    def value(self, name: str) -> float:
-        return self.terms[name]
-
-    def to_dict(self) -> dict:
-        fr = self.fringe_nm
-        d: dict = {
-            "method": "full-aperture fit of a gap model (Zernike terms, OSA/ANSI order, unnormalised) with "
-            "illumination and modulation terms; form terms per ISO 10110-5 over the test diameter",
-            "wavelength_nm": self.wavelength_nm,
-            "wavelength_u_nm": self.wavelength_u_nm,
-            "medium_index": self.medium_index,
-            "fringe_nm": fr,
-            "fringe_definition": "one fringe = λ/(2n) of surface height",
-            "k": self.k,
-            "uncertainty_note": "u = standard uncertainty (k = 1); U = k·u",
-        }
-        for name in FORM_TERMS:
-            v = self.terms[name]
-            u = self.terms_u.get(name)
-            d[name] = v
-            d[name.replace("_fringes", "_u_fringes")] = u
-            d[name.replace("_fringes", "_nm")] = v * fr
-            d[name.replace("_fringes", "_u_nm")] = None if u is None else _u_nm(v, u, fr, self.wavelength_u_nm,
-                                                                                  self.wavelength_nm)
-        d["power_sign"] = self.sign.to_dict()["sign"]
-        d["astigmatism_axis_deg"] = self.astigmatism_axis_deg
-        d["astigmatism_axis_u_deg"] = self.astigmatism_axis_u_deg
-        d["astigmatism_axis_convention"] = (
-            "meridian of larger power magnitude, degrees from the image x axis (columns) toward y (rows, down)"
-        )
-        d["flatness_pv_nm"] = self.terms["pv_total_fringes"] * fr
-        d["flatness_pv_u_nm"] = d["pv_total_u_nm"]
-        d["test_diameter_mm"] = self.test_diameter_mm
-        d["test_diameter_source"] = self.test_diameter_source
-        d["aperture"] = {
-            **self.aperture.to_dict(self.pixel_size_um),
-            "diameter_mm": self.aperture_diameter_mm,
-        }
-        d["uncertainty_budget"] = {
-            name: [{"source": src, "u_fringes": u, "u_nm": u * fr} for src, u in rows]
-            for name, rows in self.budget_rows.items()
-        }
-        d["masks"] = list(self.masks)
-        d["masked_fraction"] = self.masked_fraction
-        d["sign"] = self.sign.to_dict()
-        d["fit"] = [_fit_dict(f) for f in self.fits]
-        d["radius"] = self.radius
-        d["tolerance"] = None if self.tolerance is None else self.tolerance.to_dict()
-        d["verdict"] = self.verdict
-        d["warnings"] = list(self.warnings)
-        d["notes"] = list(self.notes)
-        d["elapsed_s"] = self.elapsed_s
-        d["route"] = self.route
-        d["zernike_ansi"] = self.zernike_ansi
-        if self.phase is not None:
-            d["phase_map"] = self.phase
-        if self.height_map_nm is not None:
-            m = self.height_map_nm
-            d["height_map"] = {
-                "unit": "nm of surface height, less piston and tilt; null outside the aperture",
-                "sign": "gap as measured (positive = gap grows)" if self.sign.sign else
-                        "orientation with power >= 0 (sign unknown)",
-                "rows": int(m.shape[0]), "cols": int(m.shape[1]),
-                "extent_px": list(self.map_extent_px) if self.map_extent_px is not None else None,
-                "values": [[None if not np.isfinite(x) else round(float(x), 2) for x in row] for row in m],
-            }
-        return d
-
-
-def _u_nm(v, u, fr, u_lam, lam):
-    return math.hypot(u * fr, v * fr * (u_lam / lam))
-
-
-def _fit_dict(f: GapFit) -> dict:
-    u = None if f.covariance is None else np.sqrt(np.clip(np.diag(f.covariance), 0, None))
-    return {
-        "terms": list(f.names),
-        "coefficients_fringes": [float(c) for c in f.coeffs],
-        "coefficients_u_fringes": None if u is None else [float(x) for x in u],
-        "covariance_fringes2": None if f.covariance is None else f.covariance.tolist(),
-        "covariance_scaling": "reduced chi-square times a pixel-correlation factor",
-        "correlation_factor": f.correlation_factor,
-        "ndata": f.ndata,
-        "nvarys": f.nvarys,
-        "chisqr": f.chisqr,
-        "redchi": f.redchi,
-        "residual_rms": f.residual_rms,
-        "modulation": f.contrast,
-        "success": f.success,
-        "message": f.message,
-        "normalisation": {"centre_px": list(f.centre_px), "radius_px": f.radius_px, "aspect_y_over_x": f.aspect},
-        "notes": list(f.notes),
     }
 
 
@@ -538,21 +403,38 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
                     rule=setup.decision_rule, sign_known=bool(sign.sign))
     if verdict.get("wavelength_note"):
         notes.append(verdict["wavelength_note"])
+    u_lam = setup.source.wavelength_u_nm
+    k = 2.0
+    quantities = tuple(
+        FormTerm(name.removesuffix("_fringes"),
+                 Quantity(float(terms[name]), _opt(terms_u.get(name)), "fringes", k),
+                 Quantity(float(terms[name]) * fr,
+                          None if terms_u.get(name) is None else u_nm(terms[name], terms_u[name], fr, u_lam, lam),
+                          "nm", k))
+        for name in FORM_TERMS
+    )
     return FormResult(
-        wavelength_nm=lam, wavelength_u_nm=setup.source.wavelength_u_nm, medium_index=n, fringe_nm=fr,
-        terms=terms, terms_u=terms_u, astigmatism_axis_deg=terms["astigmatism_axis_deg"],
-        astigmatism_axis_u_deg=axis_u, test_diameter_mm=float(td), test_diameter_source=td_src, aperture=ap,
-        aperture_diameter_mm=ap_diam_mm, masks=tuple(masks),
+        wavelength_nm=lam, wavelength_u_nm=u_lam, medium_index=n, fringe_nm=fr, quantities=quantities,
+        astigmatism_axis=Quantity(float(terms["astigmatism_axis_deg"]), _opt(axis_u), "°", k),
+        test_diameter_mm=float(td), test_diameter_source=td_src, aperture=ap,
+        aperture_diameter=Quantity(float(ap_diam_mm), 2 * float(ap.radius_u_px) * px * 1e-3, "mm", k),
+        masks=tuple(Mask.from_dict(m) for m in masks),
         masked_fraction=float(masked_px / max(1, len(frames) * math.pi * ap.radius_px**2 / aspect)),
-        sign=sign, fits=tuple(fits), radius=radius, tolerance=tol, verdict=verdict,
+        sign=sign, fits=tuple(FitSummary.of(f) for f in fits), radius=SurfaceRadius.from_dict(radius),
+        tolerance=tol, verdict=Verdict.from_dict(verdict),
         warnings=tuple(dict.fromkeys(warnings)), pixel_size_um=(px, py),
         elapsed_s=time.perf_counter() - t0, notes=tuple(notes),
-        budget_rows={k: tuple(v) for k, v in budget_rows.items()},
+        budget_rows={key: tuple((src, float(u)) for src, u in v) for key, v in budget_rows.items()},
         route=route,
         zernike_ansi=_ansi_block(W[:-RIM], un[:-RIM], vn[:-RIM], td, fr),
-        height_map_nm=hmap, map_extent_px=hext,
-        phase=None if pm is None else _phase_dict(pm),
+        height_map=None if hmap is None else HeightMap.of(hmap, hext, bool(sign.sign)),
+        phase=None if pm is None else PhaseSummary.of(pm),
+        engine_fits=tuple(fits),
     )
+
+
+def _opt(x) -> float | None:
+    return None if x is None else float(x)
 
 
 # Zernike degree of the phase map's smooth description: 28 ANSI terms, as rich as the gap model. The map stops
@@ -595,21 +477,14 @@ def _map_coefficients(pm: PhaseMap, k_td: float, max_samples: int = 40000):
     return coef, cov, sign
 
 
-def _ansi_block(W, un, vn, td_mm, fringe_nm) -> dict:
+def _ansi_block(W, un, vn, td_mm, fringe_nm) -> ZernikeSet:
     """The form as ANSI Z80.28 Zernike coefficients over the test diameter (nm of surface height)."""
     coef, _ = zernike_fit(np.asarray(W, dtype=float), un, vn, 6)
     rows = []
     for j, c in enumerate(coef):
         n_, m_ = ansi_nm(j)
-        rows.append({"j": j, "n": n_, "m": m_, "nm": float(c * fringe_nm)})
-    return {
-        "ordering": "ANSI Z80.28 / ISO 24157 single index j = (n(n+2)+m)/2",
-        "normalisation": "orthonormal over the unit disc: N = sqrt(2(n+1)/(1+δm0)); cos for m > 0, sin for m < 0",
-        "angle": "from the image x axis (columns) toward y (rows, down)",
-        "diameter_mm": float(td_mm),
-        "orientation": "power >= 0 (apply power_sign for the surface's sense)",
-        "terms": rows,
-    }
+        rows.append(ZernikeTerm(j, n_, m_, float(c * fringe_nm)))
+    return ZernikeSet(float(td_mm), tuple(rows))
 
 
 def _height_map(pm, fits, ap, fringe_nm, sign):
@@ -655,23 +530,6 @@ def _height_map(pm, fits, ap, fringe_nm, sign):
     out = np.full(u.shape, np.nan)
     out[inside] = s * (coeffs @ gap_basis(u[inside], v[inside], len(coeffs))) * fringe_nm
     return out, (float(xs[0]), float(xs[-1]), float(ys[-1]), float(ys[0]))
-
-
-def _phase_dict(pm: PhaseMap) -> dict:
-    return {
-        "method": "advanced iterative algorithm (Wang & Han, Opt. Lett. 29, 1671, 2004) with per-frame piston "
-                  "and tilt, started by principal components (Vargas et al., Opt. Lett. 36, 1326, 2011); "
-                  "unwrapped with skimage.restoration.unwrap_phase",
-        "frames": pm.n_frames,
-        "steps_fringes": list(pm.steps_fringes),
-        "tilt_changes_fringes_per_radius": [list(t) for t in pm.tilts_fringes],
-        "orientation_from_steps": {1: "as stated gap change", -1: "reversed", 0: "undecided"}[pm.orientation],
-        "orientation_detail": pm.orientation_detail,
-        "fringe_visibility": pm.modulation,
-        "phase_noise_fringes": None if not math.isfinite(pm.phase_noise_fringes) else pm.phase_noise_fringes,
-        "iterations": pm.iterations,
-        "converged": pm.converged,
-    }
 
 
 def _basis(g: GapFit, u, v):

@@ -57,6 +57,13 @@ class SignResult:
             "piston_steps_u_fringes": list(self.steps_u_fringes),
         }
 
+    @classmethod
+    def from_dict(cls, d: dict) -> "SignResult":
+        return cls({"+": 1, "-": -1}.get(d.get("sign"), 0), None if d.get("confidence") is None else
+                   float(d["confidence"]), str(d.get("method") or "none"), str(d.get("detail") or ""),
+                   tuple(float(x) for x in d.get("piston_steps_fringes") or ()),
+                   tuple(float(x) for x in d.get("piston_steps_u_fringes") or ()))
+
 
 UNKNOWN = SignResult(0, None, "none", "one frame cannot tell centre from edge contact; take a second frame with "
                      "the gap changed, or give the press-test observation")

@@ -10,24 +10,11 @@ from typing import Any
 
 from ..errors import InputError, RinggaugeError
 from ..imaging import load_frame
-from .display import _num, verdict_view
+from ..result import AnalysisResult
+from .display import verdict_view
 from .model import Signal, image_files, progress_adapter
 
 QUEUED, RUNNING, DONE, FAILED = "queued", "analysing", "done", "failed"
-
-
-def _form_value(d: dict, *names: str) -> tuple[float | None, str]:
-    """A form term (value, unit) by its name in the form evaluation's dict, e.g. ``power_fringes``."""
-    form = d.get("form") or {}
-    if not isinstance(form, dict):
-        return None, ""
-    for n in names:
-        v = form.get(n)
-        if isinstance(v, dict) and "value" in v:
-            return _num(v.get("value")), str(v.get("unit", ""))
-        if _num(v) is not None:
-            return _num(v), "fringes" if n.endswith("_fringes") else ""
-    return None, ""
 
 
 @dataclass
@@ -58,37 +45,28 @@ COLUMNS = (
 )
 
 
-def summarise(result) -> dict:
-    """The lot table's values from a result (via its ``to_dict()``)."""
-    d = result.to_dict() if hasattr(result, "to_dict") else dict(result)
-    power, _ = _form_value(d, "power_fringes")
-    irr, _ = _form_value(d, "irregularity_fringes")
-    v = verdict_view(d)
+def summarise(result: AnalysisResult) -> dict:
+    """The lot table's values from a typed result."""
+    form = result.form
+    v = verdict_view(result)
+    rv = result.verdict.radius if result.verdict is not None else None
+    radius_word = None
+    if rv is not None:
+        radius_word = rv.verdict + ("" if rv.accepted is None or rv.accepted else " (not accepted)")
     return {
-        "radius_mm": _num(d.get("radius_mm")),
-        "radius_U_mm": _num(d.get("radius_U_mm")),
-        "k": _num(d.get("k")),
-        "power": power,
-        "irregularity": irr,
+        "radius_mm": result.radius_mm,
+        "radius_U_mm": result.radius_U_mm,
+        "k": result.k,
+        "power": None if form is None else form.term("power").fringes.value,
+        "irregularity": None if form is None else form.term("irregularity").fringes.value,
         "verdict": v.word,
-        "radius_verdict": _radius_word(d),
-        "radius_tolerance": (((d.get("verdict") or {}).get("radius") or {}).get("tolerance") or {}).get("described")
-        if isinstance(d.get("verdict"), dict) else None,
+        "radius_verdict": radius_word,
+        "radius_tolerance": None if rv is None else rv.tolerance.describe(),
         "decision_rule": v.decision_rule,
-        "sha256": (d.get("image") or {}).get("sha256", ""),
-        "wavelength_nm": _num((d.get("setup") or {}).get("wavelength_nm")),
-        "warnings": "; ".join(d.get("warnings") or []),
+        "sha256": result.image.sha256,
+        "wavelength_nm": result.setup.wavelength_nm,
+        "warnings": "; ".join(result.warnings),
     }
-
-
-def _radius_word(d: dict) -> str | None:
-    rv = (d.get("verdict") or {}).get("radius") if isinstance(d.get("verdict"), dict) else None
-    if not isinstance(rv, dict):
-        return None
-    word = str(rv.get("verdict", ""))
-    if rv.get("accepted") is not None:
-        word += "" if rv["accepted"] else " (not accepted)"
-    return word
 
 
 class Lot:
@@ -164,8 +142,7 @@ class Lot:
         out = []
         for i, r in enumerate(self.rows):
             if r.status == DONE and r.result is not None:
-                d = r.result.to_dict() if hasattr(r.result, "to_dict") else dict(r.result)
-                out.append(entry_from_result(d, order=i, serial=os.path.splitext(r.name)[0], image_name=r.name,
+                out.append(entry_from_result(r.result, order=i, serial=os.path.splitext(r.name)[0], image_name=r.name,
                                              record_id=r.record_id))
             elif r.status == FAILED:
                 out.append(entry_from_result(None, order=i, serial=os.path.splitext(r.name)[0], image_name=r.name,

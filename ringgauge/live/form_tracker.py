@@ -123,7 +123,7 @@ class FormTracker:
         setup = s.with_(pixel_size_um=s.pixel_size_um * self.f,
                         pixel_size_y_um=None if s.pixel_size_y_um is None else s.pixel_size_y_um * self.f)
         res = evaluate_form([frame_from_array(small, full_scale=1.0)], setup)
-        g0 = res.fits[0]
+        g0 = res.engine_fits[0]
         self.last_full = res
         self.prior = g0
         self.contrast0 = g0.contrast
@@ -132,7 +132,7 @@ class FormTracker:
         self.radius = ap.radius_px
         self.aspect = g0.aspect
         self.rel_a = ap.radius_u_px / ap.radius_px
-        k_td = min(1.0, res.test_diameter_mm / res.aperture_diameter_mm)
+        k_td = min(1.0, res.test_diameter_mm / res.aperture_diameter.value)
         uu, vv, self.un, self.vn, self.rim = _grid(k_td)
         self.Z = gap_basis(uu, vv, len(g0.coeffs))
         self._linear_maps()

@@ -96,10 +96,10 @@ class RingTracker:
         frame = frame_from_array(codes, full_scale=full_scale)
         res = analyse_rings(frame, self.setup)
         ff = res.fullfield
-        q = 2 * math.pi / ff["period_px2_per_fringe"]
+        q = 2 * math.pi / ff.period_px2_per_fringe
         h, w = codes.shape
-        cx, cy = ff["centre_px"]
-        self.r_fit = float(ff["r_max_px"])
+        cx, cy = ff.centre_px
+        self.r_fit = float(ff.r_max_px)
         self._shape = (h, w)
         self._new_sample(cx, cy)
         xs, ys, vals = self._values(codes, full_scale)

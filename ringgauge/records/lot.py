@@ -21,7 +21,9 @@ from typing import Iterable, Sequence
 
 import numpy as np
 
+from ..bench_setup import BenchSetup
 from ..errors import InputError
+from ..result import AnalysisResult
 
 #: the order verdict counts are listed in
 VERDICT_ORDER = ("pass", "conditional pass", "conditional fail", "fail", "not evaluated", "analysis failed")
@@ -287,34 +289,39 @@ def as_entry(r) -> LotEntry:
     """A :class:`LotEntry` from an inspection record (or the entry itself)."""
     if isinstance(r, LotEntry):
         return r
-    res = r.result if isinstance(getattr(r, "result", None), dict) else {}
-    setup = (r.setup if isinstance(r.setup, dict) else None) or res.get("setup") or {}
+    res = r.analysis if r.status == "ok" and r.has_result else None
+    setup = res.setup if res is not None else (BenchSetup.from_dict(r.setup) if _usable_setup(r.setup) else None)
     return entry_from_result(res, order=r.id, serial=r.meta.serial, image_name=r.image_name,
                              failed=r.status == "failed", failure=r.failure_reason, setup=setup,
                              verdict=r.verdict, radius=(r.radius_mm, r.radius_U_mm),
                              power=(r.power_fringes, r.power_U_fringes), record_id=r.id)
 
 
-def entry_from_result(d: dict | None, *, order: int, serial: str | None = None, image_name: str | None = None,
-                      failed: bool = False, failure: str | None = None, setup: dict | None = None,
-                      verdict: str | None = None, radius=None, power=None, record_id: int | None = None) -> LotEntry:
-    """A :class:`LotEntry` from a result dict (``AnalysisResult.to_dict()``); the keyword values, when given,
-    take precedence (an inspection record's columns)."""
-    d = d or {}
-    setup = setup or d.get("setup") or {}
-    v = d.get("verdict")
-    overall = verdict or ((v or {}).get("overall") if isinstance(v, dict) else v) or "not evaluated"
+def _usable_setup(s) -> bool:
+    return isinstance(s, dict) and bool(s.get("wavelength_nm")) and bool(s.get("pixel_size_um"))
+
+
+def entry_from_result(res: AnalysisResult | None, *, order: int, serial: str | None = None,
+                      image_name: str | None = None, failed: bool = False, failure: str | None = None,
+                      setup: BenchSetup | None = None, verdict: str | None = None, radius=None, power=None,
+                      record_id: int | None = None) -> LotEntry:
+    """A :class:`LotEntry` from a typed result; the keyword values, when given, take precedence (an inspection
+    record's columns)."""
+    setup = setup or (res.setup if res is not None else None)
+    v = res.verdict if res is not None else None
+    overall = verdict or (v.overall if v is not None else None) or "not evaluated"
     if failed:
         overall = "analysis failed"
     if radius is None:
-        radius = (d.get("radius_mm"), d.get("radius_U_mm"))
+        radius = (None, None) if res is None else (res.radius_mm, res.radius_U_mm)
     if power is None:
-        form = d.get("form") if isinstance(d.get("form"), dict) else {}
-        u = form.get("power_u_fringes")
-        power = (form.get("power_fringes"), None if u is None else (form.get("k") or 2.0) * u)
-    tol = setup.get("radius_tolerance")
-    rule = setup.get("decision_rule") or "simple"
-    rv = (v or {}).get("radius") if isinstance(v, dict) else None
+        power = (None, None)
+        if res is not None and res.form is not None:
+            q = res.form.term("power").fringes
+            power = (q.value, q.U)
+    tol = setup.radius_tolerance if setup is not None else None
+    rule = (setup.decision_rule if setup is not None else None) or "simple"
+    rv = v.radius.to_dict() if v is not None and v.radius is not None else None
     if rv is None and tol and not failed and radius[0] is not None:
         from ..conformity import judge_radius, parse_radius_tolerance
 

@@ -32,11 +32,15 @@ from contextlib import contextmanager
 from dataclasses import asdict, dataclass, field, fields, replace
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any, Iterator
+from functools import cached_property
+from typing import TYPE_CHECKING, Any, Iterator
 
 from .. import __version__
 from ..errors import InputError, RinggaugeError as RinggaugeErrorBase, StoreError
 from . import keys as _keys
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..result import AnalysisResult
 
 DEFAULT_STORE_NAME = "records.sqlite"
 
@@ -125,6 +129,22 @@ class InspectionRecord:
     @property
     def manual(self) -> bool:
         return self.origin == "manual"
+
+    @cached_property
+    def analysis(self) -> AnalysisResult | None:
+        """The stored result as a typed :class:`~ringgauge.result.AnalysisResult` (the JSON ``result`` stays the
+        record's checksummed truth). None for a failed record, one read without its result, or a hand-made
+        result that is not a whole analysis; a damaged analysis result raises :class:`InputError`."""
+        from ..result import AnalysisResult  # numpy; listings do without it
+
+        if self.status != "ok" or not self.has_result or not self.result:
+            return None
+        try:
+            return AnalysisResult.from_dict(self.result)
+        except (InputError, KeyError, TypeError, ValueError) as exc:
+            if self.manual:
+                return None
+            raise InputError(f"record {self.id}: its stored result cannot be read ({exc})") from None
 
     @property
     def current(self) -> bool:

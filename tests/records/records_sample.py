@@ -4,6 +4,13 @@ uses, so worker processes and other folders' conftest files cannot shadow it."""
 
 from __future__ import annotations
 
+import json
+from pathlib import Path
+
+# the whole shape of a ring fit and of a form result, taken once from analyses of generated images
+# (sample_parts.json); the values the records tests look at are set below
+_PARTS = json.loads((Path(__file__).with_name("sample_parts.json")).read_text(encoding="utf-8"))
+
 _BASE = {
     "ringgauge_version": "0.1.0",
     "image": {"path": "/bench/img.png", "sha256": "", "width": 640, "height": 480, "bit_depth": 8,
@@ -32,13 +39,13 @@ _BASE = {
                     "u": 1e-6, "distribution": "normal", "divisor": 1.0, "sensitivity": 1833.0,
                     "sensitivity_unit": "1/mm", "contribution": 0.0018, "share": 0.03, "dof": 12, "note": ""},
                ]},
-    "fringes": {"slope_mm2_per_fringe": 0.0282, "rings_used": 3,
+    "fringes": {**_PARTS["fringes"], "slope_mm2_per_fringe": 0.0282, "rings_used": 3,
                 "rings": [{"order": m, "kind": "dark", "radius_px": 16.8 * m ** 0.5, "radius_mm": 0.168 * m ** 0.5,
                            "r2_mm2": 0.0282 * m, "u_r2_mm2": 1e-5, "residual_mm2": 0.0, "used": True}
                           for m in (1, 2, 3)]},
     "fullfield": {},
-    "form": {"power_fringes": 1.2, "power_u_fringes": 0.05, "irregularity_fringes": 0.3,
-             "irregularity_u_fringes": 0.05, "verdict": "pass"},
+    "form": {**_PARTS["form"], "power_fringes": 1.2, "power_u_fringes": 0.05, "irregularity_fringes": 0.3,
+             "irregularity_u_fringes": 0.05},
     "verdict": {"overall": "pass", "terms": [], "decision_rule": "simple acceptance"},
     "warnings": [],
     "elapsed_s": 0.5,
