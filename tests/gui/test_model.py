@@ -3,15 +3,17 @@
 import csv
 import math
 import os
+from dataclasses import replace
 
 import numpy as np
 import pytest
 
+from ringgauge.conformity import TermVerdict, Verdict
 from ringgauge.errors import ImageError, InputError
 from ringgauge.gui import display
 from ringgauge.gui.lot import DONE, FAILED, Lot
 from ringgauge.gui.model import BenchSession, FolderWatch, Overrides, SetupState, _Cancelled
-from ringgauge.imaging import load_frame
+from ringgauge.imaging import frame_from_array, load_frame
 
 from gui_helpers import FakeEngine, hand_result, noiseless_rings, write_rings
 
@@ -138,13 +140,12 @@ def test_folder_watch_reports_new_files_once_they_stop_growing(tmp_path):
 def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     f = load_frame(sample_dir / "lens-A01.png")
     setup = SetupState(source="sodium-d", pixel_size_um=16.0).to_bench_setup()
-    # the verdict dict as the form evaluation writes it
-    verdict = {"overall": "conditional pass", "terms": [{"term": "power", "verdict": "conditional pass",
-                                                          "value_fringes": 2.9, "U_fringes": 0.2,
-                                                          "limit_fringes": 3.0}],
-               "decision_rule": "simple acceptance", "meaning": "within U of a limit"}
-    d = hand_result(f, setup, 1234.5, verdict=verdict).to_dict()
-    rows = {r.label: r for r in display.value_rows(d)}
+    # the verdict as the form evaluation makes it
+    term = TermVerdict("power", 2.9, 0.2, 3.0, "fringes", 2.9, 0.2, 3.0, None, 546.074, False, "conditional pass")
+    verdict = Verdict("conditional pass", (term,), decision_rule="simple acceptance", meaning="within U of a limit")
+    res = hand_result(f, setup, 1234.5, verdict=verdict)
+    d = res.to_dict()
+    rows = {r.label: r for r in display.value_rows(res)}
     R = rows["Radius of curvature R"]
     U = d["radius_U_mm"]
     assert R.unit == "mm" and R.uncertainty.startswith("± ")
@@ -157,13 +158,13 @@ def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     assert (len(R.value.split(".")[1]) if "." in R.value else 0) == dec, (R.value, u_text)
     assert abs(float(R.value) - 1234.5) <= 0.5 * 10.0**-dec + 1e-9
     assert rows["Wavelength λ"].unit == "nm" and rows["Pixel size x"].unit == "µm"
-    v = display.verdict_view(d)
+    v = display.verdict_view(res)
     assert (v.word, v.tone, v.decision_rule) == ("CONDITIONAL PASS", "conditional", "simple acceptance")
     assert v.terms == ("power (A): CONDITIONAL PASS (2.90 ± 0.20 fringes, limit 3 fringes)",)
     assert v.explanation == "within U of a limit"
     for overall, word in (("pass", "PASS"), ("fail", "FAIL"), ("conditional fail", "CONDITIONAL FAIL")):
-        assert display.verdict_view({"verdict": {"overall": overall}}).word == word
-    ov = display.overlay_from(d, {"aperture_px": (10, 20, 30)})
+        assert display.verdict_view(replace(res, verdict=Verdict(overall))).word == word
+    ov = display.overlay_from(res, {"aperture_px": (10, 20, 30)})
     assert len(ov.rings) == 10 and ov.centre == ((f.shape[1] - 1) / 2, (f.shape[0] - 1) / 2)
     assert ov.aperture == (10.0, 20.0, 30.0, 30.0) and ov.aperture_by_hand
     # ring radii drawn where r^2 = m lambda R / n puts them (Newton's rings; Hecht, Optics, ch. 9 — from memory)
@@ -175,11 +176,12 @@ def test_residual_view_is_small_for_the_right_fit_and_large_for_a_wrong_one():
     img, truth = noiseless_rings()
     lam_mm = 589.2938e-6
     R = truth["radius_mm"]
-    base = {"centre_px": truth["centre_px"], "setup": {"pixel_size_um": [20.0, 20.0]},
-            "fringes": {"slope_mm2_per_fringe": lam_mm * R, "intercept_mm2": 0.0, "r_max_mm": 1.5}}
+    setup = SetupState(source="sodium-d", pixel_size_um=20.0).to_bench_setup()
+    made = hand_result(frame_from_array(img), setup, R)
+    base = replace(made, centre_px=tuple(truth["centre_px"]),
+                   fit=replace(made.fit, slope_mm2=lam_mm * R, intercept_mm2=0.0, r_max_mm=1.5))
     right = display.residual_image(img, base)
-    wrong = display.residual_image(img, {**base, "fringes": {**base["fringes"],
-                                                             "slope_mm2_per_fringe": lam_mm * R * 1.03}})
+    wrong = display.residual_image(img, replace(base, fit=replace(base.fit, slope_mm2=lam_mm * R * 1.03)))
     amp = np.nanstd(img)
     # the Airy fringe shape is not a pure cosine, so the right model leaves a small harmonic residual
     assert np.nanstd(right) < 0.05 * amp
@@ -248,7 +250,11 @@ def test_job_progress_takes_fraction_and_message_or_a_message_alone(sample_dir):
 
 
 def test_hand_settings_the_result_ignored_are_named():
-    d = {"centre_px": [100.0, 80.0], "form": {"aperture": {"centre_px": [150.0, 150.0], "diameter_px": 200.0}}}
+    from types import SimpleNamespace
+
+    made = hand_result(frame_from_array(noiseless_rings()[0]), SetupState().to_bench_setup(), 800.0)
+    aperture = SimpleNamespace(centre_px=(150.0, 150.0), radius_px=100.0)  # 200 px across
+    d = replace(made, centre_px=(100.0, 80.0), form=SimpleNamespace(aperture=aperture))
     assert display.overrides_ignored(d, {"centre_px": (101.0, 81.0)}) == []
     assert display.overrides_ignored(d, {"centre_px": (120.0, 80.0)})[0].startswith("centre")
     assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 100.5)}) == []
@@ -274,7 +280,7 @@ def test_form_residual_follows_the_gap_fit():
         coeffs = np.zeros(len(fit.TERMS))
         coeffs[0], coeffs[3] = piston + power / 2, power / 2
         g = SimpleNamespace(names=tuple(t[0] for t in fit.TERMS), coeffs=coeffs, centre_px=c, radius_px=r, aspect=1.0)
-        return SimpleNamespace(fits=(g,), fringe_nm=273.0)
+        return SimpleNamespace(engine_fits=(g,), fringe_nm=273.0)
 
     right = display.residual_image(img, None, form_obj=form_with(P))
     wrong = display.residual_image(img, None, form_obj=form_with(P + 0.15))
@@ -294,8 +300,20 @@ def test_cancel_stops_the_running_job_at_its_next_report(sample_dir):
 
 
 def test_headline_carries_the_key_values_with_their_uncertainty():
-    assert display.headline({"radius_mm": 826.2632, "radius_U_mm": 3.3776, "k": 2.0}) == "R = 826.3 ± 3.4 mm  (k = 2)"
-    form = {"k": 2.0, "power_fringes": 1.6903, "power_u_fringes": 0.0065, "irregularity_fringes": 0.3481,
-            "irregularity_u_fringes": 0.012}
-    assert display.headline({"form": form}) == "Power 1.690 ± 0.013 · Irregularity 0.348 ± 0.024 fringes  (k = 2)"
+    from types import SimpleNamespace
+
+    from ringgauge.form.result import FormResult, FormTerm
+    from ringgauge.uncertainty import Quantity
+
+    made = hand_result(frame_from_array(noiseless_rings()[0]), SetupState().to_bench_setup(), 800.0)
+    radius = replace(made, radius=Quantity(826.2632, 3.3776 / 2, "mm", 2.0), k=2.0)
+    assert display.headline(radius) == "R = 826.3 ± 3.4 mm  (k = 2)"
+
+    def term(name, v, u):
+        return FormTerm(name, Quantity(v, u, "fringes", 2.0), Quantity(v * 273.0, u * 273.0, "nm", 2.0))
+
+    form = SimpleNamespace(k=2.0, quantities=(term("power", 1.6903, 0.0065), term("irregularity", 0.3481, 0.012)))
+    form.term = lambda name: FormResult.term(form, name)
+    assert display.headline(replace(made, radius=None, form=form)) == \
+        "Power 1.690 ± 0.013 · Irregularity 0.348 ± 0.024 fringes  (k = 2)"
     assert display.headline(None) == ""

@@ -447,9 +447,9 @@ def test_form_map_axes_in_mm_and_the_profile_along_the_radius(sample_dir):
 
     f = load_frame(str(sample_dir / "lens-A01.png"))  # 320 x 256 px
     setup = SetupState(source="sodium-d", pixel_size_um=16.0, pixel_size_u_um=0.02).to_bench_setup()
-    d = hand_result(f, setup, 800.0).to_dict()
-    m = display.form_map(d, None, f.shape)
-    cx, cy = d["centre_px"]
+    res = hand_result(f, setup, 800.0)
+    m = display.form_map(res, f.shape)
+    cx, cy = res.centre_px
     # millimetres from the centre: 16 µm per pixel; +y up on the plot
     assert m["extent_mm"] == pytest.approx((-cx * 0.016, (320 - cx) * 0.016, (cy - 256) * 0.016, cy * 0.016))
     # a paraboloid gap g = c·r² comes back as c·r² along the radius (mean), with no spread around each ring
