@@ -30,10 +30,14 @@ _LAZY: dict[str, str] = {
     "load_frame": "ringgauge.imaging:load_frame",
     "get_source": "ringgauge.sources:get_source",
     "AnalysisResult": "ringgauge.result:AnalysisResult",
-    "RingFit": "ringgauge.result:RingFit",
-    "Ring": "ringgauge.result:Ring",
+    "RingFit": "ringgauge.fit.result:RingFit",
+    "Ring": "ringgauge.fit.result:Ring",
     "ImageInfo": "ringgauge.result:ImageInfo",
-    "FormResult": "ringgauge.form.evaluate:FormResult",
+    "FormResult": "ringgauge.form.result:FormResult",
+    "FormTerm": "ringgauge.form.result:FormTerm",
+    "Quantity": "ringgauge.uncertainty:Quantity",
+    "Budget": "ringgauge.uncertainty:Budget",
+    "Verdict": "ringgauge.conformity:Verdict",
 }
 
 __all__ = ["__version__", "RinggaugeError", *_LAZY]

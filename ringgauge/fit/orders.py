@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .. import physics
-from ..result import Ring, RingFit
+from .result import Ring, RingFit
 from ..rings.profile import SProfile
 
 

@@ -7,7 +7,8 @@ import cv2
 import numpy as np
 
 from ringgauge.errors import AnalysisError
-from ringgauge.result import AnalysisResult, ImageInfo, Ring, RingFit
+from ringgauge.fit.result import Ring, RingFit
+from ringgauge.result import AnalysisResult, ImageInfo
 from ringgauge.conformity import Verdict
 from ringgauge.uncertainty import BudgetRow, Quantity, make_budget
 
