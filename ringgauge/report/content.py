@@ -345,7 +345,10 @@ def certificate_content(record, shop: dict, *, approver: str | None = None) -> d
         pixel_text = f"{_fmt(pix[0])} µm/pixel"
         if len(pix) > 1 and pix[1] != pix[0]:
             pixel_text = f"x {_fmt(pix[0])}, y {_fmt(pix[1])} µm/pixel"
-        if pixu and pixu[0]:
+        if len(pixu) > 1 and len(pix) > 1 and pix[1] != pix[0] and (pixu[0] or pixu[1]):
+            # unequal scales: each has its own uncertainty (calibrated along x and along y)
+            pixel_text += f", standard uncertainty x {_fmt(pixu[0], 3)}, y {_fmt(pixu[1], 3)} µm"
+        elif pixu and pixu[0]:
             pixel_text += f", standard uncertainty {_fmt(pixu[0], 3)} µm"
         else:
             pixel_text += " (uncertainty not given)"
