@@ -25,13 +25,15 @@ from dataclasses import replace
 import numpy as np
 
 from ..errors import AnalysisError, InputError
+from ..physics import fringe_height_nm
 from .aperture import aperture_for
 from .fit import GapFit, finesse_coefficient, fit_gap
 from .phase import PhaseMap, ansi_nm, phase_map, zernike_fit
 from .geometry import STEEP_LIMIT, delta_r_axial, delta_r_normal, delta_r_paraxial, radius_budget
 from .sign import UNKNOWN, SignResult, sign_from_pistons, sign_from_press
 from .tolerance import Tolerance, judge, parse_tolerance
-from .result import (TERM_KEYS, FitSummary, FormResult, FormTerm, HeightMap, Mask, PhaseSummary,
+from .terms import TERM_KEYS
+from .result import (FitSummary, FormResult, FormTerm, HeightMap, Mask, PhaseSummary,
                      SurfaceRadius, ZernikeSet, ZernikeTerm, u_nm)
 from ..conformity import Verdict
 from ..uncertainty import Quantity
@@ -45,7 +47,7 @@ def finesse_candidates(n: float) -> tuple[float, ...]:
     return (0.0, finesse_coefficient(1.45, n), finesse_coefficient(1.90, n))
 GLASS_INDEX = 1.52  # typical crown glass; sets the multiple-beam fringe shape (common practice, no source)
 
-FORM_TERMS = TERM_KEYS  # result keys of the form terms, in order (ringgauge.form.result.FORM_TERMS)
+FORM_TERMS = TERM_KEYS  # result keys of the form terms, in order (ringgauge.form.terms.FORM_TERMS)
 
 
 RIM = 720  # points on the test disc's edge used for the PV terms (a square grid misses the rim's extremes)
@@ -183,7 +185,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
         raise InputError(f"decision rule must be 'simple' or 'guard-banded', got {setup.decision_rule!r}")
     lam = setup.wavelength_nm
     n = setup.medium_index
-    fr = lam / (2 * n)
+    fr = fringe_height_nm(lam, n)
     px, py = setup.pixel_size_xy_um
     aspect = py / px
     shape0 = frames[0].data.shape
@@ -595,5 +597,5 @@ def _radius_block(N, uN, D, ap, px, setup, plate, sign: SignResult):
 
 def _verdict(terms, terms_u, tol: Tolerance | None, lam, rule, sign: SignResult) -> dict:
     """The verdict in air (one fringe = λ/2); kept for callers of the earlier signature — see tolerance.judge."""
-    return judge(tol, terms, terms_u, measured_fringe_nm=lam / 2, measured_wavelength_nm=lam, rule=rule,
+    return judge(tol, terms, terms_u, measured_fringe_nm=fringe_height_nm(lam), measured_wavelength_nm=lam, rule=rule,
                  sign_known=bool(sign.sign))

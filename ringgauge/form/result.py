@@ -16,43 +16,8 @@ from ..serialise import build, convert
 from ..uncertainty import Budget, Quantity
 from .aperture import Aperture
 from .sign import SignResult
+from .terms import FORM_TERMS, TermSpec, term_spec  # noqa: F401 - TermSpec: the result's vocabulary
 from .tolerance import Tolerance, parse_tolerance
-
-
-@dataclass(frozen=True)
-class TermSpec:
-    """One form term: its name in results, its label for people and, where ISO 10110-5 tolerances it, the
-    letter of its tolerance (A power, B irregularity, C rotationally symmetric irregularity, t/i/a the RMS
-    limits RMSt, RMSi, RMSa)."""
-
-    name: str  # "power"; the result's key is name + "_fringes"
-    label: str  # as printed in reports and the window
-    short: str  # for charts and narrow tables
-    iso: str | None = None
-
-    @property
-    def key(self) -> str:
-        return f"{self.name}_fringes"
-
-
-#: the form terms a result carries, in the order every view shows them — the one list of them
-FORM_TERMS: tuple[TermSpec, ...] = (
-    TermSpec("power", "power (A)", "power (A)", "A"),
-    TermSpec("astigmatism", "astigmatism", "astigmatism"),
-    TermSpec("irregularity", "irregularity (B)", "irregularity (B)", "B"),
-    TermSpec("rot_sym_irregularity", "rotationally symmetric irregularity (C)", "rot. sym. irregularity (C)", "C"),
-    TermSpec("rms_total", "RMSt (total RMS after tilt)", "RMSt", "t"),
-    TermSpec("rms_irregularity", "RMSi (RMS irregularity)", "RMSi", "i"),
-    TermSpec("rms_asymmetric", "RMSa (RMS asymmetric)", "RMSa", "a"),
-    TermSpec("pv_total", "PV after tilt removal", "PV total", None),
-)
-TERM_KEYS: tuple[str, ...] = tuple(t.key for t in FORM_TERMS)
-_BY_NAME = {t.name: t for t in FORM_TERMS}
-
-
-def term_spec(key: str) -> TermSpec | None:
-    """The term for a name or key ("power", "power_fringes", "power_nm"); None when there is none."""
-    return _BY_NAME.get(str(key or "").removesuffix("_fringes").removesuffix("_nm"))
 
 
 def u_nm(value_fr: float, u_fr: float, fringe_nm: float, u_lam: float, lam: float) -> float:
@@ -70,7 +35,7 @@ class FormTerm:
 
     @property
     def spec(self) -> TermSpec:
-        return _BY_NAME[self.name]
+        return term_spec(self.name)
 
 
 @dataclass(frozen=True)

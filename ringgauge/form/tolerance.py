@@ -32,21 +32,15 @@ import re
 from dataclasses import dataclass, field
 
 from ..errors import ToleranceSyntaxError
+from ..physics import fringe_height_nm
+from .terms import FORM_TERMS
 
 #: wavelength assumed when the tolerance names none (mercury e-line, 546.07 nm)
 DEFAULT_WAVELENGTH_NM = 546.07
 
-#: term key -> (result field name, words for messages)
-TERMS = {
-    "A": ("power_fringes", "the power tolerance A"),
-    "B": ("irregularity_fringes", "the irregularity tolerance B"),
-    "C": ("rot_sym_irregularity_fringes", "the rotationally symmetric irregularity tolerance C"),
-    "t": ("rms_total_fringes", "the RMSt limit"),
-    "i": ("rms_irregularity_fringes", "the RMSi limit"),
-    "a": ("rms_asymmetric_fringes", "the RMSa limit"),
-}
-_ATTR = {"A": "power", "B": "irregularity", "C": "rot_sym_irregularity", "t": "rms_total",
-         "i": "rms_irregularity", "a": "rms_asymmetric"}
+#: ISO 10110-5 letter -> (result key, how messages name the limit), from the one list of form terms
+TERMS = {t.iso: (t.key, t.limit_name) for t in FORM_TERMS if t.iso}
+_ATTR = {t.iso: t.name for t in FORM_TERMS if t.iso}
 
 
 @dataclass(frozen=True)
@@ -85,7 +79,7 @@ class Tolerance:
     @property
     def fringe_nm(self) -> float:
         """One fringe of the tolerance's wavelength: λ/2 of surface height, nm."""
-        return self.wavelength_nm / 2
+        return fringe_height_nm(self.wavelength_nm)
 
     def limits(self) -> dict[str, float]:
         """The specified limits by result field name, in fringes of the tolerance's wavelength."""
@@ -286,7 +280,7 @@ def parse_tolerance(text: str) -> Tolerance:
     written = tuple(v for v in got.values() if v is not None)
     if not written:
         raise _error(raw, 2, "specifies nothing (every term is a dash)")
-    fr = lam / 2
+    fr = fringe_height_nm(lam)
     kw = {_ATTR[lim.key]: (lim.value if lim.unit == "fringes" else lim.value / fr) for lim in written}
     return Tolerance(text=raw, wavelength_nm=lam, wavelength_stated=lam_stated, test_diameter_mm=diam,
                      written=written, **kw)
