@@ -440,7 +440,8 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
             T[rays] = np.maximum(ysq[rays, None] - proj.reshape(-1, nc, K).sum(axis=1), 0.0)
         tables[float(sig)] = T
     return {"theta": th[idx], "base": r + ss[j[idx]], "e_grid": e_grid, "tables": tables,
-            "noise_var": sig_n**2, "oversampling": 1.0 / ds, "m": Y.shape[1], "centre": (cx, cy)}
+            "noise_var": sig_n**2, "oversampling": 1.0 / ds, "m": Y.shape[1], "centre": (cx, cy),
+            "profiles": Y, "t": t, "k": kq}
 
 
 def _rim_circle(tab, circle, aspect, xtol=1e-3, n_try=2):
@@ -545,8 +546,45 @@ def _rim_circle(tab, circle, aspect, xtol=1e-3, n_try=2):
     # the rim's model error: the larger of the sector scatter and half the per-ray scatter (a rim whose
     # brightness matches the plate's all round shares one bias that sectors cannot show), Type B
     u_model = max(sector_sd, 0.5 * rms) if math.isfinite(rms) else 1.0
-    return ((cx, cy, float(p[2]), u[0], u[1] / aspect, math.hypot(u[2], u_model), rms), int(used.sum()),
+    u_slope = _slope_only_rim(tab, cross - base, sig)
+    return ((cx, cy, float(p[2]), u[0], u[1] / aspect, math.hypot(u[2], u_model, u_slope), rms), int(used.sum()),
             float(sig), float(misfit))
+
+
+def _slope_only_rim(tab, e, sig) -> float:
+    """Type B standard uncertainty (px) of the radius where the rim is placed by a change of slope rather
+    than a step in brightness.
+
+    The rim is placed by the step between the plate's level and the part's; where the part's brightness at
+    the rim nearly equals the plate's while the fringe rises steeply there, moving the rim by up to a blur width
+    trades the step for the fringe's slope and fits about as well -- a bias every ray shares (it reached a
+    pixel on generated parts), which the rays' scatter does not show. Each ray's fitted step s and inside
+    slope g at the rim give a weight w = 1 / (1 + (s / (g sig))^2), near 1 for a slope-only rim and near 0
+    for a clear step; the mean weight times the blur width, as a rectangular half-width, is the term.
+    Returns 0 when the table carries no profiles."""
+    Y, t, kq = tab.get("profiles"), tab.get("t"), tab.get("k")
+    if Y is None or not len(e):
+        return 0.0
+    w = np.zeros(len(e))
+    for kv in np.unique(kq):
+        rays = np.nonzero(kq == kv)[0]
+        ee = np.asarray(e)[rays, None]
+        if kv == 0:
+            cols = _edge_basis(t[None, :], ee, sig)  # out level, in level, in slope, in curvature, out slope
+        else:
+            cols = _fringe_edge_basis(t[None, :], ee, sig, kv)  # out level, out slope, in level, in slope, cos, sin
+        B = np.stack(cols, axis=-1)  # (rays, M, c)
+        A = np.einsum("rmi,rmj->rij", B, B)
+        A += 1e-9 * np.trace(A, axis1=1, axis2=2)[:, None, None] * np.eye(A.shape[-1])
+        coef = np.linalg.solve(A, np.einsum("rmi,rm->ri", B, Y[rays])[..., None])[..., 0]
+        if kv == 0:
+            step, slope = coef[:, 1] - coef[:, 0], coef[:, 2]
+        else:
+            step, slope = coef[:, 2] + coef[:, 4] - coef[:, 0], coef[:, 3] + kv * coef[:, 5]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            q = step / (slope * sig)
+        w[rays] = np.where(np.isfinite(q), 1.0 / (1.0 + q * q), 0.0)
+    return float(sig * np.mean(w) / math.sqrt(3))
 
 
 def _edge_basis(t, e, sig):

@@ -74,10 +74,6 @@ def test_uneven_light_gives_no_phantom_dust_region():
     assert region[r < part.aperture_px - 8].all()  # the whole part
 
 
-@pytest.mark.xfail(strict=True, reason="known weakness: a rim whose brightness equals the plate's all round (1/8 "
-                   "fringe past a dark fringe, centre contact) reads about 1.06 px large with u 0.33 px (3.2u): "
-                   "the blurred-edge model cannot tell the rim from the start of the fringe's slope there, and the "
-                   "shared bias is only partly covered by half the per-ray scatter")
 def test_slope_only_rim_is_uncertain_not_confidently_wrong():
     # rim brightness equal to the plate's: only the slope changes there. Scatter is allowed, but the
     # reported u must cover the error at k = 3
