@@ -742,6 +742,12 @@ def _fit_gap(
     alt_out = {}
     for label, (ca, ma) in alternatives.items():
         ca = ca.copy()
+        if label.startswith("low-power ambiguity") and ca[3] * p[3] < 0:
+            # the power profile is drawn in the power >= 0 orientation: bring its ends to this fit's raw W or -W
+            # (the image is the same) before the transforms below; left as they were, a fit whose raw power was
+            # negative set the ends at the opposite sign, and their distance -- twice the power -- entered the
+            # budget as if the power were that uncertain
+            ca = -ca
         if np.sign(ma[0]) != np.sign(m[0]) and np.sign(ma[0]) == np.sign(p[nw]):
             ca[0] += 0.5
         if flip_w:

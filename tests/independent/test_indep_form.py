@@ -53,10 +53,14 @@ SETS = {
 #: cases the engine cannot meet yet, with the reason measured; strict: they must start passing to be removed
 KNOWN = {
     "0.8 fr, uneven light": "one-frame fit under a strong off-centre fall-off reads 0.063 fringe of irregularity "
-    "(truth 0) and power +0.033: the gap model absorbs part of the light's shape (form/fit.py)",
-    "low power under uneven light, 4 frames": "phase-map route reads 0.6 fringe of power as 0.515 (u 0.053); the "
-    "one-frame route on the same part is within 0.03: map near the edge under a steep light fall-off "
-    "(form/phase.py)",
+    "(truth 0, u 0.060) and power +0.033 (u 0.365, weak-fit warning: powers 0.20-0.83 fit almost equally). "
+    "Measured causes (form/fit.py): the fringe shape is chosen two-beam (F = 0) on a cost difference of 0.05 %; "
+    "with the true light envelope and the true shape the fit reads irregularity 0.010, but neither is known "
+    "from one frame: an envelope taken from the plate around the part was tried and read power 0.68",
+    "low power under uneven light, 4 frames": "the phase steps of four frames with 0.6 fringe of power do not "
+    "settle (steps 0.18/0.35/0.75 for 0.22/0.45/0.71: too few fringes), so the frames are fitted with the gap "
+    "model, which reads 0.515 for 0.6 (u 0.053, weak-fit warning, 1.6u) -- the one-frame low-power limit above "
+    "(form/phase.py, form/fit.py)",
 }
 
 
