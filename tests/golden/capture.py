@@ -85,10 +85,11 @@ def normalise_text(text: str) -> str:
     return "\n".join(line.rstrip() for line in text.splitlines()).strip() + "\n"
 
 
-def _cli(args: list[str], env: dict) -> str:
+def _cli(args: list[str], env: dict, cwd: Path) -> str:
     import subprocess
 
-    done = subprocess.run([sys.executable, "-m", "ringgauge", *args], env=env, capture_output=True, text=True)
+    done = subprocess.run([sys.executable, "-m", "ringgauge", *args], env=env, capture_output=True, text=True,
+                          cwd=cwd)  # batch writes its control chart in the working folder
     if done.returncode != 0:
         raise RuntimeError(f"ringgauge {' '.join(args)}: exit {done.returncode}: {done.stderr.strip()}")
     return done.stdout
@@ -107,16 +108,16 @@ def demo_documents(work: Path) -> dict[str, str]:
     home.mkdir(parents=True, exist_ok=True)
     (home / "shop.json").write_text(json.dumps(DEMO_SHOP, ensure_ascii=False))
     env = {**os.environ, "RINGGAUGE_HOME": str(home), "PYTHONPATH": str(ROOT)}
-    _cli(["batch", str(SAMPLES / "lot-FH2604"), "--quiet"], env)
-    records = json.loads(_cli(["records", "export", "--json", "--status", "ok"], env))["records"]
+    _cli(["batch", str(SAMPLES / "lot-FH2604"), "--quiet"], env, work)
+    records = json.loads(_cli(["records", "export", "--json", "--status", "ok"], env, work))["records"]
     out = work / "out"
     out.mkdir()
     pdfs = {}
     for rec in sorted(records, key=lambda r: r["serial"]):
         pdfs[f"certificate-{rec['serial']}"] = out / f"{rec['serial']}.pdf"
-        _cli(["certificate", str(rec["id"]), "--out", str(pdfs[f"certificate-{rec['serial']}"]), "--quiet"], env)
+        _cli(["certificate", str(rec["id"]), "--out", str(pdfs[f"certificate-{rec['serial']}"]), "--quiet"], env, work)
     pdfs["lot-report-FH-2604"] = out / "lot.pdf"
-    _cli(["certificate", "--lot", "FH-2604", "--out", str(pdfs["lot-report-FH-2604"]), "--quiet"], env)
+    _cli(["certificate", "--lot", "FH-2604", "--out", str(pdfs["lot-report-FH-2604"]), "--quiet"], env, work)
     texts = {}
     for name, p in pdfs.items():
         reader = pypdf.PdfReader(str(p))
