@@ -372,6 +372,24 @@ def load_frame(path: str | os.PathLike, *, max_megapixels: float | None = None) 
     the pixel budget (``max_megapixels``, default :func:`pixel_budget`) before any pixel is decoded, a
     complex-valued TIFF is refused, a multi-page TIFF is read from its first page with a note saying so, and
     every decoder failure or limit becomes one line; library warnings are not printed.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The image file.
+    max_megapixels : float, optional
+        Largest image accepted, in millions of pixels (default: :func:`pixel_budget`, 100 unless set).
+
+    Returns
+    -------
+    Frame
+        ``data``: float32 intensities scaled to 0-1 (rows = y, columns = x, pixel centres at integers), with the
+        file's SHA-256, bit depth, the channel used, the saturated fraction (0-1) and notes.
+
+    Raises
+    ------
+    ImageError
+        The file cannot be read or is refused; the message is one line naming the file.
     """
     p = Path(path)
     raw, digest, notes = _read_raw(p, max_megapixels)

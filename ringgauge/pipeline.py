@@ -82,8 +82,28 @@ def analyse(frames: Frame | Sequence[Frame], setup: BenchSetup, *, progress: Pro
     radius of curvature with its uncertainty budget. With form options (test diameter, tolerance, test plate) or
     several frames, the surface form against a test plate is evaluated as well.
 
+    Parameters
+    ----------
+    frames : Frame or sequence of Frame
+        The image (see :func:`ringgauge.imaging.load_frame`), or several frames of one part with the gap changed
+        between them (the form's sign, and a phase map from three or more).
+    setup : BenchSetup
+        Light source (wavelength in nm), pixel scale (µm per pixel, x and y, with standard uncertainties), gap
+        medium, and the form and tolerance options.
+    progress : callable, optional
+        ``progress(fraction, message)`` during the long steps (fraction 0-1).
+
+    Returns
+    -------
+    AnalysisResult
+        ``radius`` (mm, standard uncertainty u, coverage factor k; U = k·u), the ring fit and its GUM budget, or
+        ``form`` (power, astigmatism, irregularity… in fringes of λ/(2n) and in nm, each with u), the verdicts
+        against the set-up's tolerances and the warnings. ``to_dict()`` gives the JSON ``--json`` prints.
+
     Raises
     ------
+    InputError
+        When the input cannot be used (no frame, frames of different sizes, an option out of range).
     AnalysisError
         When no trustworthy measurement can be made; the message says why and what to try.
     """
@@ -120,7 +140,29 @@ def _analyse(frames, setup: BenchSetup, progress: Progress) -> AnalysisResult:
 
 
 def analyse_files(paths: Sequence[str], setup: BenchSetup, *, progress: Progress | None = None) -> AnalysisResult:
-    """Load the image files and analyse them as one measurement."""
+    """Load the image files and analyse them as one measurement.
+
+    Parameters
+    ----------
+    paths : sequence of str or path-like
+        Image files (PNG, TIFF, JPEG, BMP, PGM/PPM): one frame, or the frames of one part in the order taken.
+    setup : BenchSetup
+        As for :func:`analyse`.
+    progress : callable, optional
+        ``progress(fraction, message)`` during the long steps.
+
+    Returns
+    -------
+    AnalysisResult
+        As for :func:`analyse`.
+
+    Raises
+    ------
+    ImageError
+        A file that cannot be read, or is refused before decoding (too many pixels, not a regular file).
+    InputError, AnalysisError
+        As for :func:`analyse`.
+    """
     return analyse([load_frame(p) for p in paths], setup, progress=progress)
 
 

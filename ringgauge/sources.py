@@ -99,11 +99,12 @@ SOURCES: dict[str, LightSource] = {
             reference="BIPM CIPM 2007 (632.9908 nm vacuum), standard air by Birch & Downs 1994", hazard=_LASER,
         ),
         LightSource(
-            "green-hene", "Green helium-neon laser", 543.5, 0.05, (SpectralLine(543.5),),
-            reference="RP Photonics, helium-neon lasers", hazard=_LASER,
+            "green-hene", "Green helium-neon laser 543 nm (in air)", 543.365, 0.002, (SpectralLine(543.365),),
+            reference="CIPM recommended radiations (543.516 nm vacuum, iodine-stabilised He-Ne), standard air by "
+                      "the Edlén formula", hazard=_LASER,
         ),
         LightSource(
-            "led-590", "Amber LED, 590 nm, 15 nm FWHM", 590.0, 1.0, (), fwhm_nm=15.0,
+            "led-590", "Amber LED, 590 nm", 590.0, 1.0, (), fwhm_nm=15.0,
             reference="nominal; measure the LED's centroid with a spectrometer for better than 1 nm",
         ),
     )
@@ -114,7 +115,24 @@ DEFAULT_SOURCE = "mercury-e"
 
 
 def get_source(key: str) -> LightSource:
-    """Look up a built-in source by key (case-insensitive; ``_`` and spaces accepted for ``-``)."""
+    """Look up a built-in source by key (case-insensitive; ``_`` and spaces accepted for ``-``).
+
+    Parameters
+    ----------
+    key : str
+        e.g. ``"sodium-d"``, ``"mercury-e"``, ``"helium-neon"`` (``ringgauge sources`` lists them all).
+
+    Returns
+    -------
+    LightSource
+        Its effective wavelength and standard uncertainty (nm, from the NIST Atomic Spectra Database for the
+        lamps), its lines or band, and its safety note.
+
+    Raises
+    ------
+    InputError
+        An unknown key; the message lists the known ones.
+    """
     k = key.strip().lower().replace("_", "-").replace(" ", "-")
     if k not in SOURCES:
         raise InputError(f"unknown light source '{key}'; choose one of: {', '.join(SOURCES)}")

@@ -231,6 +231,22 @@ def test_hene_air_wavelength_from_vacuum_value():
     assert 632.9908 / 1.0002765 == pytest.approx(get_source("hene").wavelength_nm, abs=0.002)
 
 
+def _edlen_air_index(lam_nm: float) -> float:
+    # B. Edlén, Metrologia 2 (1966) 71, dispersion of standard air (15 °C, 101 325 Pa, 0.03 % CO2):
+    # (n - 1) 1e8 = 8342.13 + 2406030 / (130 - s^2) + 15997 / (38.9 - s^2), s = 1 / lambda in µm^-1 (from memory)
+    s2 = (1000.0 / lam_nm) ** 2
+    return 1.0 + (8342.13 + 2406030.0 / (130.0 - s2) + 15997.0 / (38.9 - s2)) * 1e-8
+
+
+def test_green_hene_air_wavelength_from_vacuum_value():
+    # CIPM recommended radiations: iodine-stabilised He-Ne at 543.516 nm in vacuum (from memory to the digits
+    # shown); the table keeps the air wavelength, as for the red line (it was 543.5 nm, 0.13 nm off)
+    lam = get_source("green-hene").wavelength_nm
+    assert 543.516 / _edlen_air_index(543.4) == pytest.approx(lam, abs=0.002)
+    # the same formula gives the red line's air value to the table's uncertainty (cross-check of the formula)
+    assert 632.9908 / _edlen_air_index(632.9) == pytest.approx(get_source("hene").wavelength_nm, abs=0.002)
+
+
 @pytest.mark.parametrize("bad", [-5.0, 0.0, float("nan"), 5000.0, 50.0])
 def test_impossible_wavelengths_are_refused(bad):
     with pytest.raises(InputError):
