@@ -76,7 +76,7 @@ def build_parser() -> argparse.ArgumentParser:
             continue
         importlib.import_module(modname).register(sub)
     _add_log_options_below(parser)
-    from .options import guard_parser
+    from .commands._options import guard_parser
 
     guard_parser(parser)  # no option of any command lets NaN or infinity through
     return parser

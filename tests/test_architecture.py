@@ -73,6 +73,14 @@ def test_a_database_outside_records_breaks_the_build(tmp_path):
     assert "ringgauge.report.content" in out and "sqlite3" in out
 
 
+def test_argparse_outside_the_command_line_breaks_the_build(tmp_path):
+    # the set-up builder and the window take typed options; argparse stays in cli.py and commands/
+    proc = lint(broken_copy(tmp_path, "setup_options.py", "import argparse  # noqa"))
+    out = proc.stdout + proc.stderr
+    assert proc.returncode != 0 and "Only the command line" in out and "BROKEN" in out
+    assert "ringgauge.setup_options" in out and "argparse" in out
+
+
 def test_an_upward_import_breaks_the_layers(tmp_path):
     # the fringe-order fit reaching up into the pipeline that calls it
     proc = lint(broken_copy(tmp_path, "fit/orders.py", "from ..pipeline import analyse  # noqa"))

@@ -11,6 +11,7 @@ from pathlib import Path
 import pytest
 
 from ringgauge import options, settings
+from ringgauge.commands import _options as cli_options
 from ringgauge.bench_setup import BenchSetup
 from ringgauge.cli import main
 from ringgauge.errors import InputError, RinggaugeError
@@ -75,12 +76,12 @@ def test_every_command_validates_its_numbers(capsys, argv):
 
 
 def test_option_types_directly():
-    parse = options.number("--x", lo=0, hi=10)
+    parse = cli_options.number("--x", lo=0, hi=10)
     assert parse("2.5") == 2.5 and parse(" 10 ") == 10.0
     for bad in ("nan", "inf", "-inf", "1e400", "", "0x10", "-1", "10.0001"):
         with pytest.raises(Exception):
             parse(bad)
-    n = options.integer("--n", lo=1, hi=5)
+    n = cli_options.integer("--n", lo=1, hi=5)
     assert n("3") == 3
     for bad in ("0", "6", "1.5", "nan", "1e3"):
         with pytest.raises(Exception):

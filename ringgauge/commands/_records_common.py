@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 
-from ..options import name_type, number
+from ._options import name_type, number
 from ..records.store import RecordMeta
 
 DB_HELP = ("records store: a SQLite file, or a postgresql://user@host/dbname URL for a store shared by "

@@ -7,7 +7,7 @@ import importlib.util
 import json
 import sys
 
-from ..options import add_max_megapixels, number
+from ._options import add_max_megapixels, number
 from ..sources import SOURCES
 from ._help import ExampleFormatter
 from ._setup import add_form_arguments, setup_from_args  # noqa: F401 - batch, watch and tests take it from here

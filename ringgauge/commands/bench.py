@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 
-from ..options import integer, number
+from ._options import integer, number
 from ..uncertainty import format_value
 
 

@@ -8,7 +8,7 @@ import sys
 import textwrap
 
 from ..errors import InputError
-from ..options import integer, number
+from ._options import integer, number
 from ..report.calibration_text import format_calibration
 
 TARGET_HELP = (
@@ -39,7 +39,7 @@ def register(sub) -> None:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("images", nargs="+", metavar="IMAGE", help="calibration image (two for a line scale turned 90°)")
-    from ..options import add_max_megapixels
+    from ._options import add_max_megapixels
 
     add_max_megapixels(p)
     what = p.add_mutually_exclusive_group(required=True)

@@ -6,7 +6,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError, RinggaugeError
-from ..options import number
+from ._options import number
 from ._records_common import add_db_argument, db_target, open_from_args
 
 USAGE = """ringgauge certificate RECORD_ID [--out FILE.pdf]      certificate of one inspection record

@@ -25,7 +25,7 @@ def register(subparsers) -> None:
     p.add_argument("--db", metavar="PATH|URL", default=None,
                    help="records store the window keeps results in: a SQLite file or a postgresql:// server "
                         "(default: $RINGGAUGE_DB, else records.sqlite in the ringgauge folder)")
-    from ..options import add_max_megapixels
+    from ._options import add_max_megapixels
 
     add_max_megapixels(p)
     p.set_defaults(func=run)

@@ -6,7 +6,7 @@ import argparse
 import datetime as _dt
 
 from ..errors import InputError
-from ..options import integer, number
+from ._options import integer, number
 from ._help import ExampleFormatter
 
 

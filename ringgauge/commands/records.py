@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 
 from ..errors import InputError
-from ..options import integer, number
+from ._options import integer, number
 from ..uncertainty import format_value
 from ._records_common import add_db_argument, open_from_args
 

@@ -9,7 +9,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from ..errors import InputError
-from ..options import integer, number
+from ._options import integer, number
 from ._help import ExampleFormatter
 from ..sources import SOURCES, get_source
 

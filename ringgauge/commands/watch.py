@@ -9,7 +9,7 @@ import os
 import sys
 
 from ..errors import InputError
-from ..options import integer
+from ._options import integer
 from .analyze import _float, add_setup_arguments, setup_from_args
 
 
