@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
 )
 
 from ..errors import RinggaugeError
-from . import display
+from ..presentation import value_and_U
 from .lot import COLUMNS, DONE, FAILED, QUEUED, RUNNING, Lot
 from .model import BenchSession, _Cancelled
 from .results_panel import ResultsPanel
@@ -72,9 +72,9 @@ class LotTableModel(QAbstractTableModel):
                 return _STATUS_TEXT.get(v, v)
             if key == "radius_mm" and isinstance(v, float):
                 # as many digits as the uncertainty supports (U to two significant digits)
-                return display._fmt_pair(v, self.lot.cell(index.row(), "radius_U_mm"))[0]
+                return value_and_U(v, self.lot.cell(index.row(), "radius_U_mm"))[0]
             if key == "radius_U_mm" and isinstance(v, float):
-                return display._fmt_pair(v, v)[1].lstrip("± ")
+                return value_and_U(v, v)[1] or "not available"
             if isinstance(v, float):
                 return f"{v:.3f}"
             return "" if v is None else str(v)

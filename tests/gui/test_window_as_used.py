@@ -42,9 +42,10 @@ def _open(qtbot, w, path):
 # -- the layout --------------------------------------------------------------------------------------------------
 @pytest.mark.parametrize("size", [(1280, 800), (1024, 700)])
 def test_no_cut_text_in_the_setup_panel_or_the_results_at_both_sizes(app, qtbot, sample_dir, rg_home, size):
-    verdict = {"overall": "conditional pass", "decision_rule": "simple acceptance",
-               "terms": [{"term": "rot_sym_irregularity", "verdict": "pass", "value_fringes": 0.1,
-                          "U_fringes": 0.02, "limit_fringes": 0.5}]}
+    from ringgauge.conformity import TermVerdict, Verdict
+
+    term = TermVerdict("rot_sym_irregularity", 0.1, 0.02, 0.5, "fringes", 0.1, 0.02, 0.5, None, 546.074, False, "pass")
+    verdict = Verdict("conditional pass", (term,), decision_rule="simple acceptance")
     w = make_window(qtbot, FakeEngine(verdict=verdict), rg_home)
     w.resize(*size)
     qtbot.wait(20)
