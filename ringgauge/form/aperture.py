@@ -391,10 +391,11 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
     L, g = int(round(8.0 / ds)), int(round(1.0 / ds))
     xk = np.arange(-(g + L - 1), -g + 1, dtype=float)  # positions of the window relative to the point
     wk = 1.0 / L + (0 - xk.mean()) * (xk - xk.mean()) / np.sum((xk - xk.mean()) ** 2)
-    pred = np.zeros_like(prof)
-    for kk, w in zip(xk.astype(int), wk):
-        pred[:, -kk:] += w * prof[:, : prof.shape[1] + kk]
-    pred[:, : g + L - 1] = np.nan  # no full window of plate outside these
+    pred = np.full_like(prof, np.nan)  # NaN: no full window of plate outside these
+    n_first = g + L - 1
+    if prof.shape[1] > n_first:
+        win = np.lib.stride_tricks.sliding_window_view(prof, L, axis=1)[:, : prof.shape[1] - n_first]
+        pred[:, n_first:] = win @ wk  # the window ending g samples before each point, one matrix product
     smooth = ndimage.uniform_filter1d(prof, size=5, axis=1)  # 1.25 px
     dev = np.abs(smooth - pred) > np.maximum(5 * sig_i, 0.04)[:, None]
     dev &= np.isfinite(pred)
