@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable, Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import cv2
 import numpy as np
@@ -166,20 +166,116 @@ def analyse_files(paths: Sequence[str], setup: BenchSetup, *, progress: Progress
     return analyse([load_frame(p) for p in paths], setup, progress=progress)
 
 
+@dataclass
+class _Geometry:
+    """Where the rings are: the pixels used, the centre's first estimate and the radii the frame covers (px)."""
+
+    valid: np.ndarray
+    aspect: float
+    c0: object  # the gradient vote (ringgauge.rings.centre)
+    cx: float
+    cy: float
+    rfar: float
+    rnear: float
+    small_mask: np.ndarray  # ``valid`` on the vote's reduced image
+
+
+@dataclass
+class _Rings:
+    """The ring fit and its cross-checks, before the budget."""
+
+    fit: object
+    R: float
+    R_ff: float
+    a2: float
+    blur: float
+    sag_rel: float
+    sectors: object
+    extrema: list
+    prof: object
+
+
 def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None = None, rng=0) -> AnalysisResult:
-    """Radius of curvature from Newton's rings of a lens resting on an optical flat."""
+    """Radius of curvature from Newton's rings of a lens resting on an optical flat.
+
+    The steps: usable pixels and the centre's first estimate (:func:`_locate`), the fringe period
+    (:func:`_period`), the full-field ring model (:func:`_full_field`), rings located and fitted as r² against
+    order with the sector repeat (:func:`_ring_fit`), then the GUM budget and the result."""
     progress = progress or _noop
     warnings: list[str] = list(frame.notes)
+    px_mm = setup.pixel_size_xy_um[0] * 1e-3
+    lam_nm = fringe_wavelength_nm(setup.source)
+    n = setup.medium_index
+
+    progress(0.05, "finding the ring centre")
+    g = _locate(frame, setup, warnings)
+    progress(0.15, "measuring the fringe period")
+    period_s, r_lim = _period(g, px_mm, warnings)
+    progress(0.3, "fitting the ring model to all pixels")
+    ff, contrast = _full_field(frame.data, g, period_s, r_lim, lam_nm * 1e-6 / px_mm / n, rng, warnings)
+    period_s = ff.period_s
+    r_lim = min(g.rfar, period_s / (2.0 * MIN_PERIOD_PX))
+    cu = np.sqrt(np.clip(np.diag(ff.cov)[:2], 0, None))
+    progress(0.7, "locating rings and fitting r² against order")
+    rings = _ring_fit(frame.data, g, ff, period_s, r_lim, setup, lam_nm, px_mm, warnings, progress)
+
+    progress(0.9, "uncertainty budget")
+    R, R_ff, a2, fit = rings.R, rings.R_ff, rings.a2, rings.fit
+    budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), rings.sectors, blur_rel=a2 / 2, blur_px=rings.blur,
+                           sag_rel=rings.sag_rel)
+    if abs(R - R_ff * (1 - a2 / 2)) > 3 * budget.rows[0].contribution:
+        # enough decimals that the two values printed differ (at least the difference's first two digits)
+        diff = abs(R - R_ff * (1 - a2 / 2))
+        dec = min(9, max(2, 1 - math.floor(math.log10(diff)))) if diff > 0 else 6
+        warnings.append(
+            f"the ring fit (R = {R:.{dec}f} mm) and the full-field fit (R = {R_ff * (1 - a2 / 2):.{dec}f} mm) "
+            f"differ by {diff:.2g} mm, beyond their statistical uncertainty; the difference is carried in the "
+            "budget — check the image for distortion"
+        )
+    if setup.pixel_size_u_um == 0:
+        warnings.append(
+            "pixel size given without uncertainty: the budget treats it as exact, yet it enters R squared; give "
+            "--pixel-size-u or use a calibrated bench profile"
+        )
+    fullfield = FullField(
+        method="joint least-squares fit of the ring model to all pixels (variable projection)",
+        radius_mm=R_ff * (1 - a2 / 2),
+        blur_sigma_px=rings.blur,
+        blur_correction_ppm=1e6 * a2 / 2,
+        centre_px=(float(ff.x0), float(ff.y0)),
+        centre_u_px=(float(cu[0]), float(cu[1])),
+        period_px2_per_fringe=period_s,
+        fringe_contrast=contrast,
+        modulation=ff.modulation,
+        background=ff.background,
+        residual_rms=ff.sigma,
+        pixels_used=int(ff.npix),
+        r_max_px=ff.r_max,
+        r_max_mm=ff.r_max * px_mm,
+        coarse_centre_px=(float(g.cx), float(g.cy)),
+        gradient_centre_px=(float(g.c0.x), float(g.c0.y)),
+        **_profile_for_display(rings.prof, px_mm),
+        extrema_r_px=tuple(float(math.sqrt(e.s)) for e in rings.extrema),
+        extrema_kind=tuple(e.kind for e in rings.extrema),
+        sectors=None if rings.sectors is None else Sectors.of(rings.sectors),
+    )
+    progress(1.0, "done")
+    fit = replace(fit, fringe_wavelength_nm=lam_nm)
+    return AnalysisResult(
+        image=image_info(frame), setup=setup, centre_px=(float(ff.x0), float(ff.y0)),
+        centre_u_px=(float(cu[0]), float(cu[1])), radius=Quantity(float(R), float(budget.u_c), "mm", float(budget.k)),
+        k=float(budget.k), budget=budget, fit=fit, fullfield=fullfield, warnings=tuple(warnings),
+    )
+
+
+def _locate(frame: Frame, setup: BenchSetup, warnings: list[str]) -> _Geometry:
+    """The pixels to use (not saturated, not the frame's edge band, inside a hand-set aperture) and the ring
+    centre's first estimate (gradient vote; the profile's sharpness decides between candidates when the vote is
+    weak or a centre was set by hand)."""
     data = frame.data
     h, w = data.shape
     px_um, py_um = setup.pixel_size_xy_um
     aspect = py_um / px_um
-    px_mm = px_um * 1e-3
-    lam_nm = fringe_wavelength_nm(setup.source)
-    lam_mm = lam_nm * 1e-6
-    n = setup.medium_index
-    lam_px_over_n = lam_mm / px_mm / n
-
     valid = data < (1.0 - 0.5 / ((1 << frame.bit_depth) - 1))
     # a thin band along the frame edge is left out: filtering and demosaicing in cameras (and blur in simulated
     # images) are unreliable there
@@ -191,8 +287,6 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         warnings.append(
             f"{100 * frame.saturated_fraction:.1f} % of pixels are saturated (left out); reduce exposure or lamp power"
         )
-
-    progress(0.05, "finding the ring centre")
     c0 = gradient_centre(data, aspect=aspect)
     sc = c0.scale
     small = c0.small
@@ -226,11 +320,16 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
     rnear = 0.0
     if not (0 <= cx <= w - 1 and 0 <= cy <= h - 1):
         rnear = math.hypot(min(max(cx, 0), w - 1) - cx, aspect * (min(max(cy, 0), h - 1) - cy))
+    return _Geometry(valid, aspect, c0, cx, cy, rfar, rnear, vs)
 
-    progress(0.15, "measuring the fringe period")
-    # the fringe period from the area-averaged working image (fast; it only seeds the fit)
-    cs = ((cx - 0.5 * (sc - 1)) / sc, (cy - 0.5 * (sc - 1)) / sc)
-    prof0 = s_profile(small, cs, aspect=aspect, s_max=(rfar / sc) ** 2, ds=max(rfar / sc / 2.0, 1.0), mask=vs)
+
+def _period(g: _Geometry, px_mm: float, warnings: list[str]) -> tuple[float, float]:
+    """The fringe period in s = r² (px² per fringe) from the area-averaged working image (fast; it only seeds
+    the fit), and the radius (px) out to which fringes are sampled finely enough."""
+    sc = g.c0.scale
+    cs = ((g.cx - 0.5 * (sc - 1)) / sc, (g.cy - 0.5 * (sc - 1)) / sc)
+    prof0 = s_profile(g.c0.small, cs, aspect=g.aspect, s_max=(g.rfar / sc) ** 2, ds=max(g.rfar / sc / 2.0, 1.0),
+                      mask=g.small_mask)
     period_s, snr = dominant_period(prof0, min_period=None)
     period_s *= sc * sc
     if not math.isfinite(period_s) or snr < 12.0:
@@ -239,23 +338,27 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
             "Newton's rings in focus, with the lamp on"
         )
     # under-sampling limit: local period in r is P_s / (2 r)
-    r_lim = min(rfar, period_s / (2.0 * MIN_PERIOD_PX))
-    n_fringes = (r_lim**2 - rnear**2) / period_s
+    r_lim = min(g.rfar, period_s / (2.0 * MIN_PERIOD_PX))
+    n_fringes = (r_lim**2 - g.rnear**2) / period_s
     if n_fringes < MIN_RINGS - 0.5:
         raise AnalysisError(
             f"only about {max(n_fringes, 0):.1f} rings are resolved in the image; need at least {MIN_RINGS}: widen "
             "the field of view, or measure the surface against a test plate (form mode: --test-diameter)"
         )
-    if r_lim < rfar * 0.98:
+    if r_lim < g.rfar * 0.98:
         warnings.append(
             f"fringes beyond r = {r_lim * px_mm:.3f} mm are under-sampled (period under {MIN_PERIOD_PX:g} px) "
             "and were excluded"
         )
+    return period_s, r_lim
 
-    progress(0.3, "fitting the ring model to all pixels")
+
+def _full_field(data, g: _Geometry, period_s: float, r_lim: float, lam_px_over_n: float, rng, warnings):
+    """The ring model fitted to all usable pixels (centre, phase rate, blur): (fit, fringe contrast)."""
+    h, w = data.shape
     try:
         ff = fit_full_field(
-            data, (cx, cy), period_s, aspect=aspect, lam_px_over_n=lam_px_over_n, r_max=r_lim, valid=valid,
+            data, (g.cx, g.cy), period_s, aspect=g.aspect, lam_px_over_n=lam_px_over_n, r_max=r_lim, valid=g.valid,
             rng=rng,
         )
     except (ValueError, np.linalg.LinAlgError) as exc:
@@ -269,22 +372,26 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
         )
     if contrast < 0.15:
         warnings.append(f"low fringe contrast ({contrast:.2f}); clean the surfaces and check the lamp and focus")
-    period_s = ff.period_s
-    r_lim = min(rfar, period_s / (2.0 * MIN_PERIOD_PX))
-    centre = (ff.x0, ff.y0)
-    cu = np.sqrt(np.clip(np.diag(ff.cov)[:2], 0, None))
     if not (-0.5 <= ff.x0 <= w - 0.5 and -0.5 <= ff.y0 <= h - 0.5):
         warnings.append(
             f"the ring centre ({ff.x0:.1f}, {ff.y0:.1f}) px lies outside the frame; the result rests on arcs only"
         )
+    return ff, contrast
 
-    progress(0.7, "locating rings and fitting r² against order")
+
+def _ring_fit(data, g: _Geometry, ff, period_s: float, r_lim: float, setup: BenchSetup, lam_nm: float,
+              px_mm: float, warnings: list[str], progress) -> _Rings:
+    """Rings located on the azimuthal profile about the fitted centre, r² fitted against fringe order (with and
+    without the sphere's sagitta correction), the blur correction, and the fit repeated in angular sectors."""
+    lam_mm = lam_nm * 1e-6
+    n = setup.medium_index
+    centre = (ff.x0, ff.y0)
     ds = period_s / 24.0
-    labels, sector_angles = _sectors_over_visible_arc(valid, centre, aspect, r_lim, N_SECTORS)
+    labels, sector_angles = _sectors_over_visible_arc(g.valid, centre, g.aspect, r_lim, N_SECTORS)
     sector_profiles, prof = s_profiles_by_label(
-        data, centre, labels, N_SECTORS, aspect=aspect, s_max=r_lim**2, ds=ds, mask=valid
+        data, centre, labels, N_SECTORS, aspect=g.aspect, s_max=r_lim**2, ds=ds, mask=g.valid
     )
-    s_min = max(rnear**2, 0.0)
+    s_min = max(g.rnear**2, 0.0)
     extrema = locate_extrema(prof, period_s, ff.phase0, s_min=s_min, s_max=r_lim**2)
     # the model's phase rate q (rad/px^2) is a slope of 2 pi / q px^2 per fringe
     R_ff = physics.radius_from_slope(2 * math.pi / ff.q * px_mm**2, lam_nm, n)
@@ -324,7 +431,6 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
             f"({sectors.axis_deg:.0f}° from +x toward +y) and the short axis; astigmatism of the surface or unequal "
             "pixel scales in x and y (calibrate both)"
         )
-
     # scatter left after allowing for elliptical rings (astigmatism, unequal pixel scales: warned about above)
     type_a = (sectors.u_mean_round_mm2 if sectors is not None else fit.slope_u_mm2) / fit.slope_mm2
     if type_a > MAX_TYPE_A:
@@ -333,54 +439,7 @@ def analyse_rings(frame: Frame, setup: BenchSetup, *, progress: Progress | None 
             f"{100 * type_a:.2f} % between sectors); the centre was probably not found — check focus and contrast, "
             "or set the centre by hand in the window"
         )
-
-    progress(0.9, "uncertainty budget")
-    budget = radius_budget(R, fit, setup, R_ff * (1 - a2 / 2), sectors, blur_rel=a2 / 2, blur_px=blur,
-                           sag_rel=sag_rel)
-    if abs(R - R_ff * (1 - a2 / 2)) > 3 * budget.rows[0].contribution:
-        # enough decimals that the two values printed differ (at least the difference's first two digits)
-        diff = abs(R - R_ff * (1 - a2 / 2))
-        dec = min(9, max(2, 1 - math.floor(math.log10(diff)))) if diff > 0 else 6
-        warnings.append(
-            f"the ring fit (R = {R:.{dec}f} mm) and the full-field fit (R = {R_ff * (1 - a2 / 2):.{dec}f} mm) "
-            f"differ by {diff:.2g} mm, beyond their statistical uncertainty; the difference is carried in the "
-            "budget — check the image for distortion"
-        )
-    if setup.pixel_size_u_um == 0:
-        warnings.append(
-            "pixel size given without uncertainty: the budget treats it as exact, yet it enters R squared; give "
-            "--pixel-size-u or use a calibrated bench profile"
-        )
-    prof_dict = _profile_for_display(prof, px_mm)
-    fullfield = FullField(
-        method="joint least-squares fit of the ring model to all pixels (variable projection)",
-        radius_mm=R_ff * (1 - a2 / 2),
-        blur_sigma_px=blur,
-        blur_correction_ppm=1e6 * a2 / 2,
-        centre_px=(float(ff.x0), float(ff.y0)),
-        centre_u_px=(float(cu[0]), float(cu[1])),
-        period_px2_per_fringe=period_s,
-        fringe_contrast=contrast,
-        modulation=ff.modulation,
-        background=ff.background,
-        residual_rms=ff.sigma,
-        pixels_used=int(ff.npix),
-        r_max_px=ff.r_max,
-        r_max_mm=ff.r_max * px_mm,
-        coarse_centre_px=(float(cx), float(cy)),
-        gradient_centre_px=(float(c0.x), float(c0.y)),
-        **prof_dict,
-        extrema_r_px=tuple(float(math.sqrt(e.s)) for e in extrema),
-        extrema_kind=tuple(e.kind for e in extrema),
-        sectors=None if sectors is None else Sectors.of(sectors),
-    )
-    progress(1.0, "done")
-    fit = replace(fit, fringe_wavelength_nm=lam_nm)
-    return AnalysisResult(
-        image=image_info(frame), setup=setup, centre_px=(float(centre[0]), float(centre[1])),
-        centre_u_px=(float(cu[0]), float(cu[1])), radius=Quantity(float(R), float(budget.u_c), "mm", float(budget.k)),
-        k=float(budget.k), budget=budget, fit=fit, fullfield=fullfield, warnings=tuple(warnings),
-    )
+    return _Rings(fit, R, R_ff, a2, blur, sag_rel, sectors, extrema, prof)
 
 
 def _sectors_over_visible_arc(valid, centre, aspect: float, r_max: float, n: int):
