@@ -1,4 +1,5 @@
-"""Figures for reports and certificates, drawn from a result dict with matplotlib's Agg backend (no Qt).
+"""Figures for reports and certificates, drawn from a typed result (or its stored JSON, read back) with
+matplotlib's Agg backend (no Qt).
 
 They only draw what the analysis found: the image with the fitted rings and centre, and the fit of squared
 ring radius against fringe order (or, for a test-plate analysis, the form terms with their uncertainties).
@@ -8,10 +9,14 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..form.result import FORM_TERMS
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..result import AnalysisResult
 
 INK = "#1f4e79"
 ACCENT = "#c55a11"
@@ -27,7 +32,14 @@ def _figure(w_in: float, h_in: float, dpi: int = 150):
     return Figure(figsize=(w_in, h_in), dpi=dpi)
 
 
-def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: str | None = None,
+def _typed(result: "AnalysisResult | dict") -> "AnalysisResult":
+    """The typed result; a stored result's JSON (``to_dict()``) is read back first."""
+    from ..result import AnalysisResult
+
+    return result if isinstance(result, AnalysisResult) else AnalysisResult.from_dict(result)
+
+
+def overlay_png(image01: np.ndarray, result: "AnalysisResult | dict", path: str | Path, *, title: str | None = None,
                 fmt: str = "png") -> None:
     """The image (intensity in [0, 1], ``image[y, x]``) with the fitted rings, centre and aperture drawn on.
 
@@ -35,6 +47,7 @@ def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: s
     image, not this illustration, identifies the data."""
     from matplotlib.patches import Ellipse
 
+    r = _typed(result)
     img = np.asarray(image01, dtype=np.float32)
     H, W = img.shape
     step = max(1, int(math.ceil(max(H, W) / MAX_DISPLAY_PX)))
@@ -44,31 +57,24 @@ def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: s
     ax = fig.add_axes((0.0, 0.0, 1.0, 0.93 if title else 1.0))
     ax.imshow(shown, cmap="gray", vmin=float(np.percentile(shown, 0.5)), vmax=float(np.percentile(shown, 99.5)),
               extent=(-0.5, W - 0.5, H - 0.5, -0.5), interpolation="antialiased")
-    setup = result.get("setup") or {}
-    pix = setup.get("pixel_size_um") or [1.0, 1.0]
-    px, py = (pix if isinstance(pix, list) else [pix, pix])[:2]
+    px, py = r.setup.pixel_size_xy_um
     yscale = px / py if py else 1.0  # ring radii are in x pixels; a round ring spans r * px / py rows
-    centre = result.get("centre_px")
-    rings = ((result.get("fringes") or {}).get("rings")) or []
     lw = 0.8
-    if centre:
-        cx, cy = centre
-        for ring in rings:
-            r = ring.get("radius_px")
-            if not r:
+    if r.centre_px is not None:
+        cx, cy = r.centre_px
+        for ring in () if r.fit is None else r.fit.rings:
+            if not ring.radius_px:
                 continue
-            used = ring.get("used", True)
-            ax.add_patch(Ellipse((cx, cy), 2 * r, 2 * r * yscale, fill=False, lw=lw,
-                                 ec="#00b050" if used else ACCENT, ls="-" if used else "--", alpha=0.9))
+            ax.add_patch(Ellipse((cx, cy), 2 * ring.radius_px, 2 * ring.radius_px * yscale, fill=False, lw=lw,
+                                 ec="#00b050" if ring.used else ACCENT, ls="-" if ring.used else "--", alpha=0.9))
         size = 0.03 * max(W, H)
         ax.plot([cx - size, cx + size], [cy, cy], color="#ff3030", lw=1.0)
         ax.plot([cx, cx], [cy - size, cy + size], color="#ff3030", lw=1.0)
-    form = result.get("form") or {}
-    ap = form.get("aperture") if isinstance(form, dict) else None
-    if isinstance(ap, dict) and ap.get("centre_px") and ap.get("diameter_px"):
-        (ax_, ay_), d = ap["centre_px"], ap["diameter_px"]
+    form = r.form
+    if form is not None and form.aperture.radius_px:
+        (ax_, ay_), d = form.aperture.centre_px, 2 * form.aperture.radius_px
         ax.add_patch(Ellipse((ax_, ay_), d, d * yscale, fill=False, lw=1.0, ec="#00a0ff", ls="--"))
-        td = form.get("test_diameter_mm") or setup.get("test_diameter_mm")
+        td = form.test_diameter_mm or r.setup.test_diameter_mm
         if td and px:
             dpx = td / (px * 1e-3)
             ax.add_patch(Ellipse((ax_, ay_), dpx, dpx * yscale, fill=False, lw=1.0, ec="#ffd000", ls=":"))
@@ -83,30 +89,30 @@ def overlay_png(image01: np.ndarray, result: dict, path: str | Path, *, title: s
         fig.savefig(path, format="png")
 
 
-def fit_plot_png(result: dict, path: str | Path) -> bool:
+def fit_plot_png(result: "AnalysisResult | dict", path: str | Path) -> bool:
     """The fit behind the result; returns False (and draws nothing) when the result holds no fit to show."""
-    fr = result.get("fringes") or {}
-    rings = [r for r in (fr.get("rings") or []) if r.get("r2_mm2") is not None and r.get("order") is not None]
-    if len(rings) >= 2 and fr.get("slope_mm2_per_fringe") is not None:
-        _ring_fit(result, fr, rings, path)
+    r = _typed(result)
+    fit = r.fit
+    rings = [] if fit is None else [x for x in fit.rings if x.r2_mm2 is not None and x.order is not None]
+    if len(rings) >= 2 and fit.slope_mm2 is not None:
+        _ring_fit(fit, rings, path)
         return True
-    form = result.get("form") or {}
-    terms = _form_terms(form)
+    terms = _form_terms(r.form)
     if terms:
-        _form_bars(terms, result, path)
+        _form_bars(terms, r.form.k, path)
         return True
     return False
 
 
-def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
+def _ring_fit(fit, rings: list, path) -> None:
     fig = _figure(5.0, 3.6)
     top, bot = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 1.3]})
-    m = np.array([r["order"] for r in rings], dtype=float)
-    r2 = np.array([r["r2_mm2"] for r in rings], dtype=float)
-    used = np.array([bool(r.get("used", True)) for r in rings])
-    u = np.array([r.get("u_r2_mm2") or 0.0 for r in rings], dtype=float)
-    slope = fr["slope_mm2_per_fringe"]
-    icpt = fr.get("intercept_mm2") or 0.0
+    m = np.array([r.order for r in rings], dtype=float)
+    r2 = np.array([r.r2_mm2 for r in rings], dtype=float)
+    used = np.array([bool(r.used) for r in rings])
+    u = np.array([r.u_r2_mm2 or 0.0 for r in rings], dtype=float)
+    slope = fit.slope_mm2
+    icpt = fit.intercept_mm2 or 0.0
     mm = np.linspace(min(m.min(), 0.0), m.max() * 1.03, 50)
     top.plot(mm, slope * mm + icpt, color=ACCENT, lw=1.0, label="least-squares line")
     top.plot(m[used], r2[used], "o", ms=3, color=INK, label="rings used")
@@ -115,14 +121,14 @@ def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
     top.set_ylabel("r² / mm²")
     top.legend(fontsize=7, frameon=False)
     top.grid(alpha=0.3)
-    res = np.array([r.get("residual_mm2") or 0.0 for r in rings], dtype=float) * 1e6
+    res = np.array([r.residual_mm2 or 0.0 for r in rings], dtype=float) * 1e6
     bot.axhline(0, color="#555555", lw=0.8)
     bot.errorbar(m[used], res[used], yerr=u[used] * 1e6, fmt="o", ms=3, color=INK, elinewidth=0.6)
     if used.any():
         lim = 1.4 * float(np.max(np.abs(res[used]))) or 1.0
         bot.set_ylim(-lim, lim)  # a ring with a large u must not flatten the others' residuals
     bot.set_ylabel("residual / µm²", fontsize=8)
-    bot.set_xlabel(f"fringe order m ({rings[0].get('kind', 'dark')} rings)")
+    bot.set_xlabel(f"fringe order m ({rings[0].kind or 'dark'} rings)")
     bot.grid(alpha=0.3)
     sign = "−" if icpt < 0 else "+"
     fig.suptitle(f"r² = {slope:.6g} mm² · m {sign} {abs(icpt):.4g} mm²", fontsize=8)
@@ -130,24 +136,24 @@ def _ring_fit(result: dict, fr: dict, rings: list, path) -> None:
     fig.savefig(path, format="png")
 
 
-def _form_terms(form: dict) -> list[tuple[str, float, float | None]]:
-    """(short label, value, u) in fringes of each form term the stored form result holds, in ``FORM_TERMS``
-    order."""
+def _form_terms(form) -> list[tuple[str, float, float | None]]:
+    """(short label, value, u) in fringes of each measured form term, in ``FORM_TERMS`` order."""
+    if form is None:
+        return []
     out = []
-    if not isinstance(form, dict):
-        return out
     for t in FORM_TERMS:
-        v = form.get(t.key)
-        if isinstance(v, (int, float)) and math.isfinite(v):
-            u = form.get(f"{t.name}_u_fringes")
-            out.append((t.short, float(v), float(u) if isinstance(u, (int, float)) else None))
+        try:
+            q = form.term(t.name).fringes
+        except KeyError:
+            continue
+        if math.isfinite(q.value):
+            out.append((t.short, float(q.value), q.u))
     return out
 
 
-def _form_bars(terms, result: dict, path) -> None:
+def _form_bars(terms, k: float, path) -> None:
     fig = _figure(5.0, 3.0)
     ax = fig.add_subplot(1, 1, 1)
-    k = result.get("k") or 2.0
     y = np.arange(len(terms))[::-1]
     vals = [t[1] for t in terms]
     errs = [k * t[2] if t[2] is not None else 0.0 for t in terms]
