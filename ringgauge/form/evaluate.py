@@ -158,6 +158,11 @@ def evaluate_form(frames, setup, *, progress=None) -> FormResult:
 def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     """Evaluate the surface form of a part on a test plate from one or more frames.
 
+    The steps: the part's edge (:func:`~ringgauge.form.aperture.aperture_for`); a phase map from three or more
+    frames (:func:`_phase_route`) or the gap model fitted to each frame (:func:`_frame_fits`); the aperture's
+    uncertainty and the test diameter (:func:`_test_disc`); the form terms with their uncertainty budget
+    (:func:`_terms`); the sign (:func:`_sign`); then the plate radius, the height map and the verdict.
+
     Parameters
     ----------
     frames : list of ringgauge.imaging.Frame
@@ -196,12 +201,73 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     say(0.0, "finding the part's edge")
     ap = aperture_for(frames[0].data, aspect=aspect, extras={"aperture_px": setup.aperture_px})
     warnings += list(ap.notes)
-    F = finesse_coefficient(GLASS_INDEX, n)
+    route = "one-frame fit" if len(frames) == 1 else f"model fit with piston steps ({len(frames)} frames)"
+    pm, masks, masked_px = _phase_route(frames, ap, aspect, setup, (px, py), say, warnings)
     fits: list[GapFit] = []
+    if pm is not None:
+        route = f"phase map from {len(frames)} frames (Wang–Han)"
+    else:
+        fits, m2, mp2 = _frame_fits(frames, ap, aspect, n, (px, py), say, warnings, notes)
+        masks += m2
+        masked_px += mp2
+    ap, ap_diam_mm, td, td_src, k_td = _test_disc(ap, fits, pm, px, setup, tol, warnings)
+    say(0.92, "form terms and their uncertainties")
+    terms, terms_u, axis_u, budget_rows, map_sign, W, un, vn = _terms(pm, fits, k_td, ap, warnings)
+    sign = _sign(setup, pm, map_sign, fits, warnings)
+    if sign.sign == 0:
+        notes.append("power sign unknown: power is reported as a magnitude")
+    power_signed = terms["power_fringes"] * (sign.sign if sign.sign else 1)
+    terms["power_fringes"] = power_signed
+    # radius against the plate
+    radius = None
+    plate = setup.test_plate
+    if plate and plate.get("radius_mm") and math.isfinite(float(plate["radius_mm"])):
+        radius, rw = _radius_block(terms["power_fringes"], terms_u.get("power_fringes", 0.0), td,
+                                   ap, px, setup, plate, sign)
+        warnings += rw
+    hmap, hext = _height_map(pm, fits, ap, fr, sign)
+    verdict = judge(tol, terms, terms_u, measured_fringe_nm=fr, measured_wavelength_nm=lam,
+                    rule=setup.decision_rule, sign_known=bool(sign.sign))
+    if verdict.get("wavelength_note"):
+        notes.append(verdict["wavelength_note"])
+    u_lam = setup.source.wavelength_u_nm
+    k = 2.0
+    quantities = tuple(
+        FormTerm(name.removesuffix("_fringes"),
+                 Quantity(float(terms[name]), _opt(terms_u.get(name)), "fringes", k),
+                 Quantity(float(terms[name]) * fr,
+                          None if terms_u.get(name) is None else u_nm(terms[name], terms_u[name], fr, u_lam, lam),
+                          "nm", k))
+        for name in FORM_TERMS
+    )
+    return FormResult(
+        wavelength_nm=lam, wavelength_u_nm=u_lam, medium_index=n, fringe_nm=fr, quantities=quantities,
+        astigmatism_axis=Quantity(float(terms["astigmatism_axis_deg"]), _opt(axis_u), "°", k),
+        test_diameter_mm=float(td), test_diameter_source=td_src, aperture=ap,
+        aperture_diameter=Quantity(float(ap_diam_mm), 2 * float(ap.radius_u_px) * px * 1e-3, "mm", k),
+        masks=tuple(Mask.from_dict(m) for m in masks),
+        masked_fraction=float(masked_px / max(1, len(frames) * math.pi * ap.radius_px**2 / aspect)),
+        sign=sign, fits=tuple(FitSummary.of(f) for f in fits), radius=SurfaceRadius.from_dict(radius),
+        tolerance=tol, verdict=Verdict.from_dict(verdict),
+        warnings=tuple(dict.fromkeys(warnings)), pixel_size_um=(px, py),
+        elapsed_s=time.perf_counter() - t0, notes=tuple(notes),
+        budget_rows={key: tuple((src, float(u)) for src, u in v) for key, v in budget_rows.items()},
+        route=route,
+        zernike_ansi=_ansi_block(W[:-RIM], un[:-RIM], vn[:-RIM], td, fr),
+        height_map=None if hmap is None else HeightMap.of(hmap, hext, bool(sign.sign)),
+        phase=None if pm is None else PhaseSummary.of(pm),
+        engine_fits=tuple(fits),
+    )
+
+
+def _phase_route(frames, ap, aspect: float, setup, pixel_um, say, warnings: list[str]):
+    """Three or more frames: the phase of every pixel from the frames' unknown steps (Wang-Han), no model.
+    (phase map or None, masks, masked pixels); None when it cannot be made (then each frame is fitted)."""
+    px, py = pixel_um
+    shape0 = frames[0].data.shape
+    gap_change = setup.gap_change
     masks: list[dict] = []
     masked_px = 0
-    gap_change = setup.gap_change
-    route = "one-frame fit" if len(frames) == 1 else f"model fit with piston steps ({len(frames)} frames)"
     pm = None
     if len(frames) >= 3 and setup.form_route != "model":
         # three or more frames: the phase of every pixel from the frames' unknown steps (Wang-Han), no model
@@ -223,7 +289,6 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
                             "few fringes or small steps); each frame was fitted with the gap model instead")
             pm = None
     if pm is not None:
-        route = f"phase map from {len(frames)} frames (Wang–Han)"
         pm_mask = np.zeros(shape0, dtype=bool)
         xs_m, ys_m = pm.pixel_xy()
         st_m = pm.stride
@@ -235,7 +300,17 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
         masks += _masks(pm_mask, (px, py), None, 0)
         masked_px += int(pm.masked.sum()) * st_m * st_m * len(frames)
         warnings += list(pm.notes)
-    for i, fr_ in enumerate(frames if pm is None else ()):
+    return pm, masks, masked_px
+
+
+def _frame_fits(frames, ap, aspect: float, n: float, pixel_um, say, warnings: list[str], notes: list[str]):
+    """The gap model fitted to each frame, later frames from the first frame's fit: (fits, masks, masked px)."""
+    px, py = pixel_um
+    F = finesse_coefficient(GLASS_INDEX, n)
+    fits: list[GapFit] = []
+    masks: list[dict] = []
+    masked_px = 0
+    for i, fr_ in enumerate(frames):
         f0 = 0.05 + 0.85 * i / len(frames)
         say(f0, f"frame {i + 1}/{len(frames)}: fitting the gap")
         data = np.asarray(fr_.data, dtype=np.float32)
@@ -260,6 +335,13 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
         masked_px += int(g.masked_px.sum()) if g.masked_px is not None else 0
         warnings += [f"{fr_.name}: {m}" for m in g.notes if not m.startswith("fringe shape")]
         notes += [m for m in g.notes if m.startswith("fringe shape") and i == 0]
+    return fits, masks, masked_px
+
+
+def _test_disc(ap, fits, pm, px: float, setup, tol, warnings: list[str]):
+    """The aperture's radius uncertainty (with the fringe model's own edge as a cross-check) and the test
+    diameter: (aperture, its diameter in mm, test diameter in mm, where it came from, its radius in the fit's
+    normalised units)."""
     # The rim is fitted directly (form.aperture: a blurred step-and-slope model along rays, one circle through
     # all of them); the gap model's own extent (where its fringes stop) is only a cross-check: where the two
     # disagree, the difference enters the aperture radius's uncertainty as a rectangular term (Type B).
@@ -285,7 +367,14 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
                         f"({ap_diam_mm:.2f} mm); evaluated over the clear aperture")
         td, td_src = ap_diam_mm, "clear aperture (requested diameter too large)"
     k_td = min(1.0, td / ap_diam_mm) * ap.radius_px / fit_radius  # in the fit's normalised radius
-    say(0.92, "form terms and their uncertainties")
+    return ap, ap_diam_mm, td, td_src, k_td
+
+
+def _terms(pm, fits, k_td: float, ap, warnings: list[str]):
+    """The form terms over the test disc with Monte Carlo uncertainties from the fit covariance and the Type B
+    rows (model choice, aperture radius): (terms, their u, axis u, budget rows, the map's power sign, the disc's
+    W and coordinates)."""
+    map_sign = 0
     uu, vv, un, vn = _disc_grid(k_td, rim=RIM)
     if pm is None:
         # form terms from the first frame's fit (the other frames only move the piston)
@@ -345,7 +434,12 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
     if terms_u:
         for name in FORM_TERMS:
             terms_u[name] = math.sqrt(sum(x * x for _, x in budget_rows[name]))
-    # sign
+    return terms, terms_u, axis_u, budget_rows, map_sign, W, un, vn
+
+
+def _sign(setup, pm, map_sign: int, fits, warnings: list[str]) -> SignResult:
+    """The power's sign: from the press test, the live view's motion, the phase map's steps or the frames'
+    pistons (frames win over a contradicting press test)."""
     sign = UNKNOWN
     if setup.press_test:
         sign = sign_from_press(setup.press_test)
@@ -389,50 +483,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
             warnings.append("the press-test observation contradicts the frame sequence; the frames are used")
         if sf.sign or sign.sign == 0:
             sign = sf
-    if sign.sign == 0:
-        notes.append("power sign unknown: power is reported as a magnitude")
-    power_signed = terms["power_fringes"] * (sign.sign if sign.sign else 1)
-    terms["power_fringes"] = power_signed
-    # radius against the plate
-    radius = None
-    plate = setup.test_plate
-    if plate and plate.get("radius_mm") and math.isfinite(float(plate["radius_mm"])):
-        radius, rw = _radius_block(terms["power_fringes"], terms_u.get("power_fringes", 0.0), td,
-                                   ap, px, setup, plate, sign)
-        warnings += rw
-    hmap, hext = _height_map(pm, fits, ap, fr, sign)
-    verdict = judge(tol, terms, terms_u, measured_fringe_nm=fr, measured_wavelength_nm=lam,
-                    rule=setup.decision_rule, sign_known=bool(sign.sign))
-    if verdict.get("wavelength_note"):
-        notes.append(verdict["wavelength_note"])
-    u_lam = setup.source.wavelength_u_nm
-    k = 2.0
-    quantities = tuple(
-        FormTerm(name.removesuffix("_fringes"),
-                 Quantity(float(terms[name]), _opt(terms_u.get(name)), "fringes", k),
-                 Quantity(float(terms[name]) * fr,
-                          None if terms_u.get(name) is None else u_nm(terms[name], terms_u[name], fr, u_lam, lam),
-                          "nm", k))
-        for name in FORM_TERMS
-    )
-    return FormResult(
-        wavelength_nm=lam, wavelength_u_nm=u_lam, medium_index=n, fringe_nm=fr, quantities=quantities,
-        astigmatism_axis=Quantity(float(terms["astigmatism_axis_deg"]), _opt(axis_u), "°", k),
-        test_diameter_mm=float(td), test_diameter_source=td_src, aperture=ap,
-        aperture_diameter=Quantity(float(ap_diam_mm), 2 * float(ap.radius_u_px) * px * 1e-3, "mm", k),
-        masks=tuple(Mask.from_dict(m) for m in masks),
-        masked_fraction=float(masked_px / max(1, len(frames) * math.pi * ap.radius_px**2 / aspect)),
-        sign=sign, fits=tuple(FitSummary.of(f) for f in fits), radius=SurfaceRadius.from_dict(radius),
-        tolerance=tol, verdict=Verdict.from_dict(verdict),
-        warnings=tuple(dict.fromkeys(warnings)), pixel_size_um=(px, py),
-        elapsed_s=time.perf_counter() - t0, notes=tuple(notes),
-        budget_rows={key: tuple((src, float(u)) for src, u in v) for key, v in budget_rows.items()},
-        route=route,
-        zernike_ansi=_ansi_block(W[:-RIM], un[:-RIM], vn[:-RIM], td, fr),
-        height_map=None if hmap is None else HeightMap.of(hmap, hext, bool(sign.sign)),
-        phase=None if pm is None else PhaseSummary.of(pm),
-        engine_fits=tuple(fits),
-    )
+    return sign
 
 
 def _opt(x) -> float | None:

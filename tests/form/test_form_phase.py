@@ -236,7 +236,7 @@ def test_generated_frame_sets_of_known_form(name):
     assert t["irregularity_fringes"] == pytest.approx(truth["irregularity_fringes"], abs=0.05)
     if expected:
         assert r.sign.sign == expected, r.sign.detail
-    np.testing.assert_allclose(r.phase["steps_fringes"], steps, atol=0.02)
+    np.testing.assert_allclose(r.phase.steps_fringes, steps, atol=0.02)
     d = r.to_dict()
     assert d["route"] == r.route and d["height_map"]["rows"] > 10
     assert d["zernike_ansi"]["terms"][4]["n"] == 2 and d["zernike_ansi"]["terms"][4]["m"] == 0
