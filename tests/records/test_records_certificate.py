@@ -233,27 +233,33 @@ def form_result(make_result) -> dict:
     res = make_result("tp")
     res.update(radius_mm=None, radius_u_mm=None, radius_U_mm=None, budget=None, fringes=None, centre_px=None)
     fr = 273.037
-    form = {"method": "full-aperture gap-model fit", "wavelength_nm": 546.074, "fringe_nm": fr, "k": 2.0}
+    # the whole shape from the sample result (a stored form result reads back typed), the values set here
+    form = {**res["form"], "method": "full-aperture gap-model fit", "wavelength_nm": 546.074, "fringe_nm": fr,
+            "k": 2.0}
     for t, v, u in (("power", 1.25, 0.05), ("astigmatism", 0.3, 0.02), ("irregularity", 0.21, 0.01),
                     ("rot_sym_irregularity", 0.08, 0.01), ("rms_total", 0.3, 0.01), ("rms_irregularity", 0.04,
                     0.002), ("rms_asymmetric", 0.03, 0.002), ("pv_total", 1.4, 0.06)):
         form.update({f"{t}_fringes": v, f"{t}_u_fringes": u, f"{t}_nm": v * fr, f"{t}_u_nm": u * fr})
-    form.update(power_sign="+", sign={"sign": "+", "meaning": "centre contact"}, astigmatism_axis_deg=42.0,
-                astigmatism_axis_u_deg=1.5, test_diameter_mm=18.0, test_diameter_source="tolerance",
-                aperture={"centre_px": [160.0, 120.0], "diameter_px": 200.0},
+    form.update(power_sign="+", sign={**form["sign"], "sign": "+", "meaning": "centre contact"},
+                astigmatism_axis_deg=42.0, astigmatism_axis_u_deg=1.5, test_diameter_mm=18.0,
+                test_diameter_source="tolerance",
+                aperture={**form["aperture"], "centre_px": [160.0, 120.0], "diameter_px": 200.0},
                 uncertainty_budget={"power_fringes": [{"source": "fit (pixel noise)", "u_fringes": 0.01,
                                                        "u_nm": 2.7}]},
-                radius={"delta_r_mm": -0.0105, "delta_r_U_mm": 0.0028, "surface_radius_mm": 49.9895,
-                        "surface_radius_U_mm": 0.0049, "k": 2.0},
+                radius={**form["radius"], "delta_r_mm": -0.0105, "delta_r_u_mm": 0.0014, "delta_r_U_mm": 0.0028,
+                        "surface_radius_mm": 49.9895, "surface_radius_u_mm": 0.00245, "surface_radius_U_mm": 0.0049,
+                        "k": 2.0},
                 tolerance={"text": "3/2(0.5)", "wavelength_nm": 546.07, "wavelength_stated": False})
     res["form"] = form
     res["verdict"] = {"overall": "conditional pass", "rule": "simple", "decision_rule": "simple acceptance",
                       "meaning": "the result lies within U of a limit",
-                      "terms": [{"term": "power", "value_fringes": 1.25, "U_fringes": 0.1, "limit_fringes": 2.0,
-                                 "wavelength_nm": 546.07, "verdict": "pass", "note": ""},
-                                {"term": "irregularity", "value_fringes": 0.48, "U_fringes": 0.04,
-                                 "limit_fringes": 0.5, "wavelength_nm": 546.07, "verdict": "conditional pass",
-                                 "note": ""}]}
+                      "terms": [{"term": "power", "value": 1.25, "U": 0.1, "limit": 2.0, "unit": "fringes",
+                                 "value_fringes": 1.25, "U_fringes": 0.1, "limit_fringes": 2.0, "value_nm": 1.25 * fr,
+                                 "wavelength_nm": 546.07, "wavelength_stated": False, "verdict": "pass", "note": ""},
+                                {"term": "irregularity", "value": 0.48, "U": 0.04, "limit": 0.5, "unit": "fringes",
+                                 "value_fringes": 0.48, "U_fringes": 0.04, "limit_fringes": 0.5,
+                                 "value_nm": 0.48 * fr, "wavelength_nm": 546.07, "wavelength_stated": False,
+                                 "verdict": "conditional pass", "note": ""}]}
     res["setup"]["test_plate"] = {"id": "TP-0117", "radius_mm": 50.0, "radius_u_mm": 0.002, "kind": "concave",
                                   "calibrated": "2026-03-14", "due": "2027-03-14", "overdue": False}
     return res
