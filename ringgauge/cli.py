@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import argparse
 import importlib
-import importlib.util
 import sys
 import traceback
 
@@ -71,10 +70,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_log_options(parser, top=True)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
-        modname = f"ringgauge.commands.{name}"
-        if importlib.util.find_spec(modname) is None:
-            continue
-        importlib.import_module(modname).register(sub)
+        importlib.import_module(f"ringgauge.commands.{name}").register(sub)
     _add_log_options_below(parser)
     from .commands._options import guard_parser
 

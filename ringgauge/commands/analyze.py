@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import importlib.util
 import json
 import sys
 
@@ -11,18 +10,6 @@ from ._options import add_max_megapixels, number
 from ..sources import SOURCES
 from ._help import ExampleFormatter
 from ._setup import add_form_arguments, setup_from_args  # noqa: F401 - batch, watch and tests take it from here
-
-
-def _float(text: str) -> float:
-    """Any finite number (kept for commands that import it; new options use ringgauge.options.number)."""
-    return number("")(text)
-
-
-def _has(mod: str) -> bool:
-    try:
-        return importlib.util.find_spec(mod) is not None
-    except ModuleNotFoundError:
-        return False
 
 
 def add_setup_arguments(p: argparse.ArgumentParser) -> None:
