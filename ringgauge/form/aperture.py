@@ -142,7 +142,7 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     if tab is not None:
         # this pass only centres the rays and picks the blur for the close look below: a fiftieth of a pixel
         # is close enough (the close look fits the rim afresh about that centre)
-        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect, xtol=0.02)
+        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect, xtol=0.02, n_try=1)
         # close look: the part's side of the model is a local quadratic (a sinusoid where the fringes are dense),
         # so it may reach only a fraction of the fringe spacing into the part; the longest stretch the model
         # still explains to the noise is kept

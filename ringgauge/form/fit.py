@@ -694,7 +694,7 @@ def _fit_gap(
             progress("choosing the fringe shape")
         # the choice and the sensitivities are refits on a third of the sample (the same pixels for every
         # candidate, so their differences are the model's, not the noise's)
-        kk = max(1, prob.y.size // 6000)
+        kk = max(1, -(-prob.y.size // 6000))
 
         def on_mid(F, deg=illum_degree, _p=prob):
             return _Problem(_p.u[::kk], _p.v[::kk], _p.y[::kk], deg, finesse=F)
