@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 
 from ._options import add_max_megapixels, number
@@ -66,16 +65,15 @@ def register(sub) -> None:
     o.add_argument("--json", action="store_true", help="print the full result as JSON instead of the text report")
     o.add_argument("--out", metavar="FILE", help="also write the JSON result to FILE")
     o.add_argument("--quiet", action="store_true", help="no progress messages on stderr")
-    if _has("ringgauge.records"):
-        from . import _records_common as rc
+    from . import _records_common as rc
 
-        r = p.add_argument_group("keeping the result")
-        r.add_argument(
-            "--record", action="store_true",
-            help="keep this analysis as an inspection record in the records store (see 'ringgauge records')",
-        )
-        rc.add_db_argument(r)
-        rc.add_meta_arguments(p)
+    r = p.add_argument_group("keeping the result")
+    r.add_argument(
+        "--record", action="store_true",
+        help="keep this analysis as an inspection record in the records store (see 'ringgauge records')",
+    )
+    rc.add_db_argument(r)
+    rc.add_meta_arguments(p)
     p.set_defaults(func=run)
 
 

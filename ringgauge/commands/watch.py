@@ -9,8 +9,8 @@ import os
 import sys
 
 from ..errors import InputError
-from ._options import integer
-from .analyze import _float, add_setup_arguments, setup_from_args
+from ._options import integer, number
+from .analyze import add_setup_arguments, setup_from_args
 
 
 def register(sub) -> None:
@@ -43,13 +43,13 @@ def register(sub) -> None:
     g = p.add_argument_group("live analysis")
     g.add_argument("--settle-frames", type=integer("--settle-frames", lo=2), default=None, metavar="N",
                    help="frames the fringes must stand still for the part to count as settled (default 10)")
-    g.add_argument("--settle-fringes", type=_float, default=None, metavar="F",
+    g.add_argument("--settle-fringes", type=number("--settle-fringes"), default=None, metavar="F",
                    help="largest fringe motion over those frames, fractions of a fringe (default 0.05)")
     g.add_argument("--realtime", action="store_true",
                    help="play a video file or folder at its frame rate, dropping frames as a camera would "
                    "(default for files: analyse every frame)")
     g.add_argument("--max-frames", type=int, default=None, metavar="N", help="stop after N analysed frames")
-    g.add_argument("--open-timeout", type=_float, default=None, metavar="S",
+    g.add_argument("--open-timeout", type=number("--open-timeout"), default=None, metavar="S",
                    help="longest wait for the source to open, s (default 8)")
     o = p.add_argument_group("output")
     o.add_argument("--json", action="store_true", help="one JSON object per analysed frame, one per line")
