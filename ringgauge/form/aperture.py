@@ -142,7 +142,7 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     if tab is not None:
         # this pass only centres the rays and picks the blur for the close look below: a fiftieth of a pixel
         # is close enough (the close look fits the rim afresh about that centre)
-        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect, xtol=0.02, n_try=1)
+        circle, n_rays, sig, _ = _rim_circle(tab, circle, aspect, xtol=0.02)
         # close look: the part's side of the model is a local quadratic (a sinusoid where the fringes are dense),
         # so it may reach only a fraction of the fringe spacing into the part; the longest stretch the model
         # still explains to the noise is kept
@@ -445,7 +445,7 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
             "profiles": Y, "t": t, "k": kq}
 
 
-def _rim_circle(tab, circle, aspect, xtol=1e-3, n_try=2):
+def _rim_circle(tab, circle, aspect, xtol=1e-3, n_try=1):
     """The circle that best explains every ray's profile at once: minimises the sum over rays of each ray's
     excess misfit at the circle's crossing (capped, so dust or a chip on a few rays cannot pull it). Returns
     (cx, cy, r, u_cx, u_cy, u_r, rms of the per-ray best positions about it, blur) and the rays used."""
@@ -462,8 +462,8 @@ def _rim_circle(tab, circle, aspect, xtol=1e-3, n_try=2):
         return pu + np.sqrt(np.maximum(disc, 0.0))
 
     best = None
-    # the minimiser runs for the blurs whose per-ray best misfits sum lowest (a lower bound of the total it
-    # compares); the others cannot win by much and cost a minimisation each
+    # the minimiser runs for the blur(s) whose per-ray best misfits sum lowest (a lower bound of the total it
+    # compares); on the generated parts a second blur never won, and each costs a minimisation
     items = sorted(tab["tables"].items(), key=lambda it: float(np.sum(np.minimum(it[1].min(axis=1), 1e9))))
     for sig, T in items[:n_try]:
         mins = T.min(axis=1)
