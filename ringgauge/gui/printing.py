@@ -43,7 +43,11 @@ def result_html(result: AnalysisResult, *, title: str = "", stale: bool = False,
             parts.append(f"<p>{_esc(line)}</p>")
     parts.append("<table border='1' cellspacing='0' cellpadding='3'><tr><th>Quantity</th><th>Value</th>"
                  "<th>U</th><th>Unit</th></tr>")
+    group = None
     for r in rows:
+        if r.group != group:  # the presentation's sections, as headings inside the table
+            group = r.group
+            parts.append(f"<tr><th colspan='4' align='left'>{_esc(group)}</th></tr>")
         parts.append(f"<tr><td>{_esc(r.label)}</td><td align='right'>{_esc(r.value)}</td>"
                      f"<td align='right'>{_esc(r.uncertainty)}</td><td>{_esc(r.unit)}</td></tr>")
     parts.append("</table>")
