@@ -134,9 +134,7 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
         raise AnalysisError(_NO_EDGE + " (no part outline against the plate)" + _TRY)
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
     n_rays = 0
-    light_floor = 1e-6 * max(float(light.max()), 1e-12)
-    norm = np.divide(img, np.maximum(light, light_floor, out=light), out=light)  # in place: no extra frame
-    del light
+    norm = light  # sampled as image / light model where the rim finder looks (see _PlateLight)
     # every other trial blur: this pass only seeds the close look, which tries the blur found and its neighbours
     tab = _rim_tables(norm, circle, aspect, window=0.25, sigmas=SIGMAS[::2])
     if tab is not None:
@@ -234,7 +232,8 @@ def _poly_terms(X, Y, order=3):
 
 
 def _coarse_region(img: np.ndarray):
-    """The plate's light model (full size) and a boolean mask of the part (full size).
+    """The plate's light model (a :class:`_PlateLight`, which samples the image divided by it) and a boolean
+    mask of the part (full size).
 
     Works on a reduced copy. The plate's light is modelled as exp(quadratic in x, y) — a Gaussian fall-off and a
     gentle ramp both fit it — over pixels taken to be plate: first a border strip, then all pixels outside the
@@ -297,26 +296,41 @@ def _coarse_region(img: np.ndarray):
         region = reg
         if new_plate.sum() >= 3 * A.shape[-1] * 4:
             plate = new_plate
-    # full-size light model and part mask. The cubic is evaluated separably (for each power of y, a polynomial in
-    # x along one row, then one outer product per power of y): four full-size passes instead of a stack of ten
-    # full-size terms
-    xf = ((np.arange(W) + 0.5) / step - 0.5 - w2 / 2) / max(w2, h2)
-    yf = ((np.arange(H) + 0.5) / step - 0.5 - h2 / 2) / max(w2, h2)
-    by_y = {}
-    col = 0
-    for d in range(0, 4):
-        for k in range(d + 1):  # term X**(d-k) * Y**k, in the order of _poly_terms
-            by_y.setdefault(k, np.zeros(W))
-            by_y[k] = by_y[k] + kept[col] * xf ** (d - k)
-            col += 1
-    light = np.multiply.outer(yf ** 0, by_y[0])
-    for k in range(1, 4):
-        light += np.multiply.outer(yf**k, by_y[k])
-    np.exp(light, out=light)
+    # the part mask at full size; the light model is kept as its coefficients and evaluated only where the rim
+    # finder samples the image (a few hundred thousand points, not the whole frame)
     mask = np.zeros((H, W), dtype=bool)
     full = np.kron(region, np.ones((step, step), dtype=bool))
     mask[: full.shape[0], : full.shape[1]] = full
-    return light, mask
+    return _PlateLight(img, kept, step, h2, w2, float(np.exp(np.max(A @ kept)))), mask
+
+
+class _PlateLight:
+    """The image divided by the plate's light model exp(cubic in x, y) (see :func:`_coarse_region`), sampled at
+    given points: the image bilinearly, the model exactly there."""
+
+    def __init__(self, img, coef, step, h2, w2, peak):
+        self.img = img
+        self.coef = np.asarray(coef, dtype=float)
+        self.step, self.h2, self.w2 = step, h2, w2
+        self.floor = 1e-6 * max(peak, 1e-12)
+        self.shape = img.shape
+
+    def light(self, ys, xs):
+        s = max(self.w2, self.h2)
+        X = ((xs + 0.5) / self.step - 0.5 - self.w2 / 2) / s
+        Y = ((ys + 0.5) / self.step - 0.5 - self.h2 / 2) / s
+        # the cubic by powers of y: sum_k Y^k P_k(X), each P_k by Horner in X (terms in the order of _poly_terms)
+        c = self.coef
+        P0 = ((c[6] * X + c[3]) * X + c[1]) * X + c[0]
+        P1 = (c[7] * X + c[4]) * X + c[2]
+        P2 = c[8] * X + c[5]
+        q = ((c[9] * Y + P2) * Y + P1) * Y + P0
+        return np.exp(q, out=q)
+
+    def sample(self, ys, xs):
+        """Normalised brightness (the plate reads about 1) at rows ``ys`` and columns ``xs`` (inside the frame)."""
+        v = ndimage.map_coordinates(self.img, [ys, xs], order=1, mode="nearest")
+        return v / np.maximum(self.light(ys, xs), self.floor)
 
 
 def _fit_circle(xs, ys, aspect, x0=None):
@@ -354,7 +368,8 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
                 in_px: float = RIM_INSIDE_PX, sigmas=SIGMAS, fringes: bool = False):
     """Per-ray misfit of the blurred-edge model against the trial rim position, for each trial blur.
 
-    ``norm`` is the image divided by the plate's light model, so the plate reads about 1 everywhere. On each
+    ``norm`` samples the image divided by the plate's light model (:class:`_PlateLight`), so the plate reads
+    about 1 everywhere. On each
     ray the outermost sustained departure from the plate's level marks the rim roughly; the blurred-edge model
     (:func:`_edge_basis`) is compared with the profile over ``out_px`` of plate beyond and ``in_px`` of part
     within that point. The model is linear in its levels and slopes, so for each trial position and blur they
@@ -373,7 +388,7 @@ def _rim_tables(norm, circle, aspect, *, window: float, nrays: int = RIM_RAYS, o
     xs = cx + rr * np.cos(th)[:, None]
     ys = cy + rr * np.sin(th)[:, None] / aspect
     ok = (xs >= 0) & (xs <= W - 1) & (ys >= 0) & (ys <= H - 1)
-    prof = ndimage.map_coordinates(norm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1, mode="nearest")
+    prof = norm.sample(np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1))
     # plate level and scatter (noise) from the outer part of every ray
     n_ref = max(8, int(0.5 * (s_out - out_px) / ds))
     ref = prof[:, :n_ref]
@@ -619,7 +634,7 @@ def _ray_frequencies(norm, centre, theta, base, aspect, in_px):
     rr = base[:, None] - x[None, :]
     xs = centre[0] + rr * np.cos(theta)[:, None]
     ys = centre[1] + rr * np.sin(theta)[:, None] / aspect
-    seg = ndimage.map_coordinates(norm, [np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1)], order=1, mode="nearest")
+    seg = norm.sample(np.clip(ys, 0, H - 1), np.clip(xs, 0, W - 1))
     X = np.stack([np.ones_like(x), x - x.mean()], axis=1)
     seg = seg - (seg @ np.linalg.pinv(X).T) @ X.T
     periods = np.geomspace(2.5, 64.0, 100)
