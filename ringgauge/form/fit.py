@@ -665,7 +665,7 @@ def _fit_gap(
     if progress:
         progress("looking for dust and defects")
     resid = _model_map(crop, p, nw, finesse, illum_degree) - crop.img
-    r_in = resid[inside]
+    r_in = resid[sel]  # the fit's own sample (tens of thousands of pixels) gives the robust scatter as well
     sig = 1.4826 * np.median(np.abs(r_in - np.median(r_in)))
     bad = _open_dilate(inside & (np.abs(resid) > max(4.5 * sig, 1e-6))) & inside
     if last.success and not np.any(sel & bad):
