@@ -67,6 +67,21 @@ def document_label(spec: TermSpec) -> str:
     return _DOCUMENT_WORDING.get(spec.name, _capital(spec.label))
 
 
+def typed_result(result: "AnalysisResult | dict") -> "AnalysisResult":
+    """The typed result; a stored result's JSON (``to_dict()``) is read back first. A stored result that cannot
+    be read back is a one-line :class:`~ringgauge.errors.InputError`, never a traceback."""
+    from .errors import InputError
+    from .result import AnalysisResult
+
+    if isinstance(result, AnalysisResult):
+        return result
+    try:
+        return AnalysisResult.from_dict(result)
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:
+        raise InputError(f"the stored result cannot be read back ({type(exc).__name__}: {exc}); it was written by "
+                         "another version or changed by hand") from None
+
+
 # -- rows -------------------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Row:

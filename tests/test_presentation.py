@@ -183,3 +183,14 @@ def test_the_certificate_renders_the_same_rows(pair_result, single_result, radiu
                 a, b = pr.value_and_U(x.value.value, x.value.U)
                 assert p["value"].startswith(f"{a} {x.value.unit}") and p["U"].startswith(f"{b} {x.value.unit}")
                 assert math.isclose(float(p["k"]), x.value.k)
+
+
+def test_a_stored_result_that_cannot_be_read_back_is_one_line(pair_result):
+    from ringgauge.errors import InputError
+
+    d = pair_result.to_dict()
+    assert pr.typed_result(d) == pair_result  # read back as it was
+    del d["form"]["wavelength_u_nm"]  # a form result stored by hand without its wavelength's uncertainty
+    with pytest.raises(InputError) as exc:
+        pr.typed_result(d)
+    assert "\n" not in str(exc.value) and "cannot be read back" in str(exc.value)

@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..form.result import FORM_TERMS
+from ..presentation import typed_result
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..result import AnalysisResult
@@ -32,13 +33,6 @@ def _figure(w_in: float, h_in: float, dpi: int = 150):
     return Figure(figsize=(w_in, h_in), dpi=dpi)
 
 
-def _typed(result: "AnalysisResult | dict") -> "AnalysisResult":
-    """The typed result; a stored result's JSON (``to_dict()``) is read back first."""
-    from ..result import AnalysisResult
-
-    return result if isinstance(result, AnalysisResult) else AnalysisResult.from_dict(result)
-
-
 def overlay_png(image01: np.ndarray, result: "AnalysisResult | dict", path: str | Path, *, title: str | None = None,
                 fmt: str = "png") -> None:
     """The image (intensity in [0, 1], ``image[y, x]``) with the fitted rings, centre and aperture drawn on.
@@ -47,7 +41,7 @@ def overlay_png(image01: np.ndarray, result: "AnalysisResult | dict", path: str 
     image, not this illustration, identifies the data."""
     from matplotlib.patches import Ellipse
 
-    r = _typed(result)
+    r = typed_result(result)
     img = np.asarray(image01, dtype=np.float32)
     H, W = img.shape
     step = max(1, int(math.ceil(max(H, W) / MAX_DISPLAY_PX)))
@@ -91,7 +85,7 @@ def overlay_png(image01: np.ndarray, result: "AnalysisResult | dict", path: str 
 
 def fit_plot_png(result: "AnalysisResult | dict", path: str | Path) -> bool:
     """The fit behind the result; returns False (and draws nothing) when the result holds no fit to show."""
-    r = _typed(result)
+    r = typed_result(result)
     fit = r.fit
     rings = [] if fit is None else [x for x in fit.rings if x.r2_mm2 is not None and x.order is not None]
     if len(rings) >= 2 and fit.slope_mm2 is not None:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-from ..presentation import quantity_text
+from ..presentation import quantity_text, typed_result
 from ..result import AnalysisResult
 from ..uncertainty import Budget, Quantity, round_uncertainty
 
@@ -54,7 +54,7 @@ def format_result(result: AnalysisResult | dict, *, warnings=None) -> str:
 
     ``result`` is the typed result; a stored result's JSON (``to_dict()``) is read back first. ``warnings``
     replaces the result's own list (the command puts the set-up's warnings in front of them)."""
-    r = result if isinstance(result, AnalysisResult) else AnalysisResult.from_dict(result)
+    r = typed_result(result)
     if warnings is not None:
         r = replace(r, warnings=tuple(warnings))
     out: list[str] = []
