@@ -135,8 +135,9 @@ def find_aperture(image: np.ndarray, *, aspect: float = 1.0) -> Aperture:
     circle = _fit_circle(xs.astype(float), ys.astype(float), aspect)
     n_rays = 0
     norm = light  # sampled as image / light model where the rim finder looks (see _PlateLight)
-    # every other trial blur: this pass only seeds the close look, which tries the blur found and its neighbours
-    tab = _rim_tables(norm, circle, aspect, window=0.25, sigmas=SIGMAS[::2])
+    # every other trial blur and every other ray: this pass only seeds the close look (centre and blur), which
+    # tries the blur found and its neighbours on all rays
+    tab = _rim_tables(norm, circle, aspect, window=0.25, sigmas=SIGMAS[::2], nrays=RIM_RAYS // 2)
     if tab is not None:
         # this pass only centres the rays and picks the blur for the close look below: a fiftieth of a pixel
         # is close enough (the close look fits the rim afresh about that centre)
