@@ -43,9 +43,9 @@ def test_rings_cut_by_the_frame_get_a_sector_scatter():
                  vignette_sigma=1.2, vignette_centre=(0.45, 0.55), ramp=(0.15, -0.1), stray=0.04, blur_px=0.8,
                  full_well_e=10000.0, read_noise_e=6.0, bits=8)
     res = analyse(frame_from_array(M.render(sc, 3).counts), setup_for(sc))
-    sec = res.fullfield["sectors"]
-    assert sec is not None and sec["n_sectors"] >= 6, sec
-    ang = np.array(sec["angles_deg"])
+    sec = res.fullfield.sectors
+    assert sec is not None and sec.n_sectors >= 6, sec
+    ang = np.array(sec.angles_deg)
     assert np.all(np.abs(ang) < 90.0)  # all on the side the frame shows
     err = res.radius_mm / R - 1
     assert abs(err) <= 3 * res.radius_u_mm / R, (err, res.radius_u_mm / R)
