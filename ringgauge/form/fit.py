@@ -422,14 +422,20 @@ class _Crop:
 def _model_map(crop: _Crop, p, nw, finesse, illum_degree) -> np.ndarray:
     """The fitted intensity model over the whole crop (float64, rows x cols)."""
     c, m, lin = p[:nw], p[nw : nw + 3], p[nw + 3 :]
-    W = _grid(_gap_monomials(c), crop.uc, crop.vr)
+    Cw, Cl = _gap_monomials(c), _illum_monomials(lin[1:], illum_degree)
     shp = _Problem.__new__(_Problem)
     shp.F = float(finesse)
-    S = shp.shape(2 * np.pi * W)
-    del W
-    M = m[0] + m[1] * crop.uc[None, :] + m[2] * crop.vr[:, None]
-    L = _grid(_illum_monomials(lin[1:], illum_degree), crop.uc, crop.vr)
-    return lin[0] + L * (1.0 + M * S)
+    uc = crop.uc
+    out = np.empty(crop.shape)
+    # by blocks of rows: the same sums for every pixel, with temporaries that stay in the cache instead of
+    # half a dozen frame-sized arrays
+    for r0 in range(0, crop.shape[0], 64):
+        vr = crop.vr[r0 : r0 + 64]
+        S = shp.shape(2 * np.pi * _grid(Cw, uc, vr))
+        M = m[0] + m[1] * uc[None, :] + m[2] * vr[:, None]
+        L = _grid(Cl, uc, vr)
+        out[r0 : r0 + 64] = lin[0] + L * (1.0 + M * S)
+    return out
 
 
 def _open_dilate(mask: np.ndarray) -> np.ndarray:
@@ -664,7 +670,8 @@ def _fit_gap(
     # outlier pass on all pixels: dust, glints and chips leave large residuals in compact clusters
     if progress:
         progress("looking for dust and defects")
-    resid = _model_map(crop, p, nw, finesse, illum_degree) - crop.img
+    resid = _model_map(crop, p, nw, finesse, illum_degree)
+    resid -= crop.img
     r_in = resid[sel]  # the fit's own sample (tens of thousands of pixels) gives the robust scatter as well
     sig = 1.4826 * np.median(np.abs(r_in - np.median(r_in)))
     bad = _open_dilate(inside & (np.abs(resid) > max(4.5 * sig, 1e-6))) & inside
