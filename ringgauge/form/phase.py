@@ -358,9 +358,9 @@ class PhaseMap:
 
 def phase_map(*args, **kwargs) -> PhaseMap:
     """See :func:`_phase_map` (run with the BLAS library held to one thread: small matrices, busy machine)."""
-    from threadpoolctl import threadpool_limits
+    from .fit import one_blas_thread
 
-    with threadpool_limits(limits=1, user_api="blas"):
+    with one_blas_thread():
         return _phase_map(*args, **kwargs)
 
 
