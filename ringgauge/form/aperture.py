@@ -598,8 +598,8 @@ def _slope_only_rim(tab, e, sig) -> float:
             step, slope = coef[:, 1] - coef[:, 0], coef[:, 2]
         else:
             step, slope = coef[:, 2] + coef[:, 4] - coef[:, 0], coef[:, 3] + kv * coef[:, 5]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            q = step / (slope * sig)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            q = np.minimum(np.abs(step / (slope * sig)), 1e100)  # no slope: q is infinite or NaN, w is 0
         w[rays] = np.where(np.isfinite(q), 1.0 / (1.0 + q * q), 0.0)
     return float(sig * np.mean(w) / math.sqrt(3))
 
