@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 
 from .errors import InputError
 from .sources import LightSource, get_source
@@ -66,7 +66,6 @@ class BenchSetup:
     test_plate: dict | None = None
     press_test: str | None = None
     decision_rule: str = "simple"
-    extras: dict = field(default_factory=dict)  # transitional: its keys are copied into the typed fields below
     radius_tolerance: str | None = None  # e.g. "1000 ± 5", "1000 ± 0.5 %", "995..1005" (ringgauge.conformity)
     mode: str = "auto"
     gap_change: str = "increasing"
@@ -79,8 +78,6 @@ class BenchSetup:
     bench_warnings: tuple[str, ...] = ()
 
     def __post_init__(self):
-        if self.extras:
-            _absorb_extras(self)
         for name, n in (("centre_px", 2), ("aperture_px", 3)):
             v = getattr(self, name)
             if v is not None:
@@ -220,17 +217,6 @@ class BenchSetup:
 #: the stored default of each option that shaped a result (``to_dict`` writes only those that differ)
 _DEFAULTS = {"mode": "auto", "gap_change": "increasing", "form_route": "auto", "centre_px": None,
              "aperture_px": None, "motion_sign": None, "operator": None, "inspection": None, "bench_warnings": None}
-
-#: the loose keys older callers passed in ``extras``, and the typed field each now goes to
-_EXTRAS_FIELDS = ("mode", "gap_change", "form_route", "centre_px", "aperture_px", "motion_sign", "operator",
-                  "inspection", "bench_warnings")
-
-
-def _absorb_extras(setup: "BenchSetup") -> None:
-    for k in _EXTRAS_FIELDS:
-        if k in setup.extras and setup.extras[k] is not None:
-            object.__setattr__(setup, k, setup.extras[k])
-
 
 def check_positive(what: str, value, unit: str) -> float:
     try:

@@ -155,8 +155,8 @@ from ringgauge.form.evaluate import evaluate_form
 from ringgauge.imaging import load_frame
 paths, given = sys.argv[3:], sys.argv[2] == "1"
 frames = [load_frame(p) for p in paths]
-extras = {"aperture_px": (639.5, 511.5, 450.0)} if given else {}
-setup = default_setup(20.0, "mercury-e", pixel_size_u_um=0.02, extras=extras)
+setup = default_setup(20.0, "mercury-e", pixel_size_u_um=0.02,
+                      aperture_px=(639.5, 511.5, 450.0) if given else None)
 base = hwm()
 t0, c0 = time.perf_counter(), time.process_time()
 r = evaluate_form(frames, setup)

@@ -73,10 +73,10 @@ _TRY = ("; show the whole part with some plate around it, in focus, or give the 
         "(analyze --aperture X Y DIAMETER, or set it in the window)")
 
 
-def aperture_for(image: np.ndarray, *, aspect: float = 1.0, extras: dict | None = None) -> Aperture:
-    """The aperture set by hand (``extras["aperture_px"] = (x, y, radius)``, as the window and ``--aperture``
-    pass it), else the one found by :func:`find_aperture`."""
-    given = (extras or {}).get("aperture_px")
+def aperture_for(image: np.ndarray, *, aspect: float = 1.0,
+                 given: tuple[float, float, float] | None = None) -> Aperture:
+    """The aperture set by hand (``given`` = (x, y, radius) in pixels: ``BenchSetup.aperture_px``, from the
+    window or ``--aperture``), else the one found by :func:`find_aperture`."""
     if given is None:
         return find_aperture(image, aspect=aspect)
     try:
@@ -534,7 +534,6 @@ def _rim_circle(tab, circle, aspect, xtol=1e-3, n_try=1):
     # uncertainty: curvature of the misfit (a Gaussian likelihood has -ln L = SSE / (2 var)): cov = 2 var H^-1
     h = np.array([0.05, 0.05, 0.05])
     Hm = np.zeros((3, 3))
-    f0 = cost(p)
     for a in range(3):
         for b in range(a, 3):
             ea, eb = np.eye(3)[a] * h[a], np.eye(3)[b] * h[b]

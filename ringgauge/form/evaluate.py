@@ -199,7 +199,7 @@ def _evaluate_form(frames, setup, *, progress=None) -> FormResult:
             raise InputError(f"{f.name}: frame size {f.data.shape[::-1]} differs from the first frame's "
                              f"{shape0[::-1]}; frames of one part must come from the same camera set-up")
     say(0.0, "finding the part's edge")
-    ap = aperture_for(frames[0].data, aspect=aspect, extras={"aperture_px": setup.aperture_px})
+    ap = aperture_for(frames[0].data, aspect=aspect, given=setup.aperture_px)
     warnings += list(ap.notes)
     route = "one-frame fit" if len(frames) == 1 else f"model fit with piston steps ({len(frames)} frames)"
     pm, masks, masked_px = _phase_route(frames, ap, aspect, setup, (px, py), say, warnings)

@@ -40,7 +40,7 @@ def test_one_frame_shapes(name):
     img = synth.test_plate_fringes(form, camera=CAM, aperture_diameter_mm=AP_MM, lighting=light,
                                    rng=7 + list(SHAPES).index(name), dust=synth.Dust(count=2, radius_px=(1, 2)))
     setup = default_setup(60.0, "mercury-e", pixel_size_u_um=0.06,
-                          extras={"aperture_px": ((320 - 1) / 2, (320 - 1) / 2, R_PX)})
+                          aperture_px=((320 - 1) / 2, (320 - 1) / 2, R_PX))
     r = evaluate_form([frame_from_array(img.image)], setup)
     _, _, u, v = _disc_grid(1.0, 201)
     truth = form_terms(form.gap_fringes(u, v), u, v)
@@ -64,7 +64,7 @@ def test_half_fringe_with_tilt_under_strong_uneven_light_is_measured_or_reported
     form = synth.SurfaceForm(power=0.5, astig=0.1, tilt_x=0.3, piston=0.15)
     img = synth.test_plate_fringes(form, camera=CAM, aperture_diameter_mm=AP_MM, lighting=light, rng=51)
     setup = default_setup(60.0, "mercury-e", pixel_size_u_um=0.06,
-                          extras={"aperture_px": ((320 - 1) / 2, (320 - 1) / 2, R_PX)})
+                          aperture_px=((320 - 1) / 2, (320 - 1) / 2, R_PX))
     r = evaluate_form([frame_from_array(img.image)], setup)
     _, _, u, v = _disc_grid(1.0, 201)
     truth = form_terms(form.gap_fringes(u, v), u, v)

@@ -78,13 +78,13 @@ def test_centre_in_form_mode_says_it_is_not_used(png):
 def test_hand_set_aperture_is_evaluated_as_given():
     part = P.Part(power=2.0, rim_phase=0.0)
     img = frame_from_array(P.render(part, 4)[0]).data
-    ap = aperture_for(img, extras={"aperture_px": (200.0, 200.0, 120.0)})
+    ap = aperture_for(img, given=(200.0, 200.0, 120.0))
     assert ap.manual and ap.centre_px == (200.0, 200.0) and ap.radius_px == 120.0
     assert ap.to_dict()["source"] == "set by hand"
     with pytest.raises(InputError, match="outside the image"):
-        aperture_for(img, extras={"aperture_px": (900.0, 10.0, 50.0)})
+        aperture_for(img, given=(900.0, 10.0, 50.0))
     with pytest.raises(InputError, match="not a usable circle"):
-        aperture_for(img, extras={"aperture_px": (100.0, 10.0, float("nan"))})
+        aperture_for(img, given=(100.0, 10.0, float("nan")))
 
 
 @pytest.mark.slow

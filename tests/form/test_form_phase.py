@@ -216,7 +216,7 @@ def test_generated_frame_sets_of_known_form(name):
     form, steps, tilts, expected = SETS[name]
     imgs = _set(form, steps, tilts, seed=100 + 10 * list(SETS).index(name))
     setup = default_setup(60.0, "mercury-e", pixel_size_u_um=0.06,
-                          extras={"aperture_px": (CENTRE[0], CENTRE[1], RADIUS_PX), "gap_change": "increasing"})
+                          aperture_px=(CENTRE[0], CENTRE[1], RADIUS_PX), gap_change="increasing")
     r = evaluate_form([frame_from_array(im) for im in imgs], setup)
     _, _, u, v = _disc_grid(1.0, 201)
     truth = form_terms(form.gap_fringes(u, v), u, v)

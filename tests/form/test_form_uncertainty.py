@@ -60,7 +60,7 @@ def draws():
         tilts = [(0.0, 0.0)] + [(float(rng.uniform(-0.05, 0.05)), float(rng.uniform(-0.05, 0.05)))
                                 for _ in range(n - 1)]
         frames = [frame_from_array(f) for f in P.render(part, 700 + i, steps=steps, tilt_steps=tilts)]
-        setup = BenchSetup(source=get_source("mercury-e"), pixel_size_um=100.0, extras={"gap_change": "increasing"})
+        setup = BenchSetup(source=get_source("mercury-e"), pixel_size_um=100.0, gap_change="increasing")
         r = evaluate_form(frames, setup)
         truth = P.truth_terms(part)
         for t in TERMS:

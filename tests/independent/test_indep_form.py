@@ -66,7 +66,7 @@ KNOWN = {
 
 def _setup(part):
     return BenchSetup(source=get_source("mercury-e"), pixel_size_um=part.pixel_um,
-                      extras={"gap_change": "increasing"})
+                      gap_change="increasing")
 
 
 def _check(name, part, frames, *, signed):
