@@ -106,3 +106,21 @@ def test_frame_set(name):
     want = 1 if truth["power_fringes"] > 0 else -1
     assert r.sign.sign == want, (r.sign.sign, r.sign.detail)
     assert all(abs(e) <= TOL for e in errs.values()), errs
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", sorted(KNOWN))
+def test_weak_low_power_parts_say_so_and_cover_their_error(name):
+    # where the 0.05-fringe target is not reached (parts of under about 1.5 fringes under uneven light, the
+    # strict xfails above) the result must say the fit is weak and carry an uncertainty that covers the error:
+    # |error| <= U (k = 2) for power, astigmatism and irregularity, and a "weak fit" warning
+    if name in SINGLE:
+        part, frames, signed = SINGLE[name], P.render(SINGLE[name], 11), False
+    else:
+        part, steps, tilts = SETS[name]
+        frames, signed = P.render(part, 21, steps=steps, tilt_steps=tilts), True
+    r, _, errs = _check(name, part, frames, signed=signed)
+    assert any("weak fit" in w for w in r.warnings), r.warnings
+    for t, e in errs.items():
+        U = r.term(t).fringes.U
+        assert U is not None and abs(e) <= U, (t, e, U)
