@@ -7,41 +7,11 @@ Only the command modules read an argparse namespace; everything past :func:`opti
 from __future__ import annotations
 
 import argparse
-import math
 
 from ..bench_setup import BenchSetup
 from ..form.sign import GAP_CHANGES, PRESS_CHOICES
 from ..setup_options import INSPECTION_FIELDS, SetupOptions, build_setup
-
-
-def _pos_float(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
-    if not v > 0:
-        raise argparse.ArgumentTypeError(f"'{text}' must be positive")
-    return v
-
-
-def _nonneg_float(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
-    if v < 0:
-        raise argparse.ArgumentTypeError(f"'{text}' cannot be negative")
-    return v
-
-
-def _finite_float(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
-    if not math.isfinite(v):
-        raise argparse.ArgumentTypeError(f"'{text}' is not a finite number")
-    return v
+from ._options import number
 
 
 def add_form_arguments(parser: argparse.ArgumentParser) -> None:
@@ -50,16 +20,16 @@ def add_form_arguments(parser: argparse.ArgumentParser) -> None:
         "manual settings (the same as setting them by hand in the window)",
         "Pixel coordinates of the first image: x = column, y = row, origin at the top-left pixel's centre.",
     )
-    m.add_argument("--aperture", nargs=3, type=_finite_float, metavar=("X", "Y", "DIAMETER"),
+    m.add_argument("--aperture", nargs=3, type=number("--aperture"), metavar=("X", "Y", "DIAMETER"),
                    help="the part's clear aperture as a circle: centre x, y and diameter, pixels; replaces the "
                    "edge search (use it when the rim is hidden or the part fills the frame)")
-    m.add_argument("--centre", nargs=2, type=_finite_float, metavar=("X", "Y"),
+    m.add_argument("--centre", nargs=2, type=number("--centre"), metavar=("X", "Y"),
                    help="the ring centre, pixels: a starting point for the ring search of a radius measurement")
     g = parser.add_argument_group(
         "surface form against a test plate (ISO 10110-5)",
         "Power, astigmatism and irregularity in fringes (one fringe = λ/2) over the test diameter.",
     )
-    g.add_argument("--test-diameter", type=_pos_float, metavar="MM",
+    g.add_argument("--test-diameter", type=number("--test-diameter", lo=0, lo_open=True, unit="mm"), metavar="MM",
                    help="diameter to evaluate, mm (default: the tolerance's, else the clear aperture found)")
     g.add_argument("--tolerance", metavar="TEXT",
                    help="drawing tolerance, e.g. \"3/2(0.5)\", \"3/1(0.5/0.2) RMSi < 0.05; λ = 632.8\"; "
@@ -67,9 +37,9 @@ def add_form_arguments(parser: argparse.ArgumentParser) -> None:
     g.add_argument("--decision-rule", choices=("simple", "guard-banded"), default="simple",
                    help="simple acceptance (default) or guard-banded by the expanded uncertainty U")
     g.add_argument("--test-plate", metavar="ID", help="a plate from the register (see 'ringgauge plates list')")
-    g.add_argument("--test-plate-radius", type=_pos_float, metavar="MM",
+    g.add_argument("--test-plate-radius", type=number("--test-plate-radius", lo=0, lo_open=True, unit="mm"), metavar="MM",
                    help="the plate's certified radius, mm, when it is not in the register")
-    g.add_argument("--test-plate-radius-u", type=_nonneg_float, metavar="MM", default=None,
+    g.add_argument("--test-plate-radius-u", type=number("--test-plate-radius-u", lo=0, unit="mm"), metavar="MM", default=None,
                    help="its certified standard uncertainty (k = 1), mm")
     g.add_argument("--test-plate-kind", choices=("convex", "concave", "flat"),
                    help="the plate's working surface (a convex plate tests concave parts; a flat one tests "
