@@ -19,33 +19,29 @@ from ..errors import InputError
 from ..options import DEFAULT_MAX_MEGAPIXELS, MAX_MEGAPIXELS_CEILING, NAME_MAX, _check, check_name
 
 
-def number(option: str, *, lo: float | None = None, hi: float | None = None, lo_open: bool = False,
-           hi_open: bool = False, unit: str = "") -> Callable[[str], float]:
-    """An argparse ``type=`` for a finite float in [lo, hi] (open ends with ``lo_open`` / ``hi_open``)."""
+def _converter(name: str, option: str, **check) -> Callable[[str], float]:
+    """An argparse ``type=`` applying :func:`ringgauge.options._check` (its message without the option's name,
+    which argparse puts in front)."""
 
-    def parse(text: str) -> float:
+    def parse(text: str):
         try:
-            return _check(text, option, lo=lo, hi=hi, lo_open=lo_open, hi_open=hi_open, integer=False, unit=unit,
-                          named=False)
+            return _check(text, option, named=False, **check)
         except ValueError as exc:
             raise argparse.ArgumentTypeError(str(exc)) from None
 
-    parse.__name__ = "number"
+    parse.__name__ = name  # guard_parser knows these as checked already
     return parse
+
+
+def number(option: str, *, lo: float | None = None, hi: float | None = None, lo_open: bool = False,
+           hi_open: bool = False, unit: str = "") -> Callable[[str], float]:
+    """An argparse ``type=`` for a finite float in [lo, hi] (open ends with ``lo_open`` / ``hi_open``)."""
+    return _converter("number", option, lo=lo, hi=hi, lo_open=lo_open, hi_open=hi_open, integer=False, unit=unit)
 
 
 def integer(option: str, *, lo: int | None = None, hi: int | None = None, unit: str = "") -> Callable[[str], int]:
     """An argparse ``type=`` for a whole number in [lo, hi]."""
-
-    def parse(text: str) -> int:
-        try:
-            return _check(text, option, lo=lo, hi=hi, lo_open=False, hi_open=False, integer=True, unit=unit,
-                          named=False)
-        except ValueError as exc:
-            raise argparse.ArgumentTypeError(str(exc)) from None
-
-    parse.__name__ = "integer"
-    return parse
+    return _converter("integer", option, lo=lo, hi=hi, lo_open=False, hi_open=False, integer=True, unit=unit)
 
 
 def name_type(what: str, *, max_len: int = NAME_MAX, free_text: bool = False) -> Callable[[str], str]:
