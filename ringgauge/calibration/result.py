@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import CalibrationError
+from ..serialise import jsonable
 from ..uncertainty import Budget, BudgetRow, Quantity, make_budget
 
 #: object-space pixel sizes ringgauge accepts from a calibration, µm per pixel. Below 0.05 µm a pixel is far
@@ -108,14 +109,7 @@ def _plain(x):
         return [_plain(v) for v in x]
     if isinstance(x, np.ndarray):
         return _plain(x.tolist())
-    if isinstance(x, (np.floating, float)):
-        v = float(x)
-        return v if math.isfinite(v) else None
-    if isinstance(x, np.integer):
-        return int(x)
-    if isinstance(x, np.bool_):
-        return bool(x)
-    return x
+    return jsonable(x)
 
 
 def derived(G) -> np.ndarray:
