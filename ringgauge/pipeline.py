@@ -21,7 +21,8 @@ from .errors import AnalysisError, InputError
 from .fit.fullfield import fit_full_field
 from .fit.orders import fit_orders, locate_extrema
 from .imaging import Frame, load_frame
-from .result import AnalysisResult, FullField, ImageInfo, Sectors
+from .fit.result import Sectors
+from .result import AnalysisResult, FullField, ImageInfo
 from .rings.centre import gradient_centre, refine_by_sharpness
 from .rings.profile import dominant_period, s_profile, s_profiles_by_label
 from .fit.sectors import sector_scatter
@@ -428,7 +429,7 @@ def _ring_fit(data, g: _Geometry, ff, period_s: float, r_lim: float, setup: Benc
     if sectors is not None and sectors.ellipticity > max(3 * sectors.ellipticity_u, 0.002):
         warnings.append(
             f"the rings are elliptical: r² differs by {100 * sectors.ellipticity:.2f} % between the long axis "
-            f"({sectors.axis_deg:.0f}° from +x toward +y) and the short axis; astigmatism of the surface or unequal "
+            f"({sectors.long_axis_deg:.0f}° from +x toward +y) and the short axis; astigmatism of the surface or unequal "
             "pixel scales in x and y (calibrate both)"
         )
     # scatter left after allowing for elliptical rings (astigmatism, unequal pixel scales: warned about above)

@@ -18,7 +18,7 @@ from . import __version__
 from .bench_setup import BenchSetup
 from .conformity import Verdict
 from .errors import InputError
-from .fit.result import RingFit
+from .fit.result import RingFit, Sectors
 from .serialise import build, convert, finite_or_none
 from .serialise import jsonable as _f
 from .uncertainty import Budget, Quantity
@@ -49,35 +49,6 @@ class ImageInfo:
 
     @classmethod
     def from_dict(cls, d: dict) -> "ImageInfo":
-        return build(cls, d)
-
-
-@dataclass(frozen=True)
-class Sectors:
-    """The ring fit repeated in angular sectors: the scatter of their slopes (Type A) and the rings' roundness."""
-
-    n_sectors: int
-    angles_deg: tuple[float, ...]  # sector mid-angles, from +x toward +y (image rows down)
-    slopes_mm2_per_fringe: tuple[float, ...]
-    rings: tuple[int, ...]
-    u_mean_slope_mm2: float  # standard uncertainty of the mean slope from the sector scatter
-    dof: int
-    ellipticity: float  # relative amplitude of the cos 2θ variation of the slope
-    ellipticity_u: float
-    long_axis_deg: float  # angle of the largest slope (longest ring axis)
-
-    @classmethod
-    def of(cls, s) -> "Sectors":
-        """The stored part of the engine's sector scatter."""
-        return cls(int(s.n_sectors), tuple(float(a) for a in s.angles_deg), tuple(float(v) for v in s.slopes_mm2),
-                   tuple(int(n) for n in s.rings), float(s.u_mean_slope_mm2), int(s.dof), float(s.ellipticity),
-                   float(s.ellipticity_u), float(s.axis_deg))
-
-    def to_dict(self) -> dict:
-        return {k: list(v) if isinstance(v, tuple) else v for k, v in self.__dict__.items()}
-
-    @classmethod
-    def from_dict(cls, d: dict) -> "Sectors":
         return build(cls, d)
 
 

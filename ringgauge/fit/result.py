@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 from ..serialise import build
 from ..serialise import jsonable as _f
@@ -97,3 +97,30 @@ class RingFit:
     @classmethod
     def from_dict(cls, d: dict) -> "RingFit":
         return build(cls, d, cls._KEYS)
+
+
+@dataclass(frozen=True)
+class Sectors:
+    """The ring fit repeated in angular sectors: the scatter of their slopes (Type A) and the rings' roundness."""
+
+    n_sectors: int
+    angles_deg: tuple[float, ...]  # sector mid-angles, from +x toward +y (image rows down)
+    slopes_mm2_per_fringe: tuple[float, ...]
+    rings: tuple[int, ...]
+    u_mean_slope_mm2: float  # standard uncertainty of the mean slope from the sector scatter
+    dof: int
+    ellipticity: float  # relative amplitude of the cos 2θ variation of the slope
+    ellipticity_u: float
+    long_axis_deg: float  # angle of the largest slope (longest ring axis)
+
+    @classmethod
+    def of(cls, s: "Sectors") -> "Sectors":
+        """The stored part of a sector scatter (the engine's keeps more for the budget)."""
+        return cls(**{f.name: getattr(s, f.name) for f in fields(cls)})
+
+    def to_dict(self) -> dict:
+        return {f.name: (lambda v: list(v) if isinstance(v, tuple) else v)(getattr(self, f.name)) for f in fields(self)}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Sectors":
+        return build(cls, d)

@@ -12,33 +12,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from .orders import fit_orders, locate_extrema
+from .result import Sectors
 
 
 @dataclass(frozen=True)
-class SectorScatter:
-    n_sectors: int
-    angles_deg: tuple[float, ...]  # sector mid-angles, measured from +x toward +y (image rows down)
-    slopes_mm2: tuple[float, ...]
-    rings: tuple[int, ...]
-    u_mean_slope_mm2: float  # standard uncertainty of the mean slope from the sector scatter
-    dof: int
-    ellipticity: float  # relative amplitude of the cos 2θ variation of the slope
-    ellipticity_u: float
-    axis_deg: float  # angle of the largest slope (longest ring axis)
-    u_mean_round_mm2: float = float("nan")  # like u_mean_slope_mm2, after removing the elliptical (cos 2θ) part
+class SectorScatter(Sectors):
+    """The sector scatter as the engine uses it: what a result stores, and the Type A left after the rings'
+    ellipticity (cos 2θ part) is allowed for."""
 
-    def to_dict(self) -> dict:
-        return {
-            "n_sectors": self.n_sectors,
-            "angles_deg": list(self.angles_deg),
-            "slopes_mm2_per_fringe": list(self.slopes_mm2),
-            "rings": list(self.rings),
-            "u_mean_slope_mm2": self.u_mean_slope_mm2,
-            "dof": self.dof,
-            "ellipticity": self.ellipticity,
-            "ellipticity_u": self.ellipticity_u,
-            "long_axis_deg": self.axis_deg,
-        }
+    u_mean_round_mm2: float = float("nan")  # like u_mean_slope_mm2, after removing the elliptical (cos 2θ) part
 
 
 def sector_scatter(
