@@ -12,9 +12,9 @@ from dataclasses import dataclass, replace
 
 import cv2
 import numpy as np
-from threadpoolctl import threadpool_limits
 
 from . import physics
+from .blas import one_thread
 from .bench_setup import BenchSetup
 from .conformity import with_radius_verdict
 from .errors import AnalysisError, InputError
@@ -110,7 +110,7 @@ def analyse(frames: Frame | Sequence[Frame], setup: BenchSetup, *, progress: Pro
     """
     # Small dense solves run fastest single-threaded; several BLAS threads fighting other processes (batch
     # workers, the window) slow them a hundredfold on a 2-core machine.
-    with threadpool_limits(limits=1, user_api="blas"):
+    with one_thread():
         return _analyse(frames, setup, _adapt(progress) if progress else _noop)
 
 
@@ -164,7 +164,9 @@ def analyse_files(paths: Sequence[str], setup: BenchSetup, *, progress: Progress
     InputError, AnalysisError
         As for :func:`analyse`.
     """
-    return analyse([load_frame(p) for p in paths], setup, progress=progress)
+    with one_thread():  # decoding too: a BLAS thread woken there would spin on through the analysis
+        frames = [load_frame(p) for p in paths]
+    return analyse(frames, setup, progress=progress)
 
 
 @dataclass

@@ -667,11 +667,9 @@ def _single_thread(fn):
 
     @functools.wraps(fn)
     def wrapper(*a, **k):
-        try:
-            from threadpoolctl import threadpool_limits
-        except ImportError:  # pragma: no cover
-            return fn(*a, **k)
-        with threadpool_limits(1):
+        from ..blas import one_thread
+
+        with one_thread(user_api=None):
             return fn(*a, **k)
 
     return wrapper

@@ -24,6 +24,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..blas import one_thread
 from ..errors import AnalysisError, InputError
 from ..physics import fringe_height_nm
 from .aperture import aperture_for
@@ -149,9 +150,7 @@ def _masks(mask: np.ndarray | None, pixel_um, saturated: np.ndarray | None, fram
 def evaluate_form(frames, setup, *, progress=None) -> FormResult:
     """Evaluate the surface form of a part on a test plate from one or more frames (see :func:`_evaluate_form`;
     run with the BLAS library held to one thread: its matrices are small and the machine is shared)."""
-    from threadpoolctl import threadpool_limits
-
-    with threadpool_limits(limits=1, user_api="blas"):
+    with one_thread():
         return _evaluate_form(frames, setup, progress=progress)
 
 

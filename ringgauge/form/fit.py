@@ -41,6 +41,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import ndimage
 
+from ..blas import one_thread
 from ..errors import AnalysisError
 
 #: (name, n, m) of the gap terms in fit order; the first six are the low-order stage
@@ -498,27 +499,9 @@ def _linear_weights(n_out: int, n_in: int, f: int):
     return np.clip(i0, 0, n_in - 1), np.clip(i0 + 1, 0, n_in - 1), w
 
 
-_BLAS = []  # one thread-pool controller for the process (finding the libraries costs milliseconds per call)
-
-
-def one_blas_thread():
-    """Context holding the BLAS libraries to one thread (the form engine's matrices are small, and on a busy
-    machine a second spinning BLAS thread costs more than it gains). The controller is made once, at the first
-    use, when the numerical libraries are loaded."""
-    try:
-        from threadpoolctl import ThreadpoolController
-    except ImportError:  # pragma: no cover - optional speed-up
-        import contextlib
-
-        return contextlib.nullcontext()
-    if not _BLAS:
-        _BLAS.append(ThreadpoolController())
-    return _BLAS[0].limit(limits=1, user_api="blas")
-
-
 def fit_gap(*args, **kwargs) -> GapFit:
-    """See :func:`_fit_gap` (the same, with the BLAS library held to one thread, see :func:`one_blas_thread`)."""
-    with one_blas_thread():
+    """See :func:`_fit_gap` (the same, with the BLAS library held to one thread: :func:`ringgauge.blas.one_thread`)."""
+    with one_thread():
         return _fit_gap(*args, **kwargs)
 
 

@@ -358,9 +358,9 @@ class PhaseMap:
 
 def phase_map(*args, **kwargs) -> PhaseMap:
     """See :func:`_phase_map` (run with the BLAS library held to one thread: small matrices, busy machine)."""
-    from .fit import one_blas_thread
+    from ..blas import one_thread
 
-    with one_blas_thread():
+    with one_thread():
         return _phase_map(*args, **kwargs)
 
 
