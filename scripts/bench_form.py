@@ -154,7 +154,13 @@ from ringgauge.bench_setup import default_setup
 from ringgauge.form.evaluate import evaluate_form
 from ringgauge.imaging import load_frame
 paths, given = sys.argv[3:], sys.argv[2] == "1"
-frames = [load_frame(p) for p in paths]
+try:  # decoded as the tool decodes them (analyse_files: under one BLAS thread)
+    from ringgauge.blas import one_thread
+except ImportError:  # an older checkout (--code)
+    import contextlib
+    one_thread = contextlib.nullcontext
+with one_thread():
+    frames = [load_frame(p) for p in paths]
 setup = default_setup(20.0, "mercury-e", pixel_size_u_um=0.02,
                       aperture_px=(639.5, 511.5, 450.0) if given else None)
 base = hwm()
