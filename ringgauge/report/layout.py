@@ -262,7 +262,7 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
     from reportlab.lib.units import mm
     from reportlab.platypus import CondPageBreak, KeepTogether, Paragraph, Spacer, Table, TableStyle
 
-    from .overlay import fit_plot_png, overlay_png
+    from .overlay import fit_plot_png, height_map_png, overlay_png
 
     st = _styles()
     buf = io.BytesIO()
@@ -335,6 +335,12 @@ def render_certificate(content: dict, out: str | os.PathLike, *, paper: str = "A
             t = Table(cells, colWidths=[W / 2] * len(figs), hAlign="LEFT")
             t.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("ALIGN", (0, 0), (-1, -1), "CENTER")]))
             story.append(t)
+        if result is not None and c.get("mode") == "form":
+            p = Path(tmp) / "height.png"
+            if height_map_png(result, p):
+                story.append(_image_flowable(p, W * 0.62, 80 * mm))
+                story.append(Paragraph("Surface height map (nm of surface height, less piston and tilt) over the "
+                                       "part, from the analysis's height map", st["small"]))
         if image_note:
             story.append(Paragraph(_esc(image_note), st["small"]))
         story.append(Paragraph("Traceability and conditions", st["h2"]))

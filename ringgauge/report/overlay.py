@@ -158,3 +158,36 @@ def _form_bars(terms, k: float, path) -> None:
     ax.grid(alpha=0.3, axis="x")
     fig.tight_layout()
     fig.savefig(path, format="png")
+
+
+def height_map_png(result: "AnalysisResult | dict", path: str | Path) -> bool:
+    """The surface height map of a form result (nm, less piston and tilt) over the part, in mm from the
+    aperture's centre (y down, as in the image); returns False when the result holds no map."""
+    r = typed_result(result)
+    form = r.form
+    if form is None or form.height_map is None or form.height_map.extent_px is None:
+        return False
+    m = form.height_map.array()
+    if not np.isfinite(m).any():
+        return False
+    px_mm, py_mm = (v * 1e-3 for v in form.pixel_size_um)
+    cx, cy = form.aperture.centre_px
+    x0, x1, y1, y0 = form.height_map.extent_px  # left, right, bottom (largest row), top
+    extent = ((x0 - cx) * px_mm, (x1 - cx) * px_mm, (y1 - cy) * py_mm, (y0 - cy) * py_mm)
+    lim = float(np.nanmax(np.abs(m))) or 1.0
+    fig = _figure(4.2, 3.4)
+    ax = fig.add_subplot(1, 1, 1)
+    im = ax.imshow(m, extent=extent, cmap="RdBu_r", vmin=-lim, vmax=lim, interpolation="nearest")
+    ax.set_aspect("equal")
+    ax.set_xlabel("x / mm (columns)", fontsize=7)
+    ax.set_ylabel("y / mm (rows, down)", fontsize=7)
+    ax.tick_params(labelsize=6)
+    pv = float(np.nanmax(m) - np.nanmin(m))
+    sense = "" if form.height_map.sign_known else "; sign unknown: shown with power ≥ 0"
+    ax.set_title(f"surface height less piston and tilt, PV {pv:.0f} nm{sense}", fontsize=7)
+    cb = fig.colorbar(im, ax=ax, shrink=0.85)
+    cb.set_label("nm", fontsize=7)
+    cb.ax.tick_params(labelsize=6)
+    fig.tight_layout()
+    fig.savefig(path, format="png")
+    return True
