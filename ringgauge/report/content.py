@@ -21,6 +21,8 @@ import math
 
 from .. import __version__
 from ..errors import InputError, RinggaugeError
+from ..form.result import FORM_TERMS, term_spec
+from ..presentation import FIGURE, SETTING, TEXT, Row, certificate_rows, document_label, figure_text, typed_result
 from ..uncertainty import format_value, round_uncertainty
 
 CONTENT_FILE = "ringgauge-content.json"
@@ -103,16 +105,11 @@ def _rule_note(rule: str | None) -> str:
     return ""
 
 
-FORM_LABELS = {
-    "power": "Power (sagitta deviation, A)",
-    "astigmatism": "Astigmatism",
-    "irregularity": "Irregularity (B)",
-    "rot_sym_irregularity": "Rotationally symmetric irregularity (C)",
-    "rms_total": "RMSt",
-    "rms_irregularity": "RMSi",
-    "rms_asymmetric": "RMSa",
-    "pv_total": "PV of the form deviation",
-}
+def _term_label(name: str) -> str:
+    """A form term as certificates name it (``FORM_TERMS`` through :func:`ringgauge.presentation.document_label`);
+    an unknown name with its underscores as spaces."""
+    spec = term_spec(name)
+    return document_label(spec) if spec is not None else str(name).replace("_", " ")
 
 
 def _num(v) -> bool:
@@ -124,68 +121,32 @@ def _row(quantity: str, value, U, unit: str, k) -> dict:
     return {"quantity": quantity, "value": v, "U": u, "k": _fmt(k)}
 
 
-def _form_terms(form: dict) -> list[str]:
-    """Form term names in the order a report lists them, then any other measured term (none dropped)."""
-    names = [t for t in FORM_LABELS if _num(form.get(f"{t}_fringes"))]
-    for key in sorted(form):
-        if key.endswith("_fringes") and "_u_" not in key.lower() and _num(form.get(key)):
-            t = key[: -len("_fringes")]
-            if t not in names and not t.lower().endswith("_u"):
-                names.append(t)
-    return names
-
-
 def _results_rows(result: dict) -> list[dict]:
-    rows = []
-    k = result.get("k") or 2.0
-    if result.get("radius_mm") is not None:
-        rows.append(_row("Radius of curvature R", result["radius_mm"], result.get("radius_U_mm"), "mm", k))
-    fr = result.get("fringes") or {}
-    if fr.get("rings_used") is not None:
-        rows.append({"quantity": "Rings used in the fit", "value": str(fr["rings_used"]), "U": "—", "k": "—"})
-    if fr.get("contact_offset_fringes") is not None:
-        rows.append({"quantity": "Contact offset", "value": f"{fr['contact_offset_fringes']:.2f} fringes",
-                     "U": "—", "k": "—"})
-    form = result.get("form") or {}
-    if not isinstance(form, dict):
-        return rows
-    k = form.get("k") or k
-    for t in _form_terms(form):
-        val, u = form[f"{t}_fringes"], form.get(f"{t}_u_fringes")
-        row = _row(FORM_LABELS.get(t, t.replace("_", " ").capitalize()), val, k * u if _num(u) else None,
-                   "fringes", k)
-        vnm, unm = form.get(f"{t}_nm"), form.get(f"{t}_u_nm")
-        if _num(vnm):  # ISO 10110-5 prefers nanometres; fringes are kept with their wavelength
-            nm_v, nm_u = _value_u(vnm, k * unm if _num(unm) else None, "nm")
-            row["value"] += f" = {nm_v}"
-            if nm_u not in ("—", "not available"):
-                row["U"] += f" = {nm_u}"
-        rows.append(row)
-    if form.get("power_sign") is not None:
-        meaning = (form.get("sign") or {}).get("meaning")
-        rows.append({"quantity": "Sign of power", "value": str(form["power_sign"]) + (f" ({meaning})" if meaning
-                                                                                    else ""), "U": "—", "k": "—"})
-    if _num(form.get("astigmatism_axis_deg")) and _num(form.get("astigmatism_fringes")):
-        ua = form.get("astigmatism_axis_u_deg")
-        rows.append({"quantity": "Astigmatism axis", "value": f"{form['astigmatism_axis_deg']:.1f}°",
-                     "U": f"{k * ua:.1f}°" if _num(ua) else "not available", "k": _fmt(k)})
-    if _num(form.get("test_diameter_mm")):
-        src = form.get("test_diameter_source")
-        rows.append({"quantity": "Test diameter used", "value": f"{form['test_diameter_mm']:.2f} mm"
-                     + (f" ({src})" if src else ""), "U": "—", "k": "—"})
-    rad = form.get("radius") if isinstance(form.get("radius"), dict) else None
-    if rad:
-        if _num(rad.get("delta_r_mm")):
-            rows.append(_row("Radius difference to the test plate ΔR", rad["delta_r_mm"], rad.get("delta_r_U_mm"),
-                             "mm", rad.get("k") or k))
-        if _num(rad.get("surface_radius_mm")):
-            rows.append(_row("Surface radius", rad["surface_radius_mm"], rad.get("surface_radius_U_mm"), "mm",
-                             rad.get("k") or k))
-        elif rad.get("surface_radius_candidates_mm"):
-            c = rad["surface_radius_candidates_mm"]
-            rows.append({"quantity": "Surface radius", "value": f"{c[0]:.4f} mm or {c[1]:.4f} mm",
-                         "U": "—", "k": "—"})
-    return rows
+    """The certificate's results table: the presentation's rows marked for certificates
+    (:func:`ringgauge.presentation.certificate_rows`), from the stored result read back as the typed result."""
+    return [_certificate_row(r) for r in certificate_rows(typed_result(result))]
+
+
+def _certificate_row(r: Row) -> dict:
+    """One presentation row as the certificate prints it: value and U with their unit, and k."""
+    label = r.document_label
+    q = r.value
+    if r.choices:  # a surface radius of unknown sign: both candidates, neither with U
+        return {"quantity": label, "value": " or ".join(f"{c:.4f} {r.unit}" for c in r.choices), "U": "—", "k": "—"}
+    if r.kind in (TEXT, FIGURE) or q is None or (r.kind == SETTING and q.U is None):
+        note = f" ({r.note})" if r.note else ""
+        return {"quantity": label, "value": f"{figure_text(r)} {r.shown_unit}".strip() + note, "U": "—", "k": "—"}
+    if r.decimals is not None:  # read to a fixed step (an axis to 0.1°): value and U to the same decimals
+        sep = "" if q.unit == "°" else " "
+        return {"quantity": label, "value": f"{q.value:.{r.decimals}f}{sep}{q.unit}",
+                "U": "not available" if q.U is None else f"{q.U:.{r.decimals}f}{sep}{q.unit}", "k": _fmt(q.k)}
+    row = _row(label, q.value, q.U, q.unit, q.k)
+    if r.alt is not None:  # ISO 10110-5 prefers nanometres; fringes are kept with their wavelength
+        nm_v, nm_u = _value_u(r.alt.value, r.alt.U, r.alt.unit)
+        row["value"] += f" = {nm_v}"
+        if nm_u not in ("—", "not available"):
+            row["U"] += f" = {nm_u}"
+    return row
 
 
 def _budget_table(b: dict | None) -> dict | None:
@@ -226,7 +187,7 @@ def _form_budget(result: dict) -> list[list[str]]:
     """Per-term uncertainty contributions of the form evaluation: term, source, u in fringes and nm."""
     form = result.get("form") if isinstance(result.get("form"), dict) else {}
     rows = []
-    order = list(FORM_LABELS)
+    order = [t.name for t in FORM_TERMS]
     budget = form.get("uncertainty_budget") or {}
 
     def rank(key: str) -> tuple:
@@ -236,7 +197,7 @@ def _form_budget(result: dict) -> list[list[str]]:
     for key in sorted(budget, key=rank):
         items = budget[key]
         t = key[: -len("_fringes")] if key.endswith("_fringes") else key
-        label = FORM_LABELS.get(t, t.replace("_", " "))
+        label = _term_label(t)
         for it in items or []:
             rows.append([label, str(it.get("source", "")), f"{_g(it.get('u_fringes'), 2)} fringes",
                          f"{_g(it.get('u_nm'), 2)} nm" if _num(it.get("u_nm")) else "—"])
@@ -252,7 +213,7 @@ def _verdict_terms(verdict: dict) -> dict:
             v, U = _value_u(t["value_fringes"], t.get("U_fringes"), "fringes")
             name = str(t.get("term", ""))
             rows.append([
-                FORM_LABELS.get(name, name),
+                _term_label(name),
                 v if U in ("—", "not available") else f"{v.replace(' fringes', '')} ± {U}",
                 f"{_fmt(t.get('limit_fringes'))} fringes",
                 f"{_fmt(t.get('wavelength_nm'))} nm" if t.get("wavelength_nm") else "—",
