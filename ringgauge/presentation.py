@@ -30,16 +30,6 @@ TEXT = "text"  # words (the sign of power, a test plate's name)
 #: rows whose figure is a pure number (no unit)
 DIMENSIONLESS = frozenset({"radius.k", "radius.dof", "rings.used", "rings.redchi", "setup.medium_index"})
 
-#: form terms on documents (certificate, text report) where their wording differs from ``TermSpec.label``: the
-#: wording of issued certificates, kept so that a certificate of the same record reads the same
-_DOCUMENT_WORDING = {
-    "power": "Power (sagitta deviation, A)",
-    "rms_total": "RMSt",
-    "rms_irregularity": "RMSi",
-    "rms_asymmetric": "RMSa",
-    "pv_total": "PV of the form deviation",
-}
-
 #: the terms whose value the window also shows in nm on a row of its own
 NM_ROWS = ("power", "irregularity")
 
@@ -64,7 +54,7 @@ def term_label(name: str) -> str:
 
 def document_label(spec: TermSpec) -> str:
     """A form term as certificates and the text report name it (capitalised)."""
-    return _DOCUMENT_WORDING.get(spec.name, _capital(spec.label))
+    return spec.document or _capital(spec.label)
 
 
 def typed_result(result: "AnalysisResult | dict") -> "AnalysisResult":

@@ -18,6 +18,7 @@ class TermSpec:
     short: str  # for charts and narrow tables
     iso: str | None = None
     limit_name: str = ""  # how a tolerance message names its limit
+    document: str = ""  # how certificates and the text report name it, when not the label capitalised
 
     @property
     def key(self) -> str:
@@ -26,15 +27,15 @@ class TermSpec:
 
 #: the form terms a result carries, in the order every view shows them — the one list of them
 FORM_TERMS: tuple[TermSpec, ...] = (
-    TermSpec("power", "power (A)", "power (A)", "A", "the power tolerance A"),
+    TermSpec("power", "power (A)", "power (A)", "A", "the power tolerance A", "Power (sagitta deviation, A)"),
     TermSpec("astigmatism", "astigmatism", "astigmatism"),
     TermSpec("irregularity", "irregularity (B)", "irregularity (B)", "B", "the irregularity tolerance B"),
     TermSpec("rot_sym_irregularity", "rotationally symmetric irregularity (C)", "rot. sym. irregularity (C)", "C",
              "the rotationally symmetric irregularity tolerance C"),
-    TermSpec("rms_total", "RMSt (total RMS after tilt)", "RMSt", "t", "the RMSt limit"),
-    TermSpec("rms_irregularity", "RMSi (RMS irregularity)", "RMSi", "i", "the RMSi limit"),
-    TermSpec("rms_asymmetric", "RMSa (RMS asymmetric)", "RMSa", "a", "the RMSa limit"),
-    TermSpec("pv_total", "PV after tilt removal", "PV total", None),
+    TermSpec("rms_total", "RMSt (total RMS after tilt)", "RMSt", "t", "the RMSt limit", "RMSt"),
+    TermSpec("rms_irregularity", "RMSi (RMS irregularity)", "RMSi", "i", "the RMSi limit", "RMSi"),
+    TermSpec("rms_asymmetric", "RMSa (RMS asymmetric)", "RMSa", "a", "the RMSa limit", "RMSa"),
+    TermSpec("pv_total", "PV after tilt removal", "PV total", None, "", "PV of the form deviation"),
 )
 TERM_KEYS: tuple[str, ...] = tuple(t.key for t in FORM_TERMS)
 _BY_NAME = {t.name: t for t in FORM_TERMS}
