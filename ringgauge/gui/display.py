@@ -12,6 +12,7 @@ from .. import presentation
 from ..form.result import FormResult
 from ..result import AnalysisResult
 from ..uncertainty import round_uncertainty
+from .model import Overrides
 
 
 # -- the photograph -------------------------------------------------------------------------------------------
@@ -92,10 +93,9 @@ def _aspect(result: AnalysisResult) -> float:
     return float(py) / float(px) if px else 1.0
 
 
-def overlay_from(result: AnalysisResult | None, overrides: dict | None = None) -> Overlay:
+def overlay_from(result: AnalysisResult | None, overrides: Overrides | None = None) -> Overlay:
     """Overlay shapes from a result and the manual overrides."""
     ov = Overlay()
-    overrides = overrides or {}
     if result is not None:
         aspect = _aspect(result)
         c = result.centre_px
@@ -130,30 +130,33 @@ def overlay_from(result: AnalysisResult | None, overrides: dict | None = None) -
             if axis is not None and astig > 0:
                 # the form evaluation counts the axis from +x toward +y (rows, down): clockwise on screen
                 ov.meridians = [(axis, "stronger meridian"), (axis + 90.0, "weaker meridian")]
-    if overrides.get("centre_px") is not None:
-        ov.centre = tuple(float(v) for v in overrides["centre_px"])  # type: ignore[assignment]
+    if overrides is None:
+        return ov
+    if overrides.centre_px is not None:
+        ov.centre = tuple(float(v) for v in overrides.centre_px)  # type: ignore[assignment]
         ov.centre_by_hand = True
-    if overrides.get("aperture_px") is not None:
-        x, y, r = (float(v) for v in overrides["aperture_px"])
+    if overrides.aperture_px is not None:
+        x, y, r = (float(v) for v in overrides.aperture_px)
         aspect = _aspect(result) if result is not None else 1.0
         ov.aperture = (x, y, r, r / aspect)
         ov.aperture_by_hand = True
     return ov
 
 
-def overrides_ignored(result: AnalysisResult | None, overrides: dict | None, *, tol_px: float = 3.0) -> list[str]:
+def overrides_ignored(result: AnalysisResult | None, overrides: Overrides | None, *,
+                      tol_px: float = 3.0) -> list[str]:
     """Which hand settings the result does not reflect (the engine found its own centre or aperture).
 
     The window passes a hand-set centre and aperture to the engine in the set-up; an engine that does not
     read them finds its own. The operator must know when that happened."""
     out: list[str] = []
-    if result is None or not overrides:
+    if result is None or overrides is None:
         return out
-    c = overrides.get("centre_px")
+    c = overrides.centre_px
     rc = result.centre_px
     if c is not None and rc is not None and math.hypot(float(rc[0]) - c[0], float(rc[1]) - c[1]) > tol_px:
         out.append(f"centre (the result's centre is at {float(rc[0]):.1f}, {float(rc[1]):.1f} px)")
-    a = overrides.get("aperture_px")
+    a = overrides.aperture_px
     if a is not None and result.form is not None:
         ap = result.form.aperture
         off = math.hypot(ap.centre_px[0] - a[0], ap.centre_px[1] - a[1])

@@ -188,15 +188,6 @@ class Overrides:
     def empty(self) -> bool:
         return self.centre_px is None and self.aperture_px is None
 
-    def to_dict(self) -> dict:
-        """The hand settings for the overlay (``centre_px``, ``aperture_px`` = x, y, radius), set ones only."""
-        d: dict[str, Any] = {}
-        if self.centre_px is not None:
-            d["centre_px"] = tuple(float(v) for v in self.centre_px)
-        if self.aperture_px is not None:
-            d["aperture_px"] = tuple(float(v) for v in self.aperture_px)
-        return d
-
     def describe(self) -> str:
         parts = []
         if self.centre_px is not None:

@@ -492,7 +492,7 @@ class MainWindow(QMainWindow):
                 page.plots.clear()
             if what == "setup" and self.autosave:
                 self.prefs.save_setup(s.setup)
-            page.view.set_overlay(display.overlay_from(s.result, s.overrides.to_dict()))
+            page.view.set_overlay(display.overlay_from(s.result, s.overrides))
             self._sync_undo()
             if what == "overrides":
                 page.hint.setText(s.overrides.describe())
@@ -519,7 +519,7 @@ class MainWindow(QMainWindow):
             self.a_print.setEnabled(False)
             page.results.show_error(s.error or "")
             page.plots.clear()
-            page.view.set_overlay(display.overlay_from(None, s.overrides.to_dict()))
+            page.view.set_overlay(display.overlay_from(None, s.overrides))
             self.set_status(f"Analysis failed: {s.error}" if s.frames else f"No measurement: {s.error}")
 
     def show_result(self) -> None:
@@ -527,11 +527,11 @@ class MainWindow(QMainWindow):
         r = s.result
         self._residual_cache = None
         page.results.show_result(r)
-        page.view.set_overlay(display.overlay_from(r, s.overrides.to_dict()))
+        page.view.set_overlay(display.overlay_from(r, s.overrides))
         page.plots.show_result(r, shape=s.frames[0].shape if s.frames else None)
         if self.residual_on:
             self._show_photo()
-        ignored = display.overrides_ignored(r, s.overrides.to_dict())
+        ignored = display.overrides_ignored(r, s.overrides)
         if ignored:
             self.bench.show_notice("The analysis did not use your hand-set " + " and ".join(ignored)
                                    + ": this engine finds its own. Treat the result with care or clear the "

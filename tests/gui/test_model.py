@@ -164,7 +164,7 @@ def test_value_rows_verdict_and_overlay_from_a_result(sample_dir):
     assert v.explanation == "within U of a limit"
     for overall, word in (("pass", "PASS"), ("fail", "FAIL"), ("conditional fail", "CONDITIONAL FAIL")):
         assert display.verdict_view(replace(res, verdict=Verdict(overall))).word == word
-    ov = display.overlay_from(res, {"aperture_px": (10, 20, 30)})
+    ov = display.overlay_from(res, Overrides(aperture_px=(10, 20, 30)))
     assert len(ov.rings) == 10 and ov.centre == ((f.shape[1] - 1) / 2, (f.shape[0] - 1) / 2)
     assert ov.aperture == (10.0, 20.0, 30.0, 30.0) and ov.aperture_by_hand
     # ring radii drawn where r^2 = m lambda R / n puts them (Newton's rings; Hecht, Optics, ch. 9 — from memory)
@@ -255,10 +255,10 @@ def test_hand_settings_the_result_ignored_are_named():
     made = hand_result(frame_from_array(noiseless_rings()[0]), SetupState().to_bench_setup(), 800.0)
     aperture = SimpleNamespace(centre_px=(150.0, 150.0), radius_px=100.0)  # 200 px across
     d = replace(made, centre_px=(100.0, 80.0), form=SimpleNamespace(aperture=aperture))
-    assert display.overrides_ignored(d, {"centre_px": (101.0, 81.0)}) == []
-    assert display.overrides_ignored(d, {"centre_px": (120.0, 80.0)})[0].startswith("centre")
-    assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 100.5)}) == []
-    assert display.overrides_ignored(d, {"aperture_px": (150.0, 150.0, 130.0)})[0].startswith("aperture")
+    assert display.overrides_ignored(d, Overrides(centre_px=(101.0, 81.0))) == []
+    assert display.overrides_ignored(d, Overrides(centre_px=(120.0, 80.0)))[0].startswith("centre")
+    assert display.overrides_ignored(d, Overrides(aperture_px=(150.0, 150.0, 100.5))) == []
+    assert display.overrides_ignored(d, Overrides(aperture_px=(150.0, 150.0, 130.0)))[0].startswith("aperture")
 
 
 def test_form_residual_follows_the_gap_fit():

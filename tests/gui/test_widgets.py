@@ -7,7 +7,7 @@ from PySide6.QtCore import QPoint, Qt
 
 from ringgauge.gui import display
 from ringgauge.gui.image_view import ImageView
-from ringgauge.gui.model import BenchSession, SetupState
+from ringgauge.gui.model import BenchSession, Overrides, SetupState
 from ringgauge.gui.results_panel import ResultsPanel
 from ringgauge.gui.setup_panel import SetupPanel
 from ringgauge.imaging import load_frame
@@ -88,7 +88,7 @@ def test_image_view_layers_and_picking(app, qtbot, sample_dir):
     v.set_image(display.image_to_u8(f.data))
     setup = SetupState(source="sodium-d", pixel_size_um=16.0).to_bench_setup()
     r = hand_result(f, setup, 800.0)
-    v.set_overlay(display.overlay_from(r, {"aperture_px": (160, 128, 100)}))
+    v.set_overlay(display.overlay_from(r, Overrides(aperture_px=(160, 128, 100))))
     assert v.layer_item_count("rings") == 10
     assert v.layer_item_count("centre") == 4  # two arms, each with a dark halo
     assert v.layer_item_count("aperture") == 1
