@@ -252,7 +252,9 @@ class HeightMap:
     def from_dict(cls, d: dict | None) -> "HeightMap | None":
         if d is None:
             return None
-        return cls(convert(tuple[tuple[float | None, ...], ...], d["values"]),
+        # row by row, not through the generic converter: a map has up to 96 x 96 cells
+        values = tuple(tuple(None if x is None else float(x) for x in row) for row in d["values"])
+        return cls(values,
                    convert(tuple[float, float, float, float], d.get("extent_px")),
                    str(d.get("sign", "")).startswith("gap as measured"))
 
